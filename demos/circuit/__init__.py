@@ -1,0 +1,1 @@
+"""Our own demo scenario: a simulated diode-clipper circuit and synthesized sources."""
