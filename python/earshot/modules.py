@@ -192,6 +192,25 @@ class WaveNet(nn.Module):
         return out
 
 
+def _activation_object(a):
+    """Completes a TCN activation object: slope for leaky_relu, min/max for hardtanh."""
+    if isinstance(a, str):
+        a = {"fn": a}
+    if not isinstance(a, dict) or a.get("fn") not in ACTIVATIONS:
+        raise ValueError(f"TCN activation must be {{'fn': one of {', '.join(ACTIVATIONS)}, ...}}, got {a!r}")
+    unknown = set(a) - {"fn", "slope", "min", "max"}
+    if unknown:
+        raise ValueError(f"TCN activation: unknown field(s) {sorted(unknown)}")
+    out = {"fn": a["fn"]}
+    if a["fn"] == "leaky_relu":
+        out["slope"] = float(a.get("slope", 0.01))
+    if a["fn"] == "hardtanh":
+        out["min"], out["max"] = float(a.get("min", -1.0)), float(a.get("max", 1.0))
+        if not out["min"] < out["max"]:
+            raise ValueError(f"TCN hardtanh needs min < max, got {out['min']}, {out['max']}")
+    return out
+
+
 class TCNBlock(nn.Module):
     """`tcn`: y = act(FiLM(conv(x))) + residual (Steinmetz & Reiss 2022).
 
@@ -205,10 +224,7 @@ class TCNBlock(nn.Module):
                  activation=None, film=None, n_controls=0, residual=True):
         super().__init__()
         self.in_channels, self.out_channels = in_channels, out_channels
-        act = dict(activation or {"fn": "leaky_relu", "slope": 0.2})
-        if act.get("fn") not in ACTIVATIONS:
-            raise ValueError(f"unsupported TCN activation {act.get('fn')!r}")
-        self.act = act
+        self.act = _activation_object(activation or {"fn": "leaky_relu", "slope": 0.2})
         self.conv = CausalConv1d(in_channels, out_channels, kernel, dilation, bias)
         self.film_spec = None
         if film is not None:

@@ -1,0 +1,147 @@
+"""Command line: `python3 -m earshot export ...` and `python3 -m earshot info FILE`."""
+
+import argparse
+import importlib
+import json
+import os
+import sys
+
+import torch
+
+from .container import FormatError
+from .exporter import ExportError, export
+from .loader import load, read
+
+
+def figures(desc):
+    """Parameters, multiply-adds per sample and receptive field, as dsp/FORMAT.md defines them."""
+    madds, rf, recurrent = 0, 1, False
+    n_in = len(desc["graph"]["inputs"])
+    for l in desc["graph"]["layers"]:
+        t = l["type"]
+        if t == "linear":
+            madds += l["out"] * l["in"]
+        elif t == "conv1d":
+            madds += l["out"] * l["in"] * l["kernel"]
+            rf += (l["kernel"] - 1) * l.get("dilation", 1)
+        elif t in ("lstm", "gru"):
+            recurrent = True
+            g = 4 if t == "lstm" else 3
+            h, x = l["hidden"], l["in"]
+            for _ in range(l.get("num_layers", 1)):
+                madds += g * h * (x + h)
+                x = h
+        elif t == "wavenet":
+            c, s, k = l["channels"], l["skip"], l["kernel"]
+            madds += c * l["in"]
+            for d in l["dilations"]:
+                madds += 2 * c * c * k + c * c + s * c
+                rf += (k - 1) * d
+        elif t == "tcn":
+            madds += l["out"] * l["in"] * l["kernel"]
+            if l.get("residual", True) and l["in"] != l["out"]:
+                madds += l["out"] * l["in"]
+            rf += (l["kernel"] - 1) * l.get("dilation", 1)
+    del n_in
+    return {"madds_per_sample": madds, "receptive_field": "recurrent" if recurrent else rf}
+
+
+def _control_arg(text):
+    """A control as JSON ({"name": ...}) or as name=drive,min=0,max=1,default=0.5,unit=dB,smoothing_ms=20."""
+    text = text.strip()
+    if text.startswith("{"):
+        return json.loads(text)
+    out = {}
+    for part in text.split(","):
+        if "=" not in part:
+            if not out:
+                out["name"] = part
+                continue
+            raise argparse.ArgumentTypeError(f"control field {part!r} is not key=value")
+        k, v = part.split("=", 1)
+        out[k.strip()] = v if k.strip() in ("name", "unit") else float(v)
+    return out
+
+
+def _load_model(spec, state_dict):
+    if ":" in spec and not os.path.exists(spec):
+        mod, attr = spec.split(":", 1)
+        obj = getattr(importlib.import_module(mod), attr)
+        model = obj if isinstance(obj, torch.nn.Module) else obj()
+    else:
+        model = torch.load(spec, map_location="cpu")
+        if isinstance(model, dict):
+            raise SystemExit(f"{spec} holds a state dict, not a model: pass the model as module:factory "
+                             f"and the weights with --state-dict {spec}")
+    if not isinstance(model, torch.nn.Module):
+        raise SystemExit(f"{spec} does not give a torch.nn.Module (got {type(model).__name__})")
+    if state_dict:
+        model.load_state_dict(torch.load(state_dict, map_location="cpu"))
+    return model.eval()
+
+
+def main(argv=None):
+    p = argparse.ArgumentParser(prog="python3 -m earshot", description="earshot effect files from PyTorch")
+    sub = p.add_subparsers(dest="cmd", required=True)
+    e = sub.add_parser("export", help="write a model to an effect file (.nfx)")
+    e.add_argument("model", help="a file saved with torch.save(model), or package.module:name where name "
+                                 "is an nn.Module or a function returning one")
+    e.add_argument("output", help="effect file to write, e.g. fx.nfx")
+    e.add_argument("--state-dict", help="weights to load into the model first (torch.save(model.state_dict()))")
+    e.add_argument("--sample-rate", type=float, help="training rate in Hz (default: model.sample_rate)")
+    e.add_argument("--control", action="append", type=_control_arg, default=None,
+                   help="a control, repeatable, in order: name=drive,min=0,max=1,default=0.5,unit=,smoothing_ms=20")
+    e.add_argument("--title")
+    e.add_argument("--author", action="append")
+    e.add_argument("--paper")
+    e.add_argument("--code")
+    e.add_argument("--licence")
+    e.add_argument("--dtype", choices=("f32", "f16"), default="f32")
+    e.add_argument("--input-skip", action="store_true", help="for a plain nn.Sequential: add the input to the output")
+    i = sub.add_parser("info", help="describe an effect file")
+    i.add_argument("file")
+    i.add_argument("--json", action="store_true", help="print the effect description as JSON")
+    args = p.parse_args(argv)
+
+    try:
+        if args.cmd == "export":
+            model = _load_model(args.model, args.state_dict)
+            credits = dict(getattr(model, "credits", None) or {})
+            for k, v in (("title", args.title), ("authors", args.author), ("paper", args.paper),
+                         ("code", args.code), ("licence", args.licence)):
+                if v:
+                    credits[k] = v
+            rate = args.sample_rate
+            if rate is not None and rate.is_integer():
+                rate = int(rate)
+            desc = export(model, args.output, sample_rate=rate, controls=args.control,
+                          credits=credits or None, dtype=args.dtype, input_skip=args.input_skip or None)
+            f = figures(desc)
+            print(f"wrote {args.output}: {len(desc['graph']['layers'])} layers, "
+                  f"{os.path.getsize(args.output)} bytes, {f['madds_per_sample']} multiply-adds per sample")
+            return 0
+        desc, tensors = read(args.file)
+        load(args.file)  # full check
+        if args.json:
+            print(json.dumps(desc, indent=2))
+            return 0
+        f = figures(desc)
+        params = sum(a.size for _, a in tensors.values())
+        dtypes = sorted({c for c, _ in tensors.values()})
+        print(f"title        {desc['credits'].get('title')}")
+        print(f"sample rate  {desc['sample_rate']} Hz")
+        print(f"parameters   {params} ({'/'.join(dtypes) or '-'})")
+        print(f"madds/sample {f['madds_per_sample']}")
+        print(f"receptive    {f['receptive_field']}")
+        print(f"inputs       {', '.join(desc['graph']['inputs'])}; input skip "
+              f"{'on' if desc['graph'].get('input_skip') else 'off'}")
+        for c in desc["controls"]:
+            print(f"control      {c['name']} [{c['min']} .. {c['max']}] default {c['default']} "
+                  f"{c['unit']} smoothing {c['smoothing_ms']} ms")
+        for l in desc["graph"]["layers"]:
+            rest = {k: v for k, v in l.items() if k not in ("type", "name")}
+            print(f"layer        {l['name']}: {l['type']} {json.dumps(rest, separators=(',', ':'))}")
+        return 0
+    except (ExportError, FormatError, ValueError, OSError) as err:
+        print(f"earshot: {err}", file=sys.stderr)
+        return 1

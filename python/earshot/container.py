@@ -1,0 +1,120 @@
+"""The safetensors container, written and read with the standard library only.
+
+Layout (dsp/FORMAT.md, "Container"): u64 little-endian header length N, N bytes
+of JSON header padded with spaces to a multiple of 8, then the raw little-endian
+tensor data. We write tensors contiguously, in the order given (the exporter
+gives graph order: layer by layer, each layer's tensors in the order FORMAT.md
+lists them), with no gaps; every tensor starts at a multiple of its element size.
+"""
+
+import json
+import math
+import struct
+
+import numpy as np
+
+MAX_FILE = 256 * 1024 * 1024
+MAX_HEADER = 16 * 1024 * 1024
+MAX_DIM = 65536
+MAX_PARAMS = 16777216
+DTYPES = {"F32": np.dtype("<f4"), "F16": np.dtype("<f2")}
+
+
+class FormatError(ValueError):
+    """An effect file (or what is about to become one) breaks dsp/FORMAT.md."""
+
+
+def write(path_or_file, tensors, metadata):
+    """tensors: list of (name, numpy array of float32 or float16); metadata: dict str -> str.
+
+    Returns the bytes written.
+    """
+    header = {"__metadata__": dict(metadata)}
+    chunks, offset = [], 0
+    for name, arr in tensors:
+        if name == "__metadata__" or name in header:
+            raise FormatError(f"tensor name {name!r} used twice or reserved")
+        arr = np.ascontiguousarray(arr)
+        code = {np.dtype("float32"): "F32", np.dtype("float16"): "F16"}.get(arr.dtype)
+        if code is None:
+            raise FormatError(f"tensor {name!r}: dtype {arr.dtype} is neither float32 nor float16")
+        data = arr.astype(DTYPES[code], copy=False).tobytes()
+        header[name] = {"dtype": code, "shape": list(arr.shape), "data_offsets": [offset, offset + len(data)]}
+        chunks.append(data)
+        offset += len(data)
+    for k, v in header["__metadata__"].items():
+        if not isinstance(k, str) or not isinstance(v, str):
+            raise FormatError(f"__metadata__ values must be strings, {k!r} is {type(v).__name__}")
+    text = json.dumps(header, separators=(",", ":")).encode("utf-8")
+    text += b" " * (-len(text) % 8)
+    blob = struct.pack("<Q", len(text)) + text + b"".join(chunks)
+    if len(blob) > MAX_FILE:
+        raise FormatError(f"effect file would be {len(blob)} bytes, over the {MAX_FILE}-byte limit")
+    if hasattr(path_or_file, "write"):
+        path_or_file.write(blob)
+    else:
+        with open(path_or_file, "wb") as f:
+            f.write(blob)
+    return blob
+
+
+def read(source):
+    """Parses a container from a path or bytes, checking the container rules.
+
+    Returns (metadata dict, dict name -> (dtype code, numpy float32 array)), tensors
+    in file order.
+    """
+    if isinstance(source, (bytes, bytearray, memoryview)):
+        blob = bytes(source)
+    else:
+        with open(source, "rb") as f:
+            blob = f.read()
+    if len(blob) < 8:
+        raise FormatError(f"file is {len(blob)} bytes, shorter than the 8-byte header length")
+    if len(blob) > MAX_FILE:
+        raise FormatError(f"file is {len(blob)} bytes, over the {MAX_FILE}-byte limit")
+    (n,) = struct.unpack_from("<Q", blob, 0)
+    if n < 2 or n > MAX_HEADER or 8 + n > len(blob):
+        raise FormatError(f"header length {n} is outside 2 .. {MAX_HEADER} or past the end of the file")
+    try:
+        header = json.loads(blob[8:8 + n].decode("utf-8"))
+    except (UnicodeDecodeError, ValueError) as e:
+        raise FormatError(f"header is not valid JSON: {e}") from None
+    if not isinstance(header, dict):
+        raise FormatError("header is not a JSON object")
+    meta = header.pop("__metadata__", None)
+    if not isinstance(meta, dict):
+        raise FormatError("header has no __metadata__ object")
+    data = memoryview(blob)[8 + n:]
+    tensors, spans, total = {}, [], 0
+    for name, t in header.items():
+        if not isinstance(t, dict) or set(t) != {"dtype", "shape", "data_offsets"}:
+            raise FormatError(f"tensor {name!r}: needs exactly dtype, shape and data_offsets")
+        code = t["dtype"]
+        if code not in DTYPES:
+            raise FormatError(f"tensor {name!r}: dtype {code!r} is not F32 or F16")
+        shape = t["shape"]
+        if (not isinstance(shape, list) or not 1 <= len(shape) <= 4
+                or not all(isinstance(d, int) and 1 <= d <= MAX_DIM for d in shape)):
+            raise FormatError(f"tensor {name!r}: shape {shape} needs 1 to 4 dimensions of 1 .. {MAX_DIM}")
+        offs = t["data_offsets"]
+        if (not isinstance(offs, list) or len(offs) != 2 or not all(isinstance(o, int) for o in offs)
+                or not 0 <= offs[0] <= offs[1] <= len(data)):
+            raise FormatError(f"tensor {name!r}: data_offsets {offs} outside the {len(data)}-byte data section")
+        count = math.prod(shape)
+        if count * DTYPES[code].itemsize != offs[1] - offs[0]:
+            raise FormatError(f"tensor {name!r}: shape {shape} of {code} needs {count * DTYPES[code].itemsize}"
+                              f" bytes, data_offsets give {offs[1] - offs[0]}")
+        arr = np.frombuffer(data[offs[0]:offs[1]], dtype=DTYPES[code]).reshape(shape)
+        if not np.all(np.isfinite(arr)):
+            raise FormatError(f"tensor {name!r}: holds a non-finite value")
+        spans.append((offs[0], offs[1], name))
+        total += count
+        tensors[name] = (code, arr.astype(np.float32))
+    spans.sort()
+    for (b0, e0, n0), (b1, e1, n1) in zip(spans, spans[1:]):
+        if b1 < e0:
+            raise FormatError(f"tensors {n0!r} and {n1!r} overlap")
+    if total > MAX_PARAMS:
+        raise FormatError(f"{total} parameters, over the limit of {MAX_PARAMS}")
+    return meta, tensors

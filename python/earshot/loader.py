@@ -1,0 +1,210 @@
+"""Effect file -> earshot.Effect of reference modules (the exporter's inverse).
+
+Checks the effect description against dsp/FORMAT.md as it goes; every
+rejection is a container.FormatError naming the field or tensor at fault.
+"""
+
+import json
+import math
+
+import torch
+
+from . import container
+from .container import FormatError
+from .exporter import CREDIT_KEYS, LAYER_NAME
+from .modules import (ACTIVATIONS, GRU, LSTM, Activation, CausalConv1d, Effect, FiLM, Gated, Linear, TCNBlock,
+                      WaveNet, _activation_object, control_spec)
+
+
+def read(source):
+    """(effect description dict, {tensor name: (dtype code, float32 numpy array)}) from a path or bytes."""
+    meta, tensors = container.read(source)
+    if "earshot.effect" not in meta:
+        raise FormatError("__metadata__ has no 'earshot.effect' entry: not an earshot effect file")
+    try:
+        desc = json.loads(meta["earshot.effect"])
+    except (TypeError, ValueError) as e:
+        raise FormatError(f"__metadata__.earshot.effect is not valid JSON: {e}") from None
+    if not isinstance(desc, dict):
+        raise FormatError("__metadata__.earshot.effect is not a JSON object")
+    return desc, tensors
+
+
+def _int(layer, key, lo=1, hi=65536, default=None):
+    v = layer.get(key, default)
+    if isinstance(v, bool) or not isinstance(v, int) or not lo <= v <= hi:
+        raise FormatError(f"layer {layer.get('name')!r}: {key} must be an integer in {lo} .. {hi}, got {v!r}")
+    return v
+
+
+def _bool(layer, key, default):
+    v = layer.get(key, default)
+    if not isinstance(v, bool):
+        raise FormatError(f"layer {layer.get('name')!r}: {key} must be true or false, got {v!r}")
+    return v
+
+
+def _film_args(name, f):
+    hidden = f.get("hidden", [])
+    if (not isinstance(hidden, list) or len(hidden) > 4
+            or not all(isinstance(h, int) and not isinstance(h, bool) and 1 <= h <= 65536 for h in hidden)):
+        raise FormatError(f"layer {name!r}: film hidden must be a list of 0 .. 4 widths, got {hidden!r}")
+    act = f.get("activation", "relu")
+    if act not in ACTIVATIONS:
+        raise FormatError(f"layer {name!r}: film activation {act!r} is not one of {', '.join(ACTIVATIONS)}")
+    return hidden, act
+
+
+def build_layer(layer, width, n_controls):
+    """(module, output width) for one layer object."""
+    name, kind = layer.get("name"), layer.get("type")
+    declared = layer.get("in", layer.get("channels"))
+    if declared != width:
+        raise FormatError(f"layer {name!r}: declares {declared!r} input channels, receives {width}")
+    if kind == "linear":
+        out = _int(layer, "out")
+        return Linear(width, out, bias=_bool(layer, "bias", True)), out
+    if kind == "conv1d":
+        out = _int(layer, "out")
+        return CausalConv1d(width, out, _int(layer, "kernel"), _int(layer, "dilation", default=1),
+                            _bool(layer, "bias", True)), out
+    if kind in ("lstm", "gru"):
+        h = _int(layer, "hidden")
+        cls = LSTM if kind == "lstm" else GRU
+        return cls(width, h, _int(layer, "num_layers", 1, 8, 1), _bool(layer, "bias", True)), h
+    if kind == "activation":
+        fn = layer.get("fn")
+        if fn not in ACTIVATIONS:
+            raise FormatError(f"layer {name!r}: fn {fn!r} is not one of {', '.join(ACTIVATIONS)}")
+        try:
+            return Activation(width, fn, layer.get("slope", 0.01), layer.get("min", -1.0),
+                              layer.get("max", 1.0)), width
+        except ValueError as e:
+            raise FormatError(f"layer {name!r}: {e}") from None
+    if kind == "gated":
+        if width % 2:
+            raise FormatError(f"layer {name!r}: gated needs an even channel count, got {width}")
+        return Gated(width), width // 2
+    if kind == "film":
+        if n_controls < 1:
+            raise FormatError(f"layer {name!r}: film needs at least one control")
+        hidden, act = _film_args(name, layer)
+        return FiLM(width, n_controls, hidden, act), width
+    if kind == "wavenet":
+        c, s = _int(layer, "channels"), _int(layer, "skip")
+        dil = layer.get("dilations")
+        if (not isinstance(dil, list) or not 1 <= len(dil) <= 64
+                or not all(isinstance(d, int) and not isinstance(d, bool) and d >= 1 for d in dil)):
+            raise FormatError(f"layer {name!r}: dilations must be a list of 1 .. 64 integers >= 1")
+        return WaveNet(width, c, s, _int(layer, "kernel"), dil, _bool(layer, "bias", True)), s
+    if kind == "tcn":
+        out = _int(layer, "out")
+        film = layer.get("film")
+        if film is not None:
+            if not isinstance(film, dict):
+                raise FormatError(f"layer {name!r}: film must be an object")
+            if n_controls < 1:
+                raise FormatError(f"layer {name!r}: film needs at least one control")
+            hidden, act = _film_args(name, film)
+            film = {"hidden": hidden, "activation": act}
+        try:
+            act = _activation_object(layer.get("activation", {"fn": "leaky_relu", "slope": 0.2}))
+        except ValueError as e:
+            raise FormatError(f"layer {name!r}: {e}") from None
+        return TCNBlock(width, out, _int(layer, "kernel"), _int(layer, "dilation", default=1),
+                        _bool(layer, "bias", True), act, film, n_controls,
+                        _bool(layer, "residual", True)), out
+    raise FormatError(f"layer {name!r}: unknown type {kind!r}")
+
+
+def _check_desc(desc):
+    if desc.get("format") != "earshot-effect":
+        raise FormatError(f"format is {desc.get('format')!r}, expected 'earshot-effect'")
+    v = desc.get("version")
+    if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+        raise FormatError(f"version {v!r} is not a positive integer")
+    if v > 1:
+        raise FormatError(f"version {v} is too new (this loader reads version 1)")
+    rate = desc.get("sample_rate")
+    if isinstance(rate, bool) or not isinstance(rate, (int, float)) or not math.isfinite(rate) \
+            or not 8000 <= rate <= 384000:
+        raise FormatError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
+    ctl = desc.get("controls", [])
+    if not isinstance(ctl, list) or len(ctl) > 16:
+        raise FormatError("controls must be an array of at most 16 controls")
+    credits = desc.get("credits")
+    if not isinstance(credits, dict) or not isinstance(credits.get("title"), str):
+        raise FormatError("credits.title is required")
+    for k, val in credits.items():
+        if k not in CREDIT_KEYS:
+            raise FormatError(f"credits: unknown field {k!r}")
+        items = val if k == "authors" else [val]
+        if k == "authors" and not isinstance(val, list):
+            raise FormatError("credits.authors must be an array of strings")
+        if not all(isinstance(x, str) and len(x) <= 1000 for x in items):
+            raise FormatError(f"credits.{k} must hold strings of at most 1000 characters")
+    g = desc.get("graph")
+    if not isinstance(g, dict):
+        raise FormatError("graph is missing")
+    layers = g.get("layers")
+    if not isinstance(layers, list) or not 1 <= len(layers) <= 256:
+        raise FormatError("graph.layers must be an array of 1 .. 256 layers")
+    if not isinstance(g.get("input_skip", False), bool):
+        raise FormatError("graph.input_skip must be true or false")
+
+
+def load(source):
+    """Rebuilds the Effect stored at `source` (path or bytes), in eval mode.
+
+    The Effect carries sample_rate, controls and credits from the file, and
+    `weight_dtypes` ({tensor name: "F32" | "F16"}); F16 weights arrive as the
+    float32 values the core converts them to.
+    """
+    desc, tensors = read(source)
+    _check_desc(desc)
+    try:
+        specs = [control_spec(c) for c in desc.get("controls", [])]
+    except ValueError as e:
+        raise FormatError(f"controls: {e}") from None
+    g = desc["graph"]
+    inputs = g.get("inputs")
+    if not isinstance(inputs, list) or inputs.count("audio") != 1:
+        raise FormatError("graph.inputs must be an array holding 'audio' once")
+    names, mods, width, seen = [], [], len(inputs), set()
+    for layer in g["layers"]:
+        if not isinstance(layer, dict):
+            raise FormatError("every graph.layers entry must be an object")
+        name = layer.get("name")
+        if not isinstance(name, str) or not LAYER_NAME.match(name) or name in seen:
+            raise FormatError(f"layer name {name!r} must be unique, 1 .. 64 characters of [A-Za-z0-9_.]")
+        seen.add(name)
+        m, width = build_layer(layer, width, len(specs))
+        names.append(name)
+        mods.append(m)
+    if width != 1:
+        raise FormatError(f"the last layer ({names[-1]!r}) gives {width} channels; it must give exactly 1")
+    try:
+        effect = Effect(dict(zip(names, mods)), inputs=inputs, controls=specs,
+                        input_skip=g.get("input_skip", False), sample_rate=desc["sample_rate"],
+                        credits=desc["credits"])
+    except ValueError as e:
+        raise FormatError(f"graph: {e}") from None
+    wanted = {}
+    for name, m in zip(names, mods):
+        for pname, p in m.named_parameters():
+            wanted[f"{name}.{pname}"] = p
+    missing = [n for n in wanted if n not in tensors]
+    extra = [n for n in tensors if n not in wanted]
+    if missing:
+        raise FormatError(f"tensor {missing[0]!r} is missing" + (f" (and {len(missing) - 1} more)" if len(missing) > 1 else ""))
+    if extra:
+        raise FormatError(f"tensor {extra[0]!r} is not used by the graph" + (f" (and {len(extra) - 1} more)" if len(extra) > 1 else ""))
+    with torch.no_grad():
+        for n, p in wanted.items():
+            arr = tensors[n][1]
+            if list(arr.shape) != list(p.shape):
+                raise FormatError(f"tensor {n!r}: shape {list(arr.shape)}, the graph needs {list(p.shape)}")
+            p.copy_(torch.from_numpy(arr.copy()))
+    effect.weight_dtypes = {n: tensors[n][0] for n in tensors}
+    effect.description = desc
+    return effect.eval()
