@@ -1,0 +1,69 @@
+// Activation functions on the processing path, written in the Ops vocabulary.
+//
+// No libm: glibc and Emscripten's libc differ in the last bits, and the core
+// must give the same samples everywhere. tanh is a 13/6-degree odd/even
+// rational function (the coefficients of Eigen 3.4's generic_fast_tanh_float,
+// MPL-2.0), clamped where it reaches ±1 in float; below |x| < 0.0004 it
+// returns x. sigmoid(x) = 0.5 + 0.5·tanh(x/2) (an exact identity), so its
+// absolute error is half of tanh's. Measured accuracy: tests/native/activation_test.cpp
+// and dsp/ACCURACY.md.
+#pragma once
+
+template <class A>
+inline typename Ops<A>::V tanh_v(typename Ops<A>::V a) {
+  using O = Ops<A>;
+  using V = typename O::V;
+  const V clamp = O::set1(7.90531110763549805f);
+  const V x = O::max(O::min(a, clamp), O::set1(-7.90531110763549805f));
+  const V x2 = O::mul(x, x);
+  V p = O::madd(x2, O::set1(-2.76076847742355e-16f), O::set1(2.00018790482477e-13f));
+  p = O::madd(x2, p, O::set1(-8.60467152213735e-11f));
+  p = O::madd(x2, p, O::set1(5.12229709037114e-08f));
+  p = O::madd(x2, p, O::set1(1.48572235717979e-05f));
+  p = O::madd(x2, p, O::set1(6.37261928875436e-04f));
+  p = O::madd(x2, p, O::set1(4.89352455891786e-03f));
+  p = O::mul(x, p);
+  V q = O::madd(x2, O::set1(1.19825839466702e-06f), O::set1(1.18534705686654e-04f));
+  q = O::madd(x2, q, O::set1(2.26843463243900e-03f));
+  q = O::madd(x2, q, O::set1(4.89352518554385e-03f));
+  return O::select(O::lt(O::abs(a), O::set1(0.0004f)), a, O::div(p, q));
+}
+
+template <class A>
+inline typename Ops<A>::V sigmoid_v(typename Ops<A>::V x) {
+  using O = Ops<A>;
+  const auto half = O::set1(0.5f);
+  return O::madd(half, tanh_v<A>(O::mul(half, x)), half);
+}
+
+template <class A>
+inline typename Ops<A>::V softsign_v(typename Ops<A>::V x) {
+  using O = Ops<A>;
+  return O::div(x, O::add(O::set1(1.0f), O::abs(x)));
+}
+
+template <class A>
+inline typename Ops<A>::V act_v(const ActSpec& p, typename Ops<A>::V x) {
+  using O = Ops<A>;
+  switch (p.fn) {
+    case ActFn::tanh: return tanh_v<A>(x);
+    case ActFn::sigmoid: return sigmoid_v<A>(x);
+    case ActFn::relu: return O::select(O::gt(x, O::set1(0.0f)), x, O::set1(0.0f));
+    case ActFn::leaky_relu: return O::select(O::gt(x, O::set1(0.0f)), x, O::mul(x, O::set1(p.slope)));
+    case ActFn::softsign: return softsign_v<A>(x);
+    case ActFn::hardtanh: return O::max(O::min(x, O::set1(p.hi)), O::set1(p.lo));
+    case ActFn::identity: break;
+  }
+  return x;
+}
+
+// y[0..n) = f(x[0..n)); x and y may alias. Vector body, scalar tail: the same
+// operations, so the split point never changes a value.
+template <class A>
+inline void activate(const ActSpec& p, const float* x, float* y, int n) {
+  using O = Ops<A>;
+  using S = Ops<scalar_arch>;
+  int t = 0;
+  for (; t + O::W <= n; t += O::W) O::store(y + t, act_v<A>(p, O::load(x + t)));
+  for (; t < n; ++t) y[t] = act_v<scalar_arch>(p, S::load(x + t));
+}

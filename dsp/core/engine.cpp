@@ -1,0 +1,462 @@
+// The stream behind the C ABI: input gain, dry path, resampling between host
+// and model rate, control smoothing, the per-variant runner, dry/wet mix,
+// output gain, and the non-finite guard. Everything is allocated in
+// earshot_create; earshot_process only computes.
+//
+// Signal path per host sample block (split internally into sub-blocks of at
+// most kSub host samples; the result never depends on the split):
+//   x = in · g_in
+//   dry = x delayed by the stream latency
+//   wet = down(runner(up(x)))          (up/down only when the rates differ)
+//   out = (dry · (1 − w) + wet · w) · g_out
+#include <algorithm>
+#include <cmath>
+#include <cstring>
+#include <new>
+#include <string>
+#include <vector>
+
+#include "earshot/earshot.h"
+#include "model.hpp"
+#include "resampler.hpp"
+#include "runner.hpp"
+
+#define RAPIDJSON_HAS_STDSTRING 1
+#include <rapidjson/stringbuffer.h>
+#include <rapidjson/writer.h>
+
+namespace earshot {
+namespace {
+
+constexpr int kSub = 256;            // host samples per internal sub-block
+constexpr double kParamRampMs = 20;  // mix and gain smoothing
+
+// A linear ramp (dsp/FORMAT.md, "Control smoothing"): each sample first
+// steps, then is used; the last step lands exactly on the target.
+struct Ramp {
+  float cur = 0, target = 0, inc = 0;
+  int left = 0, steps = 0;
+
+  void init(float v, int ramp_steps) {
+    cur = target = v;
+    inc = 0;
+    left = 0;
+    steps = ramp_steps;
+  }
+  void set(float v) {
+    target = v;
+    if (steps <= 0) {
+      cur = v;
+      left = 0;
+      return;
+    }
+    inc = (target - cur) / float(steps);
+    left = steps;
+  }
+  float next() {
+    if (left > 0) {
+      --left;
+      cur = left == 0 ? target : cur + inc;
+    }
+    return cur;
+  }
+  void jump() {
+    cur = target;
+    left = 0;
+  }
+};
+
+// exp in double with + − × ÷ only (and exact scaling by 2ⁿ), so dB→gain is
+// the same on every platform. |x| ≤ 20 here.
+double exp_det(double x) {
+  const double ln2 = 0.69314718055994530942;
+  const double k = x / ln2;
+  const int n = int(k >= 0 ? k + 0.5 : k - 0.5);
+  const double r = x - n * ln2;
+  double term = 1, sum = 1;
+  for (int i = 1; i < 24; ++i) {
+    term = term * r / i;
+    sum += term;
+  }
+  return std::ldexp(sum, n);  // exact
+}
+
+float db_to_gain(float db) { return float(exp_det(double(db) * 0.11512925464970228420)); }  // ln(10)/20
+
+bool finite_all(const float* x, int n) {
+  // x − x is 0 for finite x and NaN otherwise; summing the flags stays exact.
+  float acc = 0;
+  for (int i = 0; i < n; ++i) acc += x[i] - x[i];
+  return acc == 0;
+}
+
+}  // namespace
+}  // namespace earshot
+
+using namespace earshot;
+
+struct earshot_stream {
+  std::shared_ptr<const Model> model;
+  std::unique_ptr<Runner> runner;
+  int host_rate = 48000;
+  bool resampling = false;
+  Resampler up, down;
+
+  // Host-rate FIFO after the down-resampler, pre-filled with `prefill` zeros
+  // so it never runs dry (the two resamplers' output counts can lag the input
+  // count by a few samples).
+  std::vector<float> fifo;
+  int fifo_read = 0, fifo_count = 0, prefill = 0;
+
+  std::vector<Ramp> controls;
+  std::vector<float> ctl;  // [n_controls][kChunk]
+  Ramp mix, gain_in, gain_out;
+  float mix_target = 1, in_db = 0, out_db = 0;
+
+  std::vector<float> dry_line;  // latency + 1 samples
+  int dry_pos = 0;
+  int latency = 0;
+
+  std::vector<float> x, dry, model_in, model_out, resampled;
+  unsigned nonfinite = 0;
+  std::string info;
+
+  void fifo_push(const float* v, int n) {
+    const int cap = int(fifo.size());
+    int w = (fifo_read + fifo_count) % cap;
+    for (int i = 0; i < n; ++i) {
+      fifo[size_t(w)] = v[i];
+      if (++w == cap) w = 0;
+    }
+    fifo_count += n;
+  }
+  void fifo_pop(float* v, int n) {
+    const int cap = int(fifo.size());
+    const int have = std::min(n, fifo_count);
+    for (int i = 0; i < have; ++i) {
+      v[i] = fifo[size_t(fifo_read)];
+      if (++fifo_read == cap) fifo_read = 0;
+    }
+    fifo_count -= have;
+    for (int i = have; i < n; ++i) v[i] = 0;  // never reached when prefill is right
+  }
+
+  void reset_state() {
+    runner->reset();
+    if (resampling) {
+      up.reset();
+      down.reset();
+    }
+    std::fill(fifo.begin(), fifo.end(), 0.0f);
+    fifo_read = 0;
+    fifo_count = resampling ? prefill : 0;
+    std::fill(dry_line.begin(), dry_line.end(), 0.0f);
+    dry_pos = 0;
+    for (auto& r : controls) r.jump();
+    mix.jump();
+    gain_in.jump();
+    gain_out.jump();
+  }
+
+  void run_model(int m, bool& bad) {
+    const int nctl = int(controls.size());
+    for (int off = 0; off < m; off += kChunk) {
+      const int c = std::min(kChunk, m - off);
+      for (int i = 0; i < nctl; ++i) {
+        float* row = ctl.data() + size_t(i) * kChunk;
+        for (int t = 0; t < c; ++t) row[t] = controls[size_t(i)].next();
+      }
+      runner->process(model_in.data() + off, ctl.data(), model_out.data() + off, c);
+      if (!finite_all(model_out.data() + off, c)) bad = true;
+    }
+  }
+
+  void process(const float* in, float* out, int n) {
+    bool bad = false;
+    for (int off = 0; off < n; off += kSub) {
+      const int k = std::min(kSub, n - off);
+      for (int t = 0; t < k; ++t) x[size_t(t)] = in[off + t] * gain_in.next();
+      const int L = int(dry_line.size());
+      for (int t = 0; t < k; ++t) {
+        dry_line[size_t(dry_pos)] = x[size_t(t)];
+        int r = dry_pos + 1;
+        if (r == L) r = 0;
+        dry[size_t(t)] = dry_line[size_t(r)];  // written `latency` samples ago
+        dry_pos = r;
+      }
+      const float* wet;
+      if (resampling) {
+        const int m = up.process(x.data(), k, model_in.data());
+        run_model(m, bad);
+        const int produced = down.process(model_out.data(), m, resampled.data());
+        fifo_push(resampled.data(), produced);
+        fifo_pop(resampled.data(), k);
+        wet = resampled.data();
+      } else {
+        std::copy(x.begin(), x.begin() + k, model_in.begin());
+        run_model(k, bad);
+        wet = model_out.data();
+      }
+      for (int t = 0; t < k; ++t) {
+        const float w = mix.next();
+        const float y = dry[size_t(t)] * (1.0f - w) + wet[t] * w;
+        out[off + t] = y * gain_out.next();
+      }
+    }
+    if (bad || !finite_all(out, n)) {
+      std::fill(out, out + n, 0.0f);
+      reset_state();
+      ++nonfinite;
+    }
+  }
+};
+
+namespace {
+
+void write_error(char* error, size_t cap, const std::string& msg) {
+  if (!error || cap == 0) return;
+  const size_t n = std::min(cap - 1, msg.size());
+  std::memcpy(error, msg.data(), n);
+  error[n] = 0;
+}
+
+std::string make_info(const earshot_stream& s) {
+  const Model& m = *s.model;
+  rapidjson::StringBuffer sb;
+  rapidjson::Writer<rapidjson::StringBuffer> w(sb);
+  w.StartObject();
+  w.Key("effect");
+  w.RawValue(m.description.data(), m.description.size(), rapidjson::kObjectType);
+  w.Key("title");
+  w.String(m.title);
+  w.Key("variant");
+  w.String(s.runner->variant());
+  w.Key("model_rate");
+  w.Double(m.sample_rate);
+  w.Key("host_rate");
+  w.Int(s.host_rate);
+  w.Key("latency");
+  w.Int(s.latency);
+  w.Key("parameters");
+  w.Int64(m.parameters);
+  w.Key("macs_per_sample");
+  w.Int64(m.macs_per_sample);
+  w.Key("recurrent");
+  w.Bool(m.recurrent);
+  w.Key("receptive_field");
+  if (m.recurrent)
+    w.Null();
+  else
+    w.Int64(m.receptive_field);
+  w.Key("input_skip");
+  w.Bool(m.input_skip);
+  w.Key("layers");
+  w.StartArray();
+  static const char* names[] = {"linear", "conv1d", "lstm", "gru", "activation", "gated", "film", "wavenet", "tcn"};
+  for (const LayerSpec& L : m.layers) {
+    w.StartObject();
+    w.Key("name");
+    w.String(L.name);
+    w.Key("type");
+    w.String(names[int(L.type)]);
+    w.Key("in");
+    w.Int(L.in);
+    w.Key("out");
+    w.Int(L.out);
+    int64_t p = 0;
+    for (auto& kv : L.params) p += int64_t(kv.second.size());
+    w.Key("parameters");
+    w.Int64(p);
+    if (L.type == LayerType::lstm || L.type == LayerType::gru) {
+      w.Key("hidden");
+      w.Int(L.hidden);
+      w.Key("num_layers");
+      w.Int(L.num_layers);
+    }
+    if (L.type == LayerType::conv1d || L.type == LayerType::tcn || L.type == LayerType::wavenet) {
+      w.Key("kernel");
+      w.Int(L.kernel);
+    }
+    if (L.type == LayerType::conv1d || L.type == LayerType::tcn) {
+      w.Key("dilation");
+      w.Int(L.dilation);
+    }
+    if (L.type == LayerType::wavenet) {
+      w.Key("channels");
+      w.Int(L.channels);
+      w.Key("dilations");
+      w.StartArray();
+      for (int d : L.dilations) w.Int(d);
+      w.EndArray();
+    }
+    if (L.has_film) {
+      w.Key("film");
+      w.Bool(true);
+    }
+    w.EndObject();
+  }
+  w.EndArray();
+  w.EndObject();
+  return sb.GetString();
+}
+
+earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate, const char* variant, char* error,
+                       size_t error_cap) {
+  std::string err;
+  if (!(host_rate >= 8000 && host_rate <= 384000) || host_rate != std::floor(host_rate)) {
+    write_error(error, error_cap, "host sample rate must be a whole number of Hz from 8000 to 384000");
+    return nullptr;
+  }
+  auto model = load_model(bytes, len, err);
+  if (!model) {
+    write_error(error, error_cap, err);
+    return nullptr;
+  }
+  std::unique_ptr<earshot_stream> s(new earshot_stream);
+  s->model = model;
+  s->runner = make_runner(model, variant ? variant : "", err);
+  if (!s->runner) {
+    write_error(error, error_cap, err);
+    return nullptr;
+  }
+  s->host_rate = int(host_rate);
+  const int model_rate = int(model->sample_rate);
+  s->resampling = s->host_rate != model_rate;
+  double latency = 0;
+  int max_model = kSub;
+  if (s->resampling) {
+    if (!s->up.init(s->host_rate, model_rate, err) || !s->down.init(model_rate, s->host_rate, err)) {
+      write_error(error, error_cap, err);
+      return nullptr;
+    }
+    max_model = s->up.max_output(kSub);
+    const int max_back = s->down.max_output(max_model);
+    s->prefill = 2 + (s->host_rate + model_rate - 1) / model_rate;
+    s->fifo.assign(size_t(s->prefill + max_back + 2 * kSub), 0.0f);
+    s->fifo_count = s->prefill;
+    latency = s->up.delay_in_input_samples() + s->down.delay_in_input_samples() * s->host_rate / model_rate +
+              s->prefill;
+    s->resampled.assign(size_t(std::max(max_back, kSub)), 0.0f);
+  }
+  s->latency = int(latency + 0.5);
+  s->dry_line.assign(size_t(s->latency + 1), 0.0f);
+  s->x.assign(kSub, 0.0f);
+  s->dry.assign(kSub, 0.0f);
+  s->model_in.assign(size_t(max_model), 0.0f);
+  s->model_out.assign(size_t(max_model), 0.0f);
+  s->ctl.assign(size_t(std::max<size_t>(1, model->controls.size())) * kChunk, 0.0f);
+  for (const ControlSpec& c : model->controls) {
+    Ramp r;
+    r.init(c.def, int(c.smoothing_ms / 1000.0 * model->sample_rate + 0.5));
+    s->controls.push_back(r);
+  }
+  const int pr = int(kParamRampMs / 1000.0 * s->host_rate + 0.5);
+  s->mix.init(1.0f, pr);
+  s->gain_in.init(1.0f, pr);
+  s->gain_out.init(1.0f, pr);
+  s->info = make_info(*s);
+  return s.release();
+}
+
+}  // namespace
+
+extern "C" {
+
+earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                               char* error, size_t error_cap) {
+#if defined(__cpp_exceptions)
+  try {
+    return create(bytes, len, host_rate, variant, error, error_cap);
+  } catch (const std::bad_alloc&) {
+    write_error(error, error_cap, "out of memory while loading the effect");
+  } catch (...) {
+    write_error(error, error_cap, "internal error while loading the effect");
+  }
+  return nullptr;
+#else
+  return create(bytes, len, host_rate, variant, error, error_cap);
+#endif
+}
+
+int earshot_process(earshot_stream* s, const float* in, float* out, int n) {
+  if (!s || !in || !out || n < 1 || n > EARSHOT_MAX_BLOCK) return 0;
+  s->process(in, out, n);
+  return n;
+}
+
+int earshot_control_count(const earshot_stream* s) { return s ? int(s->controls.size()) : 0; }
+
+int earshot_control_index(const earshot_stream* s, const char* name) {
+  if (!s || !name) return -1;
+  for (size_t i = 0; i < s->model->controls.size(); ++i)
+    if (s->model->controls[i].name == name) return int(i);
+  return -1;
+}
+
+int earshot_set_control(earshot_stream* s, int index, float value) {
+  if (!s) return EARSHOT_ERR_ARGUMENT;
+  if (index < 0 || index >= int(s->controls.size())) return EARSHOT_ERR_INDEX;
+  if (!std::isfinite(value)) return EARSHOT_ERR_NOT_FINITE;
+  const ControlSpec& c = s->model->controls[size_t(index)];
+  if (value < c.min || value > c.max) return EARSHOT_ERR_RANGE;
+  s->controls[size_t(index)].set(value);
+  return EARSHOT_OK;
+}
+
+float earshot_get_control(const earshot_stream* s, int index) {
+  if (!s || index < 0 || index >= int(s->controls.size())) return 0.0f;
+  return s->controls[size_t(index)].target;
+}
+
+int earshot_set_mix(earshot_stream* s, float wet) {
+  if (!s) return EARSHOT_ERR_ARGUMENT;
+  if (!std::isfinite(wet)) return EARSHOT_ERR_NOT_FINITE;
+  if (wet < 0 || wet > 1) return EARSHOT_ERR_RANGE;
+  s->mix_target = wet;
+  s->mix.set(wet);
+  return EARSHOT_OK;
+}
+
+int earshot_set_gain(earshot_stream* s, float input_db, float output_db) {
+  if (!s) return EARSHOT_ERR_ARGUMENT;
+  if (!std::isfinite(input_db) || !std::isfinite(output_db)) return EARSHOT_ERR_NOT_FINITE;
+  if (input_db < -60 || input_db > 24 || output_db < -60 || output_db > 24) return EARSHOT_ERR_RANGE;
+  s->in_db = input_db;
+  s->out_db = output_db;
+  s->gain_in.set(db_to_gain(input_db));
+  s->gain_out.set(db_to_gain(output_db));
+  return EARSHOT_OK;
+}
+
+void earshot_reset(earshot_stream* s) {
+  if (s) s->reset_state();
+}
+
+int earshot_latency(const earshot_stream* s) { return s ? s->latency : 0; }
+
+const char* earshot_info(const earshot_stream* s) { return s ? s->info.c_str() : "{}"; }
+
+const char* earshot_variant(const earshot_stream* s) { return s ? s->runner->variant() : ""; }
+
+unsigned earshot_nonfinite_count(const earshot_stream* s) { return s ? s->nonfinite : 0; }
+
+const char* earshot_status_text(int status) {
+  switch (status) {
+    case EARSHOT_OK: return "ok";
+    case EARSHOT_ERR_ARGUMENT: return "bad argument (null stream or pointer, or block size outside 1..65536)";
+    case EARSHOT_ERR_INDEX: return "control index out of range";
+    case EARSHOT_ERR_NOT_FINITE: return "value is not a finite number";
+    case EARSHOT_ERR_RANGE: return "value outside the allowed range";
+    default: return "unknown status";
+  }
+}
+
+void earshot_destroy(earshot_stream* s) { delete s; }
+
+}  // extern "C"
+
+// Test hook (declared in tests): every stored state value of the stream's runner.
+void earshot_test_state_values(const earshot_stream* s, std::vector<float>& out) {
+  out.clear();
+  if (s) s->runner->state_values(out);
+}

@@ -1,0 +1,276 @@
+// Dense kernels, written once against the Ops vocabulary (simd.hpp) and
+// compiled per variant. Each output element is computed as
+//   acc = start; for each product in a fixed order: acc = w·x + acc
+// whatever the vector width, so every variant gives the same bits (no FMA in
+// parity variants, no horizontal reductions). Vector loops cover the bulk; a
+// scalar loop with the same operations covers the tail.
+#pragma once
+
+// Causal (dilated) convolution over a chunk, vectorised over time.
+// w: [out][in][K] (PyTorch layout), b: [out] or null. x[i] points at sample 0
+// of input channel i, with at least (K−1)·d valid samples before it.
+// y: out rows, row stride ys; y[o][t] = b[o] + Σ_k Σ_i w[o][i][k]·x[i][t − (K−1−k)·d].
+template <class A>
+inline void conv_time(const float* w, const float* b, int out, int in, int K, int d, const float* const* x,
+                      float* y, int ys, int n) {
+  using O = Ops<A>;
+  using S = Ops<scalar_arch>;
+  using V = typename O::V;
+  constexpr int W = O::W;
+  for (int o = 0; o < out; ++o) {
+    const float* wo = w + size_t(o) * in * K;
+    const float bo = b ? b[o] : 0.0f;
+    float* yo = y + size_t(o) * ys;
+    int t = 0;
+    for (; t + 4 * W <= n; t += 4 * W) {
+      V a0 = O::set1(bo), a1 = a0, a2 = a0, a3 = a0;
+      for (int k = 0; k < K; ++k) {
+        const int off = (K - 1 - k) * d;
+        for (int i = 0; i < in; ++i) {
+          const V wv = O::set1(wo[i * K + k]);
+          const float* p = x[i] + t - off;
+          a0 = O::madd(wv, O::load(p), a0);
+          a1 = O::madd(wv, O::load(p + W), a1);
+          a2 = O::madd(wv, O::load(p + 2 * W), a2);
+          a3 = O::madd(wv, O::load(p + 3 * W), a3);
+        }
+      }
+      O::store(yo + t, a0);
+      O::store(yo + t + W, a1);
+      O::store(yo + t + 2 * W, a2);
+      O::store(yo + t + 3 * W, a3);
+    }
+    for (; t + W <= n; t += W) {
+      V a0 = O::set1(bo);
+      for (int k = 0; k < K; ++k) {
+        const int off = (K - 1 - k) * d;
+        for (int i = 0; i < in; ++i) a0 = O::madd(O::set1(wo[i * K + k]), O::load(x[i] + t - off), a0);
+      }
+      O::store(yo + t, a0);
+    }
+    for (; t < n; ++t) {
+      float a0 = bo;
+      for (int k = 0; k < K; ++k) {
+        const int off = (K - 1 - k) * d;
+        for (int i = 0; i < in; ++i) a0 = S::madd(wo[i * K + k], x[i][t - off], a0);
+      }
+      yo[t] = a0;
+    }
+  }
+}
+
+// acc[r] += Σ_i wt[i][r]·x[i] for r in [0, rows): a matrix-vector product in
+// column (axpy) form. wt is the transposed weight, [in][rows].
+template <class A>
+inline void gemv_cols(const float* wt, int rows, const float* x, int in, float* acc) {
+  using O = Ops<A>;
+  using S = Ops<scalar_arch>;
+  using V = typename O::V;
+  constexpr int W = O::W;
+  constexpr int R = 8;  // vectors held in registers across the whole column loop
+  int r = 0;
+  for (; r + R * W <= rows; r += R * W) {
+    V a[R];
+    for (int j = 0; j < R; ++j) a[j] = O::load(acc + r + j * W);
+    for (int i = 0; i < in; ++i) {
+      const V xv = O::set1(x[i]);
+      const float* p = wt + size_t(i) * rows + r;
+      for (int j = 0; j < R; ++j) a[j] = O::madd(O::load(p + j * W), xv, a[j]);
+    }
+    for (int j = 0; j < R; ++j) O::store(acc + r + j * W, a[j]);
+  }
+  for (; r + W <= rows; r += W) {
+    V a0 = O::load(acc + r);
+    for (int i = 0; i < in; ++i) a0 = O::madd(O::load(wt + size_t(i) * rows + r), O::set1(x[i]), a0);
+    O::store(acc + r, a0);
+  }
+  for (; r < rows; ++r) {
+    float a0 = acc[r];
+    for (int i = 0; i < in; ++i) a0 = S::madd(wt[size_t(i) * rows + r], x[i], a0);
+    acc[r] = a0;
+  }
+}
+
+// y[0..n) = a[0..n) + b[0..n)
+template <class A>
+inline void add_rows(const float* a, const float* b, float* y, int n) {
+  using O = Ops<A>;
+  int t = 0;
+  for (; t + O::W <= n; t += O::W) O::store(y + t, O::add(O::load(a + t), O::load(b + t)));
+  for (; t < n; ++t) y[t] = a[t] + b[t];
+}
+
+// Input history of a causal convolution: per channel a linear buffer holding
+// the last (K−1)·d samples before the current chunk, then the chunk. When the
+// write position reaches the end, the tail is moved to the front (amortised:
+// the spare room is at least 8 chunks). Values are flushed of subnormals on write.
+struct History {
+  int channels = 0, len = 0, cap = 0, pos = 0;
+  std::vector<float> buf;  // [channels][cap]
+
+  void init(int ch, int history) {
+    channels = ch;
+    len = history;
+    cap = history + std::max(8 * kChunk, history);
+    buf.assign(size_t(ch) * cap, 0.0f);
+    pos = len;
+  }
+  void reset() {
+    std::fill(buf.begin(), buf.end(), 0.0f);
+    pos = len;
+  }
+  // Appends n samples of each channel (rows of stride kChunk); fills ptr[i]
+  // with the address of sample 0 of the chunk in channel i.
+  template <class A>
+  void push(const float* in, int n, const float** ptr) {
+    using O = Ops<A>;
+    if (pos + n > cap) {
+      for (int c = 0; c < channels; ++c) {
+        float* row = buf.data() + size_t(c) * cap;
+        std::memmove(row, row + pos - len, sizeof(float) * size_t(len));
+      }
+      pos = len;
+    }
+    for (int c = 0; c < channels; ++c) {
+      float* dst = buf.data() + size_t(c) * cap + pos;
+      const float* src = in + size_t(c) * kChunk;
+      int t = 0;
+      for (; t + O::W <= n; t += O::W) O::store(dst + t, flush_tiny<A>(O::load(src + t)));
+      for (; t < n; ++t) dst[t] = flush_tiny<scalar_arch>(src[t]);
+      ptr[c] = dst;
+    }
+  }
+  void advance(int n) { pos += n; }
+  // The stored state: the last `len` samples of each channel.
+  void values(std::vector<float>& out) const {
+    for (int c = 0; c < channels; ++c) {
+      const float* row = buf.data() + size_t(c) * cap;
+      out.insert(out.end(), row + pos - len, row + pos);
+    }
+  }
+};
+
+// A convolution with its weights and, when K > 1, its input history.
+template <class A>
+struct ConvUnit {
+  int in = 0, out = 0, K = 1, d = 1;
+  const float* w = nullptr;
+  const float* b = nullptr;
+  History hist;
+  std::vector<const float*> ptr;
+
+  void init(const Tensor* weight, const Tensor* bias, int dilation) {
+    out = weight->shape[0];
+    in = weight->shape[1];
+    K = weight->shape.size() > 2 ? weight->shape[2] : 1;
+    d = dilation;
+    w = weight->data.data();
+    b = bias ? bias->data.data() : nullptr;
+    if (K > 1) hist.init(in, (K - 1) * d);
+    ptr.resize(size_t(in));
+  }
+  // x: in rows of stride kChunk; y: out rows of stride kChunk.
+  void run(const float* x, float* y, int n) {
+    if (K > 1) {
+      hist.template push<A>(x, n, ptr.data());
+    } else {
+      for (int i = 0; i < in; ++i) ptr[size_t(i)] = x + size_t(i) * kChunk;
+    }
+    conv_time<A>(w, b, out, in, K, d, ptr.data(), y, kChunk, n);
+    if (K > 1) hist.advance(n);
+  }
+  void reset() {
+    if (K > 1) hist.reset();
+  }
+  void values(std::vector<float>& v) const {
+    if (K > 1) hist.values(v);
+  }
+};
+
+// The FiLM generator: [γ; β] = MLP(controls), evaluated per sample only when
+// the control vector changes (plain float loops in a fixed order: the same in
+// every variant). Fills gamma/beta rows (stride kChunk) for a chunk.
+struct FilmGen {
+  const MlpSpec* spec = nullptr;
+  int C = 0, nctl = 0;
+  std::vector<float> last, cur, a, b, gb;  // gb: [2C] for the last control vector
+  std::vector<float> gamma, beta;          // [C][kChunk]
+  bool valid = false, filled_const = false;
+
+  void init(const MlpSpec& s, int channels) {
+    spec = &s;
+    C = channels;
+    nctl = s.widths.front();
+    last.assign(size_t(nctl), 0.0f);
+    cur.assign(size_t(nctl), 0.0f);
+    int wmax = 0;
+    for (int wdt : s.widths) wmax = std::max(wmax, wdt);
+    a.assign(size_t(wmax), 0.0f);
+    b.assign(size_t(wmax), 0.0f);
+    gb.assign(size_t(2 * C), 0.0f);
+    gamma.assign(size_t(C) * kChunk, 0.0f);
+    beta.assign(size_t(C) * kChunk, 0.0f);
+  }
+  void reset() { valid = filled_const = false; }
+  void eval() {
+    using S = Ops<scalar_arch>;
+    std::copy(cur.begin(), cur.end(), a.begin());
+    const size_t nl = spec->weight.size();
+    for (size_t j = 0; j < nl; ++j) {
+      const int ni = spec->widths[j], no = spec->widths[j + 1];
+      const float* w = spec->weight[j]->data.data();
+      const float* bias = spec->bias[j]->data.data();
+      for (int o = 0; o < no; ++o) {
+        float acc = bias[o];
+        for (int i = 0; i < ni; ++i) acc = S::madd(w[size_t(o) * ni + i], a[size_t(i)], acc);
+        b[size_t(o)] = j + 1 < nl ? act_v<scalar_arch>(spec->act, acc) : acc;
+      }
+      std::swap(a, b);
+    }
+    std::copy(a.begin(), a.begin() + 2 * C, gb.begin());
+  }
+  void fill(const float* ctl, int n) {
+    bool changed = !valid;
+    for (int t = 0; t < n; ++t) {
+      bool diff = !valid;
+      for (int c = 0; c < nctl; ++c) {
+        cur[size_t(c)] = ctl[size_t(c) * kChunk + t];
+        if (cur[size_t(c)] != last[size_t(c)]) diff = true;
+      }
+      if (diff) {
+        eval();
+        last = cur;
+        valid = true;
+        changed = true;
+        filled_const = false;
+      }
+      if (!filled_const)
+        for (int c = 0; c < C; ++c) {
+          gamma[size_t(c) * kChunk + t] = gb[size_t(c)];
+          beta[size_t(c) * kChunk + t] = gb[size_t(C + c)];
+        }
+    }
+    if (!changed && !filled_const) {
+      // Whole chunk constant: rows now hold the constant for every t ≤ n; fill
+      // the rest so later chunks can skip filling.
+      for (int c = 0; c < C; ++c) {
+        std::fill(gamma.begin() + size_t(c) * kChunk, gamma.begin() + size_t(c + 1) * kChunk, gb[size_t(c)]);
+        std::fill(beta.begin() + size_t(c) * kChunk, beta.begin() + size_t(c + 1) * kChunk, gb[size_t(C + c)]);
+      }
+      filled_const = true;
+    }
+  }
+  // y = γ ⊙ y + β over C rows of stride kChunk.
+  template <class A>
+  void apply(float* y, int n) const {
+    using O = Ops<A>;
+    for (int c = 0; c < C; ++c) {
+      float* row = y + size_t(c) * kChunk;
+      const float* g = gamma.data() + size_t(c) * kChunk;
+      const float* be = beta.data() + size_t(c) * kChunk;
+      int t = 0;
+      for (; t + O::W <= n; t += O::W) O::store(row + t, O::madd(O::load(g + t), O::load(row + t), O::load(be + t)));
+      for (; t < n; ++t) row[t] = Ops<scalar_arch>::madd(g[t], row[t], be[t]);
+    }
+  }
+};

@@ -1,0 +1,77 @@
+// GRU, one or more layers, PyTorch's equations and gate order (r, z, n):
+//   r = σ(W_ir x + b_ir + W_hr h + b_hr)
+//   z = σ(W_iz x + b_iz + W_hz h + b_hz)
+//   n = tanh(W_in x + b_in + r ⊙ (W_hn h + b_hn))
+//   h' = (1 − z) ⊙ n + z ⊙ h
+// The input and hidden products are kept apart (the hidden bias of n sits
+// inside the reset product). Weights transposed for column-form products.
+#pragma once
+
+template <class A>
+struct GruLayer : Layer {
+  struct Level {
+    int in;
+    std::vector<float> wih_t, whh_t, bih, bhh;  // [in][3H], [H][3H], [3H], [3H]
+    std::vector<float> h;                       // state, [H]
+  };
+  int in, H;
+  std::vector<Level> lv;
+  std::vector<float> gi, gh, x;
+
+  explicit GruLayer(const LayerSpec& s) : in(s.in), H(s.hidden) {
+    for (int l = 0; l < s.num_layers; ++l) {
+      Level L;
+      L.in = l == 0 ? in : H;
+      const std::string k = std::to_string(l);
+      L.wih_t = transpose(*s.param("weight_ih_l" + k));
+      L.whh_t = transpose(*s.param("weight_hh_l" + k));
+      L.bih = s.bias ? s.param("bias_ih_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
+      L.bhh = s.bias ? s.param("bias_hh_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
+      L.h.assign(size_t(H), 0.0f);
+      lv.push_back(std::move(L));
+    }
+    gi.assign(size_t(3 * H), 0.0f);
+    gh.assign(size_t(3 * H), 0.0f);
+    x.assign(size_t(std::max(in, H)), 0.0f);
+  }
+
+  void run(const float* xin, float* y, int n, const Ctx&) override {
+    using O = Ops<A>;
+    using S = Ops<scalar_arch>;
+    constexpr int W = O::W;
+    for (int t = 0; t < n; ++t) {
+      for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
+      const float* cur = x.data();
+      for (auto& L : lv) {
+        std::copy(L.bih.begin(), L.bih.end(), gi.begin());
+        std::copy(L.bhh.begin(), L.bhh.end(), gh.begin());
+        gemv_cols<A>(L.wih_t.data(), 3 * H, cur, L.in, gi.data());
+        gemv_cols<A>(L.whh_t.data(), 3 * H, L.h.data(), H, gh.data());
+        float* h = L.h.data();
+        int j = 0;
+        const auto one = O::set1(1.0f);
+        for (; j + W <= H; j += W) {
+          const auto r = sigmoid_v<A>(O::add(O::load(&gi[size_t(j)]), O::load(&gh[size_t(j)])));
+          const auto zz = sigmoid_v<A>(O::add(O::load(&gi[size_t(H + j)]), O::load(&gh[size_t(H + j)])));
+          const auto nn = tanh_v<A>(O::madd(r, O::load(&gh[size_t(2 * H + j)]), O::load(&gi[size_t(2 * H + j)])));
+          const auto hv = O::add(O::mul(O::sub(one, zz), nn), O::mul(zz, O::load(h + j)));
+          O::store(h + j, flush_tiny<A>(hv));
+        }
+        for (; j < H; ++j) {
+          const float r = sigmoid_v<scalar_arch>(gi[size_t(j)] + gh[size_t(j)]);
+          const float zz = sigmoid_v<scalar_arch>(gi[size_t(H + j)] + gh[size_t(H + j)]);
+          const float nn = tanh_v<scalar_arch>(S::madd(r, gh[size_t(2 * H + j)], gi[size_t(2 * H + j)]));
+          h[j] = flush_tiny<scalar_arch>((1.0f - zz) * nn + zz * h[j]);
+        }
+        cur = h;
+      }
+      for (int j = 0; j < H; ++j) y[size_t(j) * kChunk + t] = cur[j];
+    }
+  }
+  void reset() override {
+    for (auto& L : lv) std::fill(L.h.begin(), L.h.end(), 0.0f);
+  }
+  void state(std::vector<float>& v) const override {
+    for (auto& L : lv) v.insert(v.end(), L.h.begin(), L.h.end());
+  }
+};

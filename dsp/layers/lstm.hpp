@@ -1,0 +1,86 @@
+// LSTM, one or more layers, PyTorch's equations and gate order (i, f, g, o):
+//   z = W_ih x + b_ih + W_hh h + b_hh
+//   i = σ(z_i), f = σ(z_f), g = tanh(z_g), o = σ(z_o)
+//   c' = f ⊙ c + i ⊙ g,  h' = o ⊙ tanh(c')
+// Weights are stored transposed ([in][4H]) so the products run in column
+// (axpy) form over the 4H gate rows; b_ih + b_hh are summed once at load.
+#pragma once
+
+template <class A>
+struct LstmLayer : Layer {
+  struct Level {
+    int in;
+    std::vector<float> wih_t, whh_t, bias;  // [in][4H], [H][4H], [4H]
+    std::vector<float> h, c;                // state, [H]
+  };
+  int in, H;
+  std::vector<Level> lv;
+  std::vector<float> z, x;  // [4H], input vector of one sample
+
+  explicit LstmLayer(const LayerSpec& s) : in(s.in), H(s.hidden) {
+    for (int l = 0; l < s.num_layers; ++l) {
+      Level L;
+      L.in = l == 0 ? in : H;
+      const std::string k = std::to_string(l);
+      L.wih_t = transpose(*s.param("weight_ih_l" + k));
+      L.whh_t = transpose(*s.param("weight_hh_l" + k));
+      L.bias.assign(size_t(4 * H), 0.0f);
+      if (s.bias) {
+        const auto& bi = s.param("bias_ih_l" + k)->data;
+        const auto& bh = s.param("bias_hh_l" + k)->data;
+        for (int r = 0; r < 4 * H; ++r) L.bias[size_t(r)] = bi[size_t(r)] + bh[size_t(r)];
+      }
+      L.h.assign(size_t(H), 0.0f);
+      L.c.assign(size_t(H), 0.0f);
+      lv.push_back(std::move(L));
+    }
+    z.assign(size_t(4 * H), 0.0f);
+    x.assign(size_t(std::max(in, H)), 0.0f);
+  }
+
+  void run(const float* xin, float* y, int n, const Ctx&) override {
+    using O = Ops<A>;
+    using S = Ops<scalar_arch>;
+    constexpr int W = O::W;
+    for (int t = 0; t < n; ++t) {
+      for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
+      const float* cur = x.data();
+      for (auto& L : lv) {
+        std::copy(L.bias.begin(), L.bias.end(), z.begin());
+        gemv_cols<A>(L.wih_t.data(), 4 * H, cur, L.in, z.data());
+        gemv_cols<A>(L.whh_t.data(), 4 * H, L.h.data(), H, z.data());
+        const float* zi = z.data();
+        const float* zf = zi + H;
+        const float* zg = zf + H;
+        const float* zo = zg + H;
+        int j = 0;
+        for (; j + W <= H; j += W) {
+          const auto ig = O::mul(sigmoid_v<A>(O::load(zi + j)), tanh_v<A>(O::load(zg + j)));
+          const auto c = flush_tiny<A>(O::madd(sigmoid_v<A>(O::load(zf + j)), O::load(L.c.data() + j), ig));
+          O::store(L.c.data() + j, c);
+          O::store(L.h.data() + j, flush_tiny<A>(O::mul(sigmoid_v<A>(O::load(zo + j)), tanh_v<A>(c))));
+        }
+        for (; j < H; ++j) {
+          const float ig = S::mul(sigmoid_v<scalar_arch>(zi[j]), tanh_v<scalar_arch>(zg[j]));
+          const float c = flush_tiny<scalar_arch>(S::madd(sigmoid_v<scalar_arch>(zf[j]), L.c[size_t(j)], ig));
+          L.c[size_t(j)] = c;
+          L.h[size_t(j)] = flush_tiny<scalar_arch>(S::mul(sigmoid_v<scalar_arch>(zo[j]), tanh_v<scalar_arch>(c)));
+        }
+        cur = L.h.data();
+      }
+      for (int j = 0; j < H; ++j) y[size_t(j) * kChunk + t] = cur[j];
+    }
+  }
+  void reset() override {
+    for (auto& L : lv) {
+      std::fill(L.h.begin(), L.h.end(), 0.0f);
+      std::fill(L.c.begin(), L.c.end(), 0.0f);
+    }
+  }
+  void state(std::vector<float>& v) const override {
+    for (auto& L : lv) {
+      v.insert(v.end(), L.h.begin(), L.h.end());
+      v.insert(v.end(), L.c.begin(), L.c.end());
+    }
+  }
+};
