@@ -294,7 +294,8 @@ def build(model, sample_rate=None, controls=None, credits=None, dtype="f32", inp
             if a.ndim > 4 or any(d > container.MAX_DIM for d in a.shape):
                 raise ExportError(f"{path}: tensor {tname} shape {list(a.shape)} exceeds the format's limits")
             if dtype == "f16":
-                h = a.astype(np.float16)
+                with np.errstate(over="ignore"):
+                    h = a.astype(np.float16)
                 if not np.all(np.isfinite(h)):
                     raise ExportError(f"{path}: tensor {tname} overflows float16 (|w| > 65504); export as f32")
                 a = h
