@@ -324,8 +324,9 @@ class Builder {
   }
 
   bool conv_params(LayerSpec& L, const std::string& p, int out, int in, int k, bool bias) {
-    if (!take(L, p + ".weight", {out, in, k})) return false;
-    return !bias || take(L, p + ".bias", {out});
+    const std::string pre = p.empty() ? "" : p + ".";
+    if (!take(L, pre + "weight", {out, in, k})) return false;
+    return !bias || take(L, pre + "bias", {out});
   }
 
   bool layer(const Value& o, int width, int n_controls, Model& m, std::set<std::string>& names, int index) {
