@@ -192,8 +192,9 @@ class WaveNet(nn.Module):
         return out
 
 
-def _activation_object(a):
-    """Completes a TCN activation object: slope for leaky_relu, min/max for hardtanh."""
+def _activation_object(a, default_slope=0.2):
+    """Completes a TCN activation object: slope for leaky_relu (default 0.2 when the
+    object omits it, as the core reads it), min/max for hardtanh."""
     if isinstance(a, str):
         a = {"fn": a}
     if not isinstance(a, dict) or a.get("fn") not in ACTIVATIONS:
@@ -203,7 +204,7 @@ def _activation_object(a):
         raise ValueError(f"TCN activation: unknown field(s) {sorted(unknown)}")
     out = {"fn": a["fn"]}
     if a["fn"] == "leaky_relu":
-        out["slope"] = float(a.get("slope", 0.01))
+        out["slope"] = float(a.get("slope", default_slope))
     if a["fn"] == "hardtanh":
         out["min"], out["max"] = float(a.get("min", -1.0)), float(a.get("max", 1.0))
         if not out["min"] < out["max"]:

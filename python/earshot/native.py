@@ -139,11 +139,13 @@ class Stream:
         self.close()
 
 
-def render(data, x, host_rate, events=(), block=512, variant=None):
+def render(data, x, host_rate, events=(), block=512, variant=None, info=None):
     """Processes x through a fresh stream, applying control events
     (sample, control index, value) just before the block that starts at `sample`
-    (events are split into their own block boundaries)."""
+    (blocks are cut at event positions). `info`, a dict, receives the variant used."""
     with Stream(data, host_rate, variant) as s:
+        if info is not None:
+            info["variant"] = s.variant
         x = np.ascontiguousarray(x, dtype=np.float32)
         cuts = sorted({0, len(x)} | {int(p) for p, _, _ in events})
         out = []

@@ -80,14 +80,16 @@ def add_report_row(row):
 def pytest_sessionfinish(session, exitstatus):
     if not _report_rows:
         return
-    cols = ["case", "file", "n", "ESR core/f32", "max|e| core/f32", "ESR core/f64", "ESR f32/f64",
+    cols = ["case", "variant", "file", "n", "ESR core/f32", "max|e| core/f32", "ESR core/f64", "ESR f32/f64",
             "max|e| f32/f64", "target", "ok"]
     lines = ["earshot parity: native core (C ABI) vs PyTorch reference, ESR = sum(e^2)/sum(y^2) in dB",
-             f"library: {earshot.native.library_path()}", ""]
-    fmt = "{:<44} {:>4} {:>7} {:>12} {:>15} {:>12} {:>11} {:>14} {:>16} {:>3}"
+             f"library: {earshot.native.library_path()}",
+             "columns: core/f32 = core vs PyTorch float32 (the asserted figure), core/f64 = core vs PyTorch"
+             " float64, f32/f64 = PyTorch float32 vs float64 (PyTorch's own rounding error)", ""]
+    fmt = "{:<58} {:>7} {:>4} {:>7} {:>12} {:>15} {:>12} {:>11} {:>14} {:>16} {:>3}"
     lines.append(fmt.format(*cols))
     for r in _report_rows:
-        lines.append(fmt.format(r["case"], r["file"], r["n"], f"{r['esr32']:.1f}", f"{r['max32']:.2e}",
+        lines.append(fmt.format(r["case"], r.get("variant", "?"), r["file"], r["n"], f"{r['esr32']:.1f}", f"{r['max32']:.2e}",
                                 f"{r['esr64']:.1f}", f"{r['esr_ref']:.1f}", f"{r['max_ref']:.2e}",
                                 r["target"], "yes" if r["ok"] else "NO"))
     text = "\n".join(lines) + "\n"
