@@ -1,0 +1,116 @@
+// Shared pieces of the `earshot` command-line tool: argument parsing, the two
+// kinds of failure (a bad command line, a bad file), the effect file and the
+// stream handle. The tool reaches the core only through earshot.h (plus the
+// native variant helpers of native.hpp).
+#pragma once
+#include <cstdint>
+#include <memory>
+#include <stdexcept>
+#include <string>
+#include <utility>
+#include <vector>
+
+#ifndef RAPIDJSON_HAS_STDSTRING
+#define RAPIDJSON_HAS_STDSTRING 1
+#endif
+#include <rapidjson/document.h>
+
+#include "earshot/earshot.h"
+
+namespace earshot {
+namespace cli {
+
+// Exit codes (documented in docs/cli.md and `earshot --help`).
+constexpr int kExitOk = 0;
+constexpr int kExitCheckFailed = 1;  // verify: a parity or invariance check failed
+constexpr int kExitUsage = 2;        // bad command line
+constexpr int kExitInput = 3;        // unreadable or invalid effect or audio file, write failure
+
+// A bad command line: unknown option, missing or malformed value, ...
+struct UsageError : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+// A bad file or an I/O failure.
+struct InputError : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+
+// ---- arguments -------------------------------------------------------------
+
+struct OptionSpec {
+  const char* name;  // with the leading "--"
+  bool takes_value;
+};
+
+// Options may come before, between or after the positional arguments, as
+// `--name VALUE` or `--name=VALUE`; `--` ends the options.
+struct Args {
+  std::vector<std::string> positional;
+  std::vector<std::pair<std::string, std::string>> options;  // in command-line order
+
+  bool has(const std::string& name) const;
+  const std::string* last(const std::string& name) const;  // null when absent
+  std::vector<std::string> all(const std::string& name) const;
+};
+
+Args parse_args(const std::vector<std::string>& argv, const std::vector<OptionSpec>& specs);
+
+// Strict number parsing: the whole text must be the number, finite, in range.
+// `what` names the option in the error, e.g. "--block".
+double parse_number(const std::string& what, const std::string& text, double lo, double hi);
+long parse_integer(const std::string& what, const std::string& text, long lo, long hi);
+
+// ---- effect file and stream ------------------------------------------------
+
+// Reads a whole effect file; InputError naming the file and the OS reason.
+std::vector<unsigned char> read_effect_file(const std::string& path);
+
+// Checks a --variant value against the variants compiled in and this CPU.
+void check_variant(const std::string& variant);
+
+// The native variants this CPU can run, in preference order (scalar first).
+std::vector<std::string> supported_variants();
+
+// Owns one earshot_stream.
+class Stream {
+ public:
+  // InputError "<path>: <core message>" on failure.
+  Stream(const std::vector<unsigned char>& bytes, double host_rate, const std::string& variant,
+         const std::string& path);
+  ~Stream() { earshot_destroy(s_); }
+  Stream(const Stream&) = delete;
+  Stream& operator=(const Stream&) = delete;
+
+  earshot_stream* get() const { return s_; }
+  int latency() const { return earshot_latency(s_); }
+  // Processes any number of samples in blocks of at most `block`.
+  void process(const float* in, float* out, size_t n, int block);
+  rapidjson::Document info() const;
+
+ private:
+  earshot_stream* s_ = nullptr;
+};
+
+// Applies --control NAME=VALUE settings; UsageError naming the control, the
+// value and the core's status text (with the allowed range) when refused.
+void apply_controls(Stream& s, const std::vector<std::string>& settings);
+
+// Field access on the info JSON with defaults for absent members.
+double json_number(const rapidjson::Value& v, const char* key, double fallback = 0);
+std::string json_string(const rapidjson::Value& v, const char* key, const std::string& fallback = "");
+
+// ---- output helpers --------------------------------------------------------
+
+std::string format_fixed(double v, int decimals);
+std::string format_count(int64_t v);  // 1234567 → "1 234 567"
+std::string hex64(uint64_t v);
+
+// ---- commands --------------------------------------------------------------
+
+int cmd_info(const std::vector<std::string>& argv);
+int cmd_render(const std::vector<std::string>& argv);
+int cmd_bench(const std::vector<std::string>& argv);
+int cmd_verify(const std::vector<std::string>& argv);
+
+}  // namespace cli
+}  // namespace earshot

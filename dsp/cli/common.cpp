@@ -1,0 +1,262 @@
+// Argument parsing, the effect file reader and the stream handle shared by
+// every command.
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <fstream>
+
+#include "cli.hpp"
+#include "native.hpp"
+
+namespace earshot {
+namespace cli {
+
+// ---- arguments -------------------------------------------------------------
+
+bool Args::has(const std::string& name) const {
+  for (const auto& o : options)
+    if (o.first == name) return true;
+  return false;
+}
+
+const std::string* Args::last(const std::string& name) const {
+  const std::string* v = nullptr;
+  for (const auto& o : options)
+    if (o.first == name) v = &o.second;
+  return v;
+}
+
+std::vector<std::string> Args::all(const std::string& name) const {
+  std::vector<std::string> v;
+  for (const auto& o : options)
+    if (o.first == name) v.push_back(o.second);
+  return v;
+}
+
+Args parse_args(const std::vector<std::string>& argv, const std::vector<OptionSpec>& specs) {
+  Args a;
+  bool options_done = false;
+  for (size_t i = 0; i < argv.size(); ++i) {
+    const std::string& t = argv[i];
+    if (options_done || t.size() < 2 || t[0] != '-' || t == "-") {
+      a.positional.push_back(t);
+      continue;
+    }
+    if (t == "--") {
+      options_done = true;
+      continue;
+    }
+    std::string name = t, value;
+    bool inline_value = false;
+    const size_t eq = t.find('=');
+    if (t.compare(0, 2, "--") == 0 && eq != std::string::npos) {
+      name = t.substr(0, eq);
+      value = t.substr(eq + 1);
+      inline_value = true;
+    }
+    if (name == "-h") name = "--help";
+    const OptionSpec* spec = nullptr;
+    for (const OptionSpec& s : specs)
+      if (name == s.name) spec = &s;
+    if (!spec) throw UsageError("unknown option '" + name + "'");
+    if (spec->takes_value) {
+      if (!inline_value) {
+        if (i + 1 >= argv.size()) throw UsageError("option " + name + " needs a value");
+        value = argv[++i];
+      }
+    } else if (inline_value) {
+      throw UsageError("option " + name + " takes no value");
+    }
+    a.options.emplace_back(name, value);
+  }
+  return a;
+}
+
+static std::string trim_number(double v) {
+  char buf[64];
+  std::snprintf(buf, sizeof buf, "%.10g", v);
+  return buf;
+}
+
+double parse_number(const std::string& what, const std::string& text, double lo, double hi) {
+  const char* s = text.c_str();
+  char* end = nullptr;
+  errno = 0;
+  const double v = std::strtod(s, &end);
+  if (text.empty() || end == s || *end != '\0' || std::isspace((unsigned char)text[0]))
+    throw UsageError(what + ": '" + text + "' is not a number");
+  if (!std::isfinite(v) || errno == ERANGE) throw UsageError(what + ": '" + text + "' is not a finite number");
+  if (v < lo || v > hi)
+    throw UsageError(what + ": " + text + " is outside the allowed range " + trim_number(lo) + " .. " +
+                     trim_number(hi));
+  return v;
+}
+
+long parse_integer(const std::string& what, const std::string& text, long lo, long hi) {
+  const char* s = text.c_str();
+  char* end = nullptr;
+  errno = 0;
+  const long v = std::strtol(s, &end, 10);
+  if (text.empty() || end == s || *end != '\0' || std::isspace((unsigned char)text[0]))
+    throw UsageError(what + ": '" + text + "' is not a whole number");
+  if (errno == ERANGE || v < lo || v > hi)
+    throw UsageError(what + ": " + text + " is outside the allowed range " + std::to_string(lo) + " .. " +
+                     std::to_string(hi));
+  return v;
+}
+
+// ---- effect file -----------------------------------------------------------
+
+// dsp/FORMAT.md: an effect file is at most 256 MiB. Checked here too so a huge
+// file is refused before it is read into memory.
+constexpr uintmax_t kEffectFileLimit = 256u << 20;
+
+std::vector<unsigned char> read_effect_file(const std::string& path) {
+  struct stat st;
+  if (::stat(path.c_str(), &st) != 0)
+    throw InputError("cannot read effect file '" + path + "': " + std::strerror(errno));
+  if (S_ISDIR(st.st_mode)) throw InputError("cannot read effect file '" + path + "': it is a directory");
+  if (S_ISREG(st.st_mode) && uintmax_t(st.st_size) > kEffectFileLimit)
+    throw InputError("effect file '" + path + "' is " + std::to_string(uintmax_t(st.st_size)) +
+                     " bytes, over the 268435456-byte (256 MiB) limit of the format");
+  std::FILE* f = std::fopen(path.c_str(), "rb");
+  if (!f) throw InputError("cannot read effect file '" + path + "': " + std::strerror(errno));
+  std::vector<unsigned char> bytes;
+  unsigned char buf[65536];
+  size_t got;
+  while ((got = std::fread(buf, 1, sizeof buf, f)) > 0) {
+    bytes.insert(bytes.end(), buf, buf + got);
+    if (bytes.size() > kEffectFileLimit) {
+      std::fclose(f);
+      throw InputError("effect file '" + path + "' is over the 268435456-byte (256 MiB) limit of the format");
+    }
+  }
+  const bool failed = std::ferror(f) != 0;
+  const int err = errno;
+  std::fclose(f);
+  if (failed) throw InputError("cannot read effect file '" + path + "': " + std::strerror(err));
+  return bytes;
+}
+
+std::vector<std::string> supported_variants() {
+  std::vector<std::string> v;
+  for (const std::string& n : native_variants())
+    if (variant_supported(n)) v.push_back(n);
+  return v;
+}
+
+void check_variant(const std::string& variant) {
+  const std::vector<std::string> all = native_variants();
+  if (std::find(all.begin(), all.end(), variant) == all.end()) {
+    std::string list;
+    for (const std::string& n : all) list += (list.empty() ? "" : ", ") + n;
+    throw UsageError("--variant: unknown variant '" + variant + "' (this build has " + list + ")");
+  }
+  if (!variant_supported(variant)) {
+    std::string list;
+    for (const std::string& n : supported_variants()) list += (list.empty() ? "" : ", ") + n;
+    throw UsageError("--variant: variant '" + variant + "' needs instructions this CPU does not have (it runs " +
+                     list + ")");
+  }
+}
+
+// ---- stream ----------------------------------------------------------------
+
+Stream::Stream(const std::vector<unsigned char>& bytes, double host_rate, const std::string& variant,
+               const std::string& path) {
+  char err[1024] = {0};
+  s_ = earshot_create(bytes.data(), bytes.size(), host_rate, variant.c_str(), err, sizeof err);
+  if (!s_) throw InputError(path + ": " + err);
+}
+
+void Stream::process(const float* in, float* out, size_t n, int block) {
+  for (size_t off = 0; off < n; off += size_t(block)) {
+    const int k = int(std::min<size_t>(size_t(block), n - off));
+    if (earshot_process(s_, in + off, out + off, k) != k)
+      throw std::runtime_error("earshot_process refused a block of " + std::to_string(k) + " samples");
+  }
+}
+
+rapidjson::Document Stream::info() const {
+  rapidjson::Document d;
+  d.Parse(earshot_info(s_));
+  if (d.HasParseError() || !d.IsObject()) throw std::runtime_error("the core's info JSON does not parse");
+  return d;
+}
+
+double json_number(const rapidjson::Value& v, const char* key, double fallback) {
+  if (!v.IsObject()) return fallback;
+  auto it = v.FindMember(key);
+  return it != v.MemberEnd() && it->value.IsNumber() ? it->value.GetDouble() : fallback;
+}
+
+std::string json_string(const rapidjson::Value& v, const char* key, const std::string& fallback) {
+  if (!v.IsObject()) return fallback;
+  auto it = v.FindMember(key);
+  return it != v.MemberEnd() && it->value.IsString() ? std::string(it->value.GetString()) : fallback;
+}
+
+void apply_controls(Stream& s, const std::vector<std::string>& settings) {
+  if (settings.empty()) return;
+  const rapidjson::Document info = s.info();
+  const rapidjson::Value* controls = nullptr;
+  if (info.HasMember("effect") && info["effect"].IsObject() && info["effect"].HasMember("controls") &&
+      info["effect"]["controls"].IsArray())
+    controls = &info["effect"]["controls"];
+  for (const std::string& setting : settings) {
+    const size_t eq = setting.find('=');
+    if (eq == std::string::npos || eq == 0)
+      throw UsageError("--control: expected NAME=VALUE, got '" + setting + "'");
+    const std::string name = setting.substr(0, eq), text = setting.substr(eq + 1);
+    const int index = earshot_control_index(s.get(), name.c_str());
+    if (index < 0) {
+      std::string list;
+      if (controls)
+        for (const auto& c : controls->GetArray()) list += (list.empty() ? "" : ", ") + json_string(c, "name");
+      throw UsageError("--control: this effect has no control named '" + name + "' (" +
+                       (list.empty() ? std::string("it has no controls") : "its controls: " + list) + ")");
+    }
+    const double v = parse_number("--control " + name, text, -HUGE_VAL, HUGE_VAL);
+    const int status = earshot_set_control(s.get(), index, float(v));
+    if (status != EARSHOT_OK) {
+      std::string range;
+      if (controls && index < int(controls->Size())) {
+        const rapidjson::Value& c = (*controls)[rapidjson::SizeType(index)];
+        range = " (" + name + " takes " + trim_number(json_number(c, "min")) + " .. " +
+                trim_number(json_number(c, "max")) + ")";
+      }
+      throw UsageError("--control " + setting + ": " + earshot_status_text(status) + range);
+    }
+  }
+}
+
+// ---- output helpers --------------------------------------------------------
+
+std::string format_fixed(double v, int decimals) {
+  char buf[64];
+  std::snprintf(buf, sizeof buf, "%.*f", decimals, v);
+  return buf;
+}
+
+std::string format_count(int64_t v) {
+  std::string digits = std::to_string(v < 0 ? -v : v), out;
+  for (size_t i = 0; i < digits.size(); ++i) {
+    if (i > 0 && (digits.size() - i) % 3 == 0) out += ' ';
+    out += digits[i];
+  }
+  return v < 0 ? "-" + out : out;
+}
+
+std::string hex64(uint64_t v) {
+  char buf[24];
+  std::snprintf(buf, sizeof buf, "%016llx", (unsigned long long)v);
+  return buf;
+}
+
+}  // namespace cli
+}  // namespace earshot

@@ -1,0 +1,254 @@
+// `earshot info FILE`: what an effect is and what it costs, from the core's
+// info JSON (earshot_info) of a stream made for the file.
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <string>
+#include <vector>
+
+#include "cli.hpp"
+#include "native.hpp"
+
+namespace earshot {
+namespace cli {
+namespace {
+
+const char* kHelp =
+    "usage: earshot info FILE [--json] [--rate HZ] [--variant V]\n"
+    "\n"
+    "Describes an effect file: credits, file size, model sample rate, the layer list\n"
+    "with channel shapes, parameter count, multiply-adds per sample, receptive field\n"
+    "(or 'recurrent' for LSTM/GRU graphs), latency, and the controls (name, unit,\n"
+    "range, default, smoothing time).\n"
+    "\n"
+    "options:\n"
+    "  --json        print the core's info JSON (earshot_info) instead, one line\n"
+    "  --rate HZ     host sample rate for the latency figure and the JSON\n"
+    "                (default: the model's rate, where the latency is 0; the text\n"
+    "                also shows 44100 and 48000 Hz)\n"
+    "  --variant V   CPU variant for the stream: scalar, sse4, avx2, avx2fma\n"
+    "                (default: the best bit-exact one this CPU runs)\n"
+    "  -h, --help    this text\n";
+
+const rapidjson::Value* member(const rapidjson::Value& v, const char* key) {
+  if (!v.IsObject()) return nullptr;
+  auto it = v.FindMember(key);
+  return it == v.MemberEnd() ? nullptr : &it->value;
+}
+
+std::string num(double v) {
+  char buf[64];
+  std::snprintf(buf, sizeof buf, "%.6g", v);
+  return buf;
+}
+
+std::string pad(const std::string& s, size_t w) { return s.size() >= w ? s : s + std::string(w - s.size(), ' '); }
+
+// The structural fields of one layer beyond its channel counts.
+std::string layer_detail(const rapidjson::Value& L, const rapidjson::Value* desc) {
+  const std::string type = json_string(L, "type");
+  std::string d;
+  if (type == "lstm" || type == "gru") {
+    const int layers = int(json_number(L, "num_layers", 1));
+    d = "hidden " + num(json_number(L, "hidden")) + ", " + std::to_string(layers) + (layers == 1 ? " layer" : " layers");
+  } else if (type == "conv1d" || type == "tcn") {
+    d = "kernel " + num(json_number(L, "kernel")) + ", dilation " + num(json_number(L, "dilation", 1));
+    if (type == "tcn" && member(L, "film")) d += ", FiLM";
+  } else if (type == "wavenet") {
+    d = "channels " + num(json_number(L, "channels")) + ", kernel " + num(json_number(L, "kernel"));
+    if (desc) d += ", skip " + num(json_number(*desc, "skip"));
+    if (const rapidjson::Value* ds = member(L, "dilations"); ds && ds->IsArray()) {
+      d += ", dilations";
+      for (const auto& x : ds->GetArray()) d += " " + num(x.GetDouble());
+    }
+  } else if (type == "activation" && desc) {
+    const std::string fn = json_string(*desc, "fn");
+    d = fn;
+    if (fn == "leaky_relu") d += " (slope " + num(json_number(*desc, "slope", 0.01)) + ")";
+    if (fn == "hardtanh") d += " (" + num(json_number(*desc, "min", -1)) + " .. " + num(json_number(*desc, "max", 1)) + ")";
+  } else if (type == "film" && desc) {
+    d = "MLP of the controls";
+    if (const rapidjson::Value* h = member(*desc, "hidden"); h && h->IsArray() && h->Size() > 0) {
+      d += ", hidden";
+      for (const auto& x : h->GetArray()) d += " " + num(x.GetDouble());
+    }
+  }
+  if (desc && (type == "linear" || type == "conv1d" || type == "lstm" || type == "gru")) {
+    if (const rapidjson::Value* b = member(*desc, "bias"); b && b->IsBool() && !b->GetBool())
+      d += d.empty() ? "no bias" : ", no bias";
+  }
+  return d;
+}
+
+std::string file_size_text(const std::string& path) {
+  struct stat st;
+  if (::stat(path.c_str(), &st) != 0) return "?";
+  const double b = double(st.st_size);
+  std::string s = format_count(int64_t(st.st_size)) + " bytes";
+  if (b >= 1024 * 1024)
+    s += " (" + format_fixed(b / (1024 * 1024), 1) + " MiB)";
+  else if (b >= 1024)
+    s += " (" + format_fixed(b / 1024, 1) + " KiB)";
+  return s;
+}
+
+}  // namespace
+
+int cmd_info(const std::vector<std::string>& argv) {
+  const Args a = parse_args(argv, {{"--help", false}, {"--json", false}, {"--rate", true}, {"--variant", true}});
+  if (a.has("--help")) {
+    std::fputs(kHelp, stdout);
+    return kExitOk;
+  }
+  if (a.positional.size() != 1)
+    throw UsageError(a.positional.empty() ? "missing the effect FILE" : "expected one effect FILE, got " +
+                                                                           std::to_string(a.positional.size()) +
+                                                                           " arguments");
+  double rate = 0;
+  if (const std::string* r = a.last("--rate")) rate = parse_number("--rate", *r, 8000, 384000);
+  if (rate != 0 && rate != std::floor(rate)) throw UsageError("--rate: " + *a.last("--rate") + " is not a whole number of Hz");
+  std::string variant;
+  if (const std::string* v = a.last("--variant")) {
+    variant = *v;
+    check_variant(variant);
+  }
+  const std::string path = a.positional[0];
+  const std::vector<unsigned char> bytes = read_effect_file(path);
+
+  // A first stream only to learn the model rate, then the one we describe.
+  double model_rate;
+  {
+    Stream probe(bytes, rate != 0 ? rate : 48000, variant, path);
+    model_rate = json_number(probe.info(), "model_rate", 48000);
+  }
+  const bool model_rate_whole = model_rate == std::floor(model_rate) && model_rate >= 8000 && model_rate <= 384000;
+  const double host = rate != 0 ? rate : (model_rate_whole ? model_rate : 48000);
+  Stream s(bytes, host, variant, path);
+  const rapidjson::Document info = s.info();
+
+  if (a.has("--json")) {
+    std::printf("%s\n", earshot_info(s.get()));
+    return kExitOk;
+  }
+
+  const rapidjson::Value empty(rapidjson::kObjectType);
+  const rapidjson::Value* effect = member(info, "effect");
+  if (!effect) effect = &empty;
+  const rapidjson::Value* credits = member(*effect, "credits");
+  if (!credits) credits = &empty;
+
+  std::printf("%s\n", json_string(info, "title", "(untitled)").c_str());
+  auto row = [](const char* k, const std::string& v) { std::printf("  %-17s %s\n", k, v.c_str()); };
+  row("file", path + ", " + file_size_text(path));
+  if (const rapidjson::Value* au = member(*credits, "authors"); au && au->IsArray() && au->Size() > 0) {
+    std::string list;
+    for (const auto& x : au->GetArray())
+      if (x.IsString()) list += (list.empty() ? "" : ", ") + std::string(x.GetString());
+    row(au->Size() == 1 ? "author" : "authors", list);
+  }
+  for (const char* k : {"paper", "code", "licence"})
+    if (!json_string(*credits, k).empty()) row(k, json_string(*credits, k));
+  row("format version", num(json_number(*effect, "version", 1)));
+  row("model rate", num(model_rate) + " Hz");
+  const int64_t params = int64_t(json_number(info, "parameters"));
+  const int64_t macs = int64_t(json_number(info, "macs_per_sample"));
+  row("parameters", format_count(params));
+  row("multiply-adds", format_count(macs) + " per sample (" + format_fixed(double(macs) * model_rate / 1e6, 2) +
+                           " million per second at " + num(model_rate) + " Hz)");
+  const rapidjson::Value* rf = member(info, "receptive_field");
+  const bool recurrent = member(info, "recurrent") && info["recurrent"].IsBool() && info["recurrent"].GetBool();
+  if (recurrent || !rf || !rf->IsNumber())
+    row("receptive field", "recurrent (LSTM/GRU state: unbounded)");
+  else
+    row("receptive field", format_count(rf->GetInt64()) + (rf->GetInt64() == 1 ? " sample (" : " samples (") +
+                               format_fixed(rf->GetDouble() / model_rate * 1000, 2) + " ms at the model rate)");
+  row("input skip", member(info, "input_skip") && info["input_skip"].IsBool() && info["input_skip"].GetBool()
+                        ? "yes (output = network + input)"
+                        : "no");
+
+  // Latency at the host rate in use and at the two common rates.
+  std::vector<double> rates = {host};
+  for (double r : {44100.0, 48000.0})
+    if (r != host) rates.push_back(r);
+  std::string lat;
+  for (double r : rates) {
+    int samples;
+    if (r == host) {
+      samples = s.latency();
+    } else {
+      try {
+        Stream t(bytes, r, variant, path);
+        samples = t.latency();
+      } catch (const InputError&) {
+        continue;  // this rate cannot be served; the stream in use can
+      }
+    }
+    if (!lat.empty()) lat += "; ";
+    lat += std::to_string(samples) + " samples at " + num(r) + " Hz";
+    if (samples > 0) lat += " (" + format_fixed(samples / r * 1000, 2) + " ms)";
+    if (r == model_rate) lat += " (model rate: no resampling)";
+  }
+  row("latency", lat);
+  std::string vars;
+  for (const std::string& v : supported_variants()) vars += (vars.empty() ? "" : ", ") + v;
+  row("variant", json_string(info, "variant") + " (this CPU runs " + vars + ")");
+
+  // Layers.
+  const rapidjson::Value* layers = member(info, "layers");
+  const rapidjson::Value* graph = member(*effect, "graph");
+  const rapidjson::Value* dlayers = graph ? member(*graph, "layers") : nullptr;
+  const unsigned n_layers = layers && layers->IsArray() ? layers->Size() : 0;
+  std::printf("\nlayers (%u)\n", n_layers);
+  if (n_layers > 0) {
+    std::vector<std::vector<std::string>> rows;
+    rows.push_back({"#", "name", "type", "in -> out", "parameters", "details"});
+    for (unsigned i = 0; i < n_layers; ++i) {
+      const rapidjson::Value& L = (*layers)[i];
+      const rapidjson::Value* d = nullptr;
+      if (dlayers && dlayers->IsArray())
+        for (const auto& x : dlayers->GetArray())
+          if (json_string(x, "name") == json_string(L, "name")) d = &x;
+      rows.push_back({std::to_string(i), json_string(L, "name"), json_string(L, "type"),
+                      num(json_number(L, "in")) + " -> " + num(json_number(L, "out")),
+                      format_count(int64_t(json_number(L, "parameters"))), layer_detail(L, d)});
+    }
+    std::vector<size_t> w(rows[0].size(), 0);
+    for (const auto& r : rows)
+      for (size_t c = 0; c < r.size(); ++c) w[c] = std::max(w[c], r[c].size());
+    for (const auto& r : rows) {
+      std::string line = " ";
+      for (size_t c = 0; c < r.size(); ++c) line += " " + (c + 1 < r.size() ? pad(r[c], w[c]) : r[c]);
+      while (!line.empty() && line.back() == ' ') line.pop_back();
+      std::printf("%s\n", line.c_str());
+    }
+  }
+
+  // Controls.
+  const rapidjson::Value* controls = member(*effect, "controls");
+  const unsigned n_controls = controls && controls->IsArray() ? controls->Size() : 0;
+  std::printf("\ncontrols (%u)\n", n_controls);
+  if (n_controls == 0) {
+    std::printf("  none\n");
+  } else {
+    std::vector<std::vector<std::string>> rows;
+    rows.push_back({"name", "unit", "min", "max", "default", "smoothing"});
+    for (const auto& c : controls->GetArray())
+      rows.push_back({json_string(c, "name"), json_string(c, "unit").empty() ? "-" : json_string(c, "unit"),
+                      num(json_number(c, "min")), num(json_number(c, "max")), num(json_number(c, "default")),
+                      num(json_number(c, "smoothing_ms", 20)) + " ms"});
+    std::vector<size_t> w(rows[0].size(), 0);
+    for (const auto& r : rows)
+      for (size_t c = 0; c < r.size(); ++c) w[c] = std::max(w[c], r[c].size());
+    for (const auto& r : rows) {
+      std::string line = " ";
+      for (size_t c = 0; c < r.size(); ++c) line += " " + (c + 1 < r.size() ? pad(r[c], w[c]) : r[c]);
+      std::printf("%s\n", line.c_str());
+    }
+  }
+  return kExitOk;
+}
+
+}  // namespace cli
+}  // namespace earshot

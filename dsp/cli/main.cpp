@@ -1,0 +1,97 @@
+// `earshot`: the native command-line tool. Dispatches to one command per file
+// (info.cpp, render.cpp, bench.cpp, verify.cpp) and turns every failure into a
+// message on stderr and a documented exit code.
+#include <cstdio>
+#include <exception>
+#include <new>
+#include <string>
+#include <vector>
+
+#include "cli.hpp"
+
+#ifndef EARSHOT_VERSION
+#define EARSHOT_VERSION "0.1.0"
+#endif
+
+namespace {
+
+const char* kUsage =
+    "earshot " EARSHOT_VERSION " - run trained neural audio effects (.nfx effect files)\n"
+    "\n"
+    "usage: earshot COMMAND [ARGUMENTS] [OPTIONS]\n"
+    "\n"
+    "commands:\n"
+    "  info FILE            describe an effect: layers, parameters, cost, controls, credits\n"
+    "  render FILE IN OUT   run an audio file (WAV, FLAC, AIFF; mono or stereo) through an effect\n"
+    "  bench FILE           speed of every CPU variant, against its measured peak multiply-add rate\n"
+    "  verify FILE          check that the CPU variants give bit-identical output on a test signal\n"
+    "\n"
+    "options:\n"
+    "  -h, --help           this text; 'earshot COMMAND --help' describes a command\n"
+    "  --version            print the version\n"
+    "\n"
+    "exit codes: 0 success, 1 a verify check failed, 2 bad command line,\n"
+    "            3 unreadable or invalid effect or audio file, or a write failure\n";
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  using namespace earshot::cli;
+  std::vector<std::string> args(argv + 1, argv + argc);
+  if (args.empty()) {
+    std::fputs(kUsage, stderr);
+    return kExitUsage;
+  }
+  const std::string cmd = args[0];
+  if (cmd == "-h" || cmd == "--help" || cmd == "help") {
+    if (cmd == "help" && args.size() > 1) {
+      args = {args[1], "--help"};
+    } else {
+      std::fputs(kUsage, stdout);
+      return kExitOk;
+    }
+  }
+  if (cmd == "--version") {
+    std::printf("earshot %s\n", EARSHOT_VERSION);
+    return kExitOk;
+  }
+  const std::string name = args[0];
+  const std::vector<std::string> rest(args.begin() + 1, args.end());
+  int (*run)(const std::vector<std::string>&) = nullptr;
+  if (name == "info") run = cmd_info;
+  if (name == "render") run = cmd_render;
+  if (name == "bench") run = cmd_bench;
+  if (name == "verify") run = cmd_verify;
+  if (!run) {
+    if (!name.empty() && name[0] == '-')
+      std::fprintf(stderr, "earshot: unknown option '%s' (a command comes first: info, render, bench, verify)\n",
+                   name.c_str());
+    else
+      std::fprintf(stderr, "earshot: unknown command '%s' (commands: info, render, bench, verify)\n", name.c_str());
+    std::fputs("Run 'earshot --help' for usage.\n", stderr);
+    return kExitUsage;
+  }
+  try {
+    const int rc = run(rest);
+    if (std::fflush(stdout) != 0) {
+      std::fprintf(stderr, "earshot %s: cannot write to standard output\n", name.c_str());
+      return kExitInput;
+    }
+    return rc;
+  } catch (const UsageError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name.c_str(), e.what(),
+                 name.c_str());
+    return kExitUsage;
+  } catch (const InputError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot %s: %s\n", name.c_str(), e.what());
+    return kExitInput;
+  } catch (const std::bad_alloc&) {
+    std::fprintf(stderr, "earshot %s: out of memory\n", name.c_str());
+    return kExitInput;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "earshot %s: internal error: %s\n", name.c_str(), e.what());
+    return kExitInput;
+  }
+}
