@@ -80,6 +80,56 @@ def _load_model(spec, state_dict):
     return model.eval()
 
 
+def verify(args):
+    """`verify`: core (through the C ABI) against the PyTorch reference of the same file."""
+    import numpy as np
+    from . import native
+    from .modules import smooth_controls
+    from .signals import programme
+
+    blob = open(args.file, "rb").read()
+    model = load(blob)
+    rate = model.sample_rate
+    x = programme(args.seconds, rate)
+    n = len(x)
+    events = []
+    if not args.fixed_controls:
+        rng = np.random.default_rng(7)
+        for frac in (0.25, 0.5, 0.75):
+            for i, c in enumerate(model.controls):
+                events.append((int(frac * n), i, float(rng.uniform(c["min"], c["max"]))))
+    ctl = None
+    if model.controls:
+        ctl = smooth_controls(n, rate, [c["default"] for c in model.controls], events,
+                              [c["smoothing_ms"] for c in model.controls])[None]
+    used = {}
+    y = native.render(blob, x, rate, events, block=args.block, variant=args.variant, info=used).astype(np.float64)
+
+    def ref(m, dtype):
+        import copy
+        m = copy.deepcopy(m).eval().to(dtype)
+        with torch.no_grad():
+            return m(torch.from_numpy(x).to(dtype)[None], None if ctl is None else ctl.to(dtype))[0].double().numpy()
+
+    def row(label, r):
+        num, den = np.sum((r - y) ** 2), np.sum(r ** 2)
+        e = -np.inf if num == 0 else 10 * np.log10(num / max(den, 1e-300))
+        mx = float(np.max(np.abs(r - y)))
+        print(f"  {label:<34} ESR {e:8.1f} dB   max abs {mx:.2e}")
+        return e, mx
+
+    print(f"{args.file}: {n} samples at {rate} Hz, core variant {used['variant']}, blocks of {args.block}, "
+          f"{len(events)} control changes")
+    e32, m32 = row("core vs PyTorch float32 (file)", ref(model, torch.float32))
+    row("core vs PyTorch float64 (file)", ref(model, torch.float64))
+    if args.model:
+        orig = _load_model(args.model, None)
+        row("core vs your model, float32", ref(orig, torch.float32))
+    ok = e32 <= args.esr and m32 <= args.max_abs
+    print(f"{'PASS' if ok else 'FAIL'}: limits ESR <= {args.esr} dB, max abs <= {args.max_abs:g}")
+    return 0 if ok else 1
+
+
 def main(argv=None):
     p = argparse.ArgumentParser(prog="python3 -m earshot", description="earshot effect files from PyTorch")
     sub = p.add_subparsers(dest="cmd", required=True)
@@ -98,6 +148,18 @@ def main(argv=None):
     e.add_argument("--licence")
     e.add_argument("--dtype", choices=("f32", "f16"), default="f32")
     e.add_argument("--input-skip", action="store_true", help="for a plain nn.Sequential: add the input to the output")
+    v = sub.add_parser("verify", help="run an effect file through the native core (ctypes) and through "
+                                      "PyTorch, and report the difference")
+    v.add_argument("file")
+    v.add_argument("--model", help="also compare with this model (torch.save file or module:name), e.g. the "
+                                   "one you exported, to see what F16 storage costs")
+    v.add_argument("--seconds", type=float, default=10.0, help="length of the test signal (default 10)")
+    v.add_argument("--block", type=int, default=512, help="samples per earshot_process call (default 512)")
+    v.add_argument("--variant", help="core variant (default: the core's choice)")
+    v.add_argument("--fixed-controls", action="store_true",
+                   help="keep the controls at their defaults (default: move each one at 25, 50 and 75%%)")
+    v.add_argument("--esr", type=float, default=-80.0, help="largest ESR in dB that passes (default -80)")
+    v.add_argument("--max-abs", type=float, default=1e-4, help="largest abs error that passes (default 1e-4)")
     i = sub.add_parser("info", help="describe an effect file")
     i.add_argument("file")
     i.add_argument("--json", action="store_true", help="print the effect description as JSON")
@@ -120,6 +182,8 @@ def main(argv=None):
             print(f"wrote {args.output}: {len(desc['graph']['layers'])} layers, "
                   f"{os.path.getsize(args.output)} bytes, {f['madds_per_sample']} multiply-adds per sample")
             return 0
+        if args.cmd == "verify":
+            return verify(args)
         desc, tensors = read(args.file)
         load(args.file)  # full check
         if args.json:
@@ -142,6 +206,6 @@ def main(argv=None):
             rest = {k: v for k, v in l.items() if k not in ("type", "name")}
             print(f"layer        {l['name']}: {l['type']} {json.dumps(rest, separators=(',', ':'))}")
         return 0
-    except (ExportError, FormatError, ValueError, OSError) as err:
+    except (ExportError, FormatError, ValueError, OSError, RuntimeError) as err:
         print(f"earshot: {err}", file=sys.stderr)
         return 1

@@ -241,3 +241,22 @@ def test_block_partition_invariance_through_abi(core, tmp_path, signal):
     base = native.render(blob, x, RATE, block=512)
     for b in (1, 37, 4096):
         assert np.array_equal(native.render(blob, x, RATE, block=b), base), b
+
+
+def test_verify_command(core, tmp_path):
+    """`python3 -m earshot verify` passes a faithful file and fails when the limit is set below
+    float32 rounding (so its gate can fail)."""
+    import subprocess
+    import sys
+    torch.manual_seed(11)
+    m = earshot.models.recurrent("gru", 6, controls=CTL_1)
+    earshot.export(m, tmp_path / "v.nfx", sample_rate=RATE)
+    torch.save(m, tmp_path / "v.pt")
+    env = dict(os.environ, PYTHONPATH=os.path.join(os.path.dirname(__file__), "..", "..", "python"),
+               EARSHOT_LIB=native.library_path())
+    cmd = [sys.executable, "-m", "earshot", "verify", str(tmp_path / "v.nfx"), "--seconds", "0.5",
+           "--model", str(tmp_path / "v.pt")]
+    r = subprocess.run(cmd, env=env, capture_output=True, text=True)
+    assert r.returncode == 0 and "PASS" in r.stdout, r.stdout + r.stderr
+    r = subprocess.run(cmd + ["--esr", "-300"], env=env, capture_output=True, text=True)
+    assert r.returncode == 1 and "FAIL" in r.stdout, r.stdout + r.stderr
