@@ -44,7 +44,22 @@ std::string num(double v) {
   return buf;
 }
 
-std::string pad(const std::string& s, size_t w) { return s.size() >= w ? s : s + std::string(w - s.size(), ' '); }
+// Columns padded to their widest cell, two spaces in from the margin; the last
+// column unpadded. `right`: which columns align right (numbers).
+void print_table(const std::vector<std::vector<std::string>>& rows, const std::vector<bool>& right) {
+  std::vector<size_t> w(rows[0].size(), 0);
+  for (const auto& r : rows)
+    for (size_t c = 0; c < r.size(); ++c) w[c] = std::max(w[c], r[c].size());
+  for (const auto& r : rows) {
+    std::string line = " ";
+    for (size_t c = 0; c < r.size(); ++c) {
+      const std::string fill(w[c] - r[c].size(), ' ');
+      line += (c ? "  " : " ") + (right[c] ? fill + r[c] : c + 1 < r.size() ? r[c] + fill : r[c]);
+    }
+    while (!line.empty() && line.back() == ' ') line.pop_back();
+    std::printf("%s\n", line.c_str());
+  }
+}
 
 // The structural fields of one layer beyond its channel counts.
 std::string layer_detail(const rapidjson::Value& L, const rapidjson::Value* desc) {
@@ -214,15 +229,7 @@ int cmd_info(const std::vector<std::string>& argv) {
                       num(json_number(L, "in")) + " -> " + num(json_number(L, "out")),
                       format_count(int64_t(json_number(L, "parameters"))), layer_detail(L, d)});
     }
-    std::vector<size_t> w(rows[0].size(), 0);
-    for (const auto& r : rows)
-      for (size_t c = 0; c < r.size(); ++c) w[c] = std::max(w[c], r[c].size());
-    for (const auto& r : rows) {
-      std::string line = " ";
-      for (size_t c = 0; c < r.size(); ++c) line += " " + (c + 1 < r.size() ? pad(r[c], w[c]) : r[c]);
-      while (!line.empty() && line.back() == ' ') line.pop_back();
-      std::printf("%s\n", line.c_str());
-    }
+    print_table(rows, {true, false, false, false, true, false});
   }
 
   // Controls.
@@ -238,14 +245,7 @@ int cmd_info(const std::vector<std::string>& argv) {
       rows.push_back({json_string(c, "name"), json_string(c, "unit").empty() ? "-" : json_string(c, "unit"),
                       num(json_number(c, "min")), num(json_number(c, "max")), num(json_number(c, "default")),
                       num(json_number(c, "smoothing_ms", 20)) + " ms"});
-    std::vector<size_t> w(rows[0].size(), 0);
-    for (const auto& r : rows)
-      for (size_t c = 0; c < r.size(); ++c) w[c] = std::max(w[c], r[c].size());
-    for (const auto& r : rows) {
-      std::string line = " ";
-      for (size_t c = 0; c < r.size(); ++c) line += " " + (c + 1 < r.size() ? pad(r[c], w[c]) : r[c]);
-      std::printf("%s\n", line.c_str());
-    }
+    print_table(rows, std::vector<bool>(rows[0].size(), false));
   }
   return kExitOk;
 }
