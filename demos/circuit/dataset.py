@@ -46,7 +46,7 @@ def _sources(n_clips, seed, n):
 def generate(split: str, n_clips=None, clip_seconds=CLIP_SECONDS, oversample=pedal.OVERSAMPLE, log=print):
     """Builds a split in memory: dict of float32 arrays
     dry [S, T], c [S, T], lp [S, T], drive [S], tone [S] (NaN in train: drawn later),
-    and kinds (source kind per row)."""
+    clip [S] (index of the source clip of each row) and kinds (source kind per row)."""
     n = int(round(clip_seconds * FS))
     t0 = time.time()
     if split == "train":
@@ -56,6 +56,7 @@ def generate(split: str, n_clips=None, clip_seconds=CLIP_SECONDS, oversample=ped
         per = 3
         drive = np.stack([(np.arange(per) + rng.uniform(0, 1, per)) / per for _ in range(n_clips)]).reshape(-1)
         dry = np.repeat(dry, per, axis=0)
+        clip = np.repeat(np.arange(n_clips), per)
         kinds = [k for k in kinds for _ in range(per)]
         tone = np.full(drive.shape, np.nan)
     elif split == "heldout":
@@ -63,6 +64,7 @@ def generate(split: str, n_clips=None, clip_seconds=CLIP_SECONDS, oversample=ped
         dry, kinds = _sources(len(pairs), 2, n)
         drive = np.array([d for d, _ in pairs])
         tone = np.array([t for _, t in pairs])
+        clip = np.arange(len(pairs))
     else:
         raise ValueError(f"unknown split {split!r}; choose train or heldout")
     c = pedal.clip(dry, drive, FS, oversample)
@@ -70,7 +72,7 @@ def generate(split: str, n_clips=None, clip_seconds=CLIP_SECONDS, oversample=ped
     log(f"dataset {split}: {dry.shape[0]} signals x {n} samples, {time.time() - t0:.1f} s")
     f32 = lambda a: np.asarray(a, dtype=np.float32)
     return {"dry": f32(dry), "c": f32(c), "lp": f32(lp), "drive": f32(drive), "tone": f32(tone),
-            "kinds": np.array(kinds)}
+            "clip": clip, "kinds": np.array(kinds)}
 
 
 def target(data, tone):

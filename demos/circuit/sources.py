@@ -126,6 +126,7 @@ def pad_chord(n, rng, fs=FS):
         for k in range(1, kmax + 1):
             out += np.sin(2 * np.pi * k * f0 * t + rng.uniform(0, 2 * np.pi)) / k
     att, rel = int(rng.uniform(0.005, 0.2) * fs), int(rng.uniform(0.05, 0.4) * fs)
+    att, rel = min(att, n // 3), min(rel, n // 3)
     env = np.ones(n)
     env[:att] = np.linspace(0.0, 1.0, att)
     env[n - rel:] = np.linspace(1.0, 0.0, rel)
@@ -140,8 +141,8 @@ def make(kind: str, n: int, rng: np.random.Generator, fs: int = FS, peak_db=(-24
     in `peak_db` dBFS. Starts and ends at silence (5 ms fades)."""
     if kind not in GENERATORS:
         raise ValueError(f"unknown source kind {kind!r}; choose one of {', '.join(KINDS)}")
-    if n < fs // 10:
-        raise ValueError(f"source clips need at least {fs // 10} samples, got {n}")
+    if n < fs // 5:
+        raise ValueError(f"source clips need at least {fs // 5} samples (0.2 s), got {n}")
     x = GENERATORS[kind](n, rng, fs)
     fade = int(0.005 * fs)
     ramp = np.linspace(0.0, 1.0, fade)
