@@ -77,6 +77,54 @@ const char* earshot_status_text(int status);
 
 void earshot_destroy(earshot_stream* s);
 
+/* ---- Listening tests: loudness (ITU-R BS.1770-4) and MUSHRA anchors ----
+ * Whole-clip functions for preparing stimuli (not for the audio thread: they
+ * may take a while on long clips, and earshot_anchor allocates). Audio is
+ * interleaved float, frames x channels; rate is a whole number of Hz from
+ * 8000 to 384000. Results are bit-identical natively and in WebAssembly (no
+ * libm on the computation path). docs/listening.md describes them. */
+
+/* Integrated loudness in LKFS (= LUFS) of a clip: K-weighting, 400 ms blocks
+ * with 75 % overlap, absolute gate -70 LKFS, relative gate -10 LU.
+ * weights: NULL for the default layout by channel count (1-3 channels: all
+ * 1.0; 4: L R Ls Rs; 5: L R C Ls Rs; 6: L R C LFE Ls Rs, LFE not counted;
+ * surround channels weigh 1.41), else one weight per channel (0 .. 10).
+ * On success writes *lkfs: the loudness, or -infinity when no block passes
+ * the absolute gate (silence, or a clip shorter than 400 ms).
+ * Returns EARSHOT_OK, EARSHOT_ERR_ARGUMENT (null pointer, channels outside
+ * 1..32, or more than 6 channels without weights), EARSHOT_ERR_NOT_FINITE
+ * (a sample, weight or the rate is NaN or infinite) or EARSHOT_ERR_RANGE
+ * (rate or a weight out of range). */
+int earshot_loudness(const float* interleaved, size_t frames, int channels, double rate,
+                     const double* weights, double* lkfs);
+
+/* The same with the default weights; returns NaN on any error. */
+double earshot_loudness_lkfs(const float* interleaved, size_t frames, int channels, double rate);
+
+/* Scales the clip in place so that it measures target_lkfs (-70 .. 0): every
+ * sample is multiplied by one float gain 10^((target - L)/20). Writes the
+ * gain in dB to *gain_db (may be NULL). Returns the codes of
+ * earshot_loudness, plus EARSHOT_ERR_RANGE for a target out of range or a
+ * silent clip (no block above the absolute gate; left untouched). The result
+ * may exceed full scale: check peaks if that matters. */
+int earshot_loudness_match(float* interleaved, size_t frames, int channels, double rate,
+                           const double* weights, double target_lkfs, double* gain_db);
+
+/* MUSHRA anchor filter (ITU-R BS.1534-3): linear-phase low-pass FIR whose
+ * pass band ends at passband_hz (3500 for the low anchor, 7000 for the mid
+ * anchor; 1000 .. 20000 with 9/7 * passband_hz <= rate/2), odd length,
+ * DC gain 1. With taps == NULL returns the number of taps; otherwise writes
+ * them (capacity >= that number) and returns the number. Returns a negative
+ * status code (EARSHOT_ERR_*) on bad arguments. */
+int earshot_anchor_taps(double rate, double passband_hz, double* taps, int capacity);
+
+/* Writes the anchor of an interleaved clip: every channel through the
+ * earshot_anchor_taps filter, centred, so out has the clip's length and is
+ * time-aligned with it (zero delay; the clip is taken as silent outside its
+ * ends). in and out may be the same buffer. Returns EARSHOT_OK or an
+ * EARSHOT_ERR_* code (then out is untouched). */
+int earshot_anchor(const float* in, float* out, size_t frames, int channels, double rate, double passband_hz);
+
 #ifdef __cplusplus
 }
 #endif
