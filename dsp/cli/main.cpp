@@ -25,6 +25,7 @@ const char* kUsage =
     "  render FILE IN OUT   run an audio file (WAV, FLAC, AIFF; mono or stereo) through an effect\n"
     "  bench FILE           speed of every CPU variant, against its measured peak multiply-add rate\n"
     "  verify FILE          check that the CPU variants give bit-identical output on a test signal\n"
+    "  site CONFIG --out DIR  build the static demo site (page, WebAssembly, effects, self-check data)\n"
     "\n"
     "options:\n"
     "  -h, --help           this text; 'earshot COMMAND --help' describes a command\n"
@@ -34,6 +35,8 @@ const char* kUsage =
     "            3 unreadable or invalid effect or audio file, or a write failure\n";
 
 }  // namespace
+
+int earshot_cmd_site(int argc, char** argv);  // site.cpp; argv[0] is "site"
 
 int main(int argc, char** argv) {
   using namespace earshot::cli;
@@ -62,12 +65,17 @@ int main(int argc, char** argv) {
   if (name == "render") run = cmd_render;
   if (name == "bench") run = cmd_bench;
   if (name == "verify") run = cmd_verify;
+  if (name == "site") {
+    std::vector<char*> site_argv;
+    for (std::string& t : args) site_argv.push_back(&t[0]);
+    return earshot_cmd_site(int(site_argv.size()), site_argv.data());
+  }
   if (!run) {
     if (!name.empty() && name[0] == '-')
-      std::fprintf(stderr, "earshot: unknown option '%s' (a command comes first: info, render, bench, verify)\n",
+      std::fprintf(stderr, "earshot: unknown option '%s' (a command comes first: info, render, bench, verify, site)\n",
                    name.c_str());
     else
-      std::fprintf(stderr, "earshot: unknown command '%s' (commands: info, render, bench, verify)\n", name.c_str());
+      std::fprintf(stderr, "earshot: unknown command '%s' (commands: info, render, bench, verify, site)\n", name.c_str());
     std::fputs("Run 'earshot --help' for usage.\n", stderr);
     return kExitUsage;
   }

@@ -1,0 +1,780 @@
+// `earshot site CONFIG --out DIR`: builds the static demo site. Reads and
+// validates the site config (docs/site.md), copies the page (web/), the
+// worklet and loader (worklet/), both WebAssembly builds, the effects and the
+// clips, and writes site.json: the config as the page needs it plus, per
+// effect, the native reference for the page's self-check (the FNV-1a 64 hash
+// of the effect's output on the standard test signal of test_signal.hpp,
+// controls at the file's defaults, host rate = model rate, native scalar
+// variant; a 64-sample excerpt; the whole output as reference/<id>.f32).
+// The result is plain files: no server code, no special headers.
+#include <sndfile.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cctype>
+#include <cerrno>
+#include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <exception>
+#include <filesystem>
+#include <fstream>
+#include <memory>
+#include <new>
+#include <set>
+#include <string>
+#include <vector>
+
+#include "cli.hpp"  // first: it configures rapidjson
+
+#include <rapidjson/error/en.h>
+#include <rapidjson/prettywriter.h>
+#include <rapidjson/stringbuffer.h>
+
+#include "test_signal.hpp"
+
+#ifndef EARSHOT_VERSION
+#define EARSHOT_VERSION "0.1.0"
+#endif
+
+namespace fs = std::filesystem;
+
+namespace earshot {
+namespace cli {
+namespace {
+
+const char* kHelp =
+    "usage: earshot site CONFIG --out DIR [options]\n"
+    "\n"
+    "Builds the static demo site described by the JSON file CONFIG (format in\n"
+    "docs/site.md) into DIR: the page, its worker and AudioWorklet, both\n"
+    "WebAssembly builds, the effects and clips, and site.json with the native\n"
+    "reference output of every effect on the standard test signal (what the\n"
+    "page's self-check compares against). DIR works on any static web host; it\n"
+    "needs no server code and no cross-origin-isolation headers.\n"
+    "\n"
+    "Paths inside CONFIG are relative to CONFIG's folder. DIR must be new, empty,\n"
+    "or a site this command made before (then it is rebuilt).\n"
+    "\n"
+    "options:\n"
+    "  --out DIR           where to write the site (required)\n"
+    "  --assets DIR        the earshot source tree holding web/ and worklet/\n"
+    "                      (default: found upward from CONFIG, then from this program)\n"
+    "  --wasm-simd PATH    earshot-simd.wasm (default: ASSETS/build/wasm-simd/)\n"
+    "  --wasm-scalar PATH  earshot-scalar.wasm (default: ASSETS/build/wasm-scalar/)\n"
+    "  --quiet             no summary\n"
+    "  -h, --help          this text\n";
+
+constexpr double kSignalSeconds = 3.0;  // the length `earshot verify` uses by default
+constexpr int kExcerpt = 64;            // samples of the reference shown in a failing self-check
+constexpr const char* kMarker = ".earshot-site";
+
+// ---- config errors ---------------------------------------------------------
+
+// Every config error names the file and the field, e.g.
+// "demos/site.json: effects[1].controls.drive: 1.5 is outside 0 .. 1".
+struct Where {
+  std::string config;
+  [[noreturn]] void fail(const std::string& field, const std::string& msg) const {
+    throw InputError(config + ": " + (field.empty() ? "" : field + ": ") + msg);
+  }
+};
+
+const char* type_name(const rapidjson::Value& v) {
+  switch (v.GetType()) {
+    case rapidjson::kNullType: return "null";
+    case rapidjson::kFalseType:
+    case rapidjson::kTrueType: return "a boolean";
+    case rapidjson::kObjectType: return "an object";
+    case rapidjson::kArrayType: return "an array";
+    case rapidjson::kStringType: return "a string";
+    default: return "a number";
+  }
+}
+
+void only_fields(const Where& w, const std::string& field, const rapidjson::Value& obj,
+                 const std::vector<std::string>& allowed) {
+  for (auto it = obj.MemberBegin(); it != obj.MemberEnd(); ++it) {
+    const std::string key = it->name.GetString();
+    if (std::find(allowed.begin(), allowed.end(), key) == allowed.end()) {
+      std::string list;
+      for (const std::string& a : allowed) list += (list.empty() ? "" : ", ") + a;
+      w.fail(field, "unknown field '" + key + "' (allowed: " + list + ")");
+    }
+  }
+}
+
+const rapidjson::Value* member(const rapidjson::Value& obj, const char* key) {
+  auto it = obj.FindMember(key);
+  return it == obj.MemberEnd() ? nullptr : &it->value;
+}
+
+size_t utf8_length(const std::string& s) {
+  size_t n = 0;
+  for (unsigned char c : s)
+    if ((c & 0xc0) != 0x80) ++n;
+  return n;
+}
+
+std::string text_field(const Where& w, const std::string& field, const rapidjson::Value* v, bool required,
+                       size_t max_chars, size_t min_chars = 0) {
+  if (!v) {
+    if (required) w.fail(field, "missing (a string is required)");
+    return "";
+  }
+  if (!v->IsString()) w.fail(field, std::string("must be a string, got ") + type_name(*v));
+  const std::string s(v->GetString(), v->GetStringLength());
+  if (s.find('\0') != std::string::npos) w.fail(field, "contains a NUL character");
+  const size_t n = utf8_length(s);
+  if (n < min_chars) w.fail(field, min_chars == 1 ? "is empty" : "is shorter than " + std::to_string(min_chars));
+  if (n > max_chars)
+    w.fail(field, "is " + std::to_string(n) + " characters long, over the limit of " + std::to_string(max_chars));
+  return s;
+}
+
+// Links become <a href>: only absolute http and https addresses.
+std::string url_field(const Where& w, const std::string& field, const rapidjson::Value* v) {
+  const std::string s = text_field(w, field, v, false, 2000);
+  if (!v) return s;
+  const bool ok = (s.compare(0, 8, "https://") == 0 && s.size() > 8) || (s.compare(0, 7, "http://") == 0 && s.size() > 7);
+  if (!ok) w.fail(field, "'" + s + "' is not an http:// or https:// address");
+  for (unsigned char c : s)
+    if (c <= 0x20 || c == 0x7f) w.fail(field, "'" + s + "' contains a space or control character");
+  return s;
+}
+
+bool id_ok(const std::string& id) {
+  if (id.empty() || id.size() > 64) return false;
+  for (unsigned char c : id)
+    if (!(std::isalnum(c) || c == '-' || c == '_')) return false;
+  return true;
+}
+
+// An id from a file name: its stem, lower-cased, anything else → '-'.
+std::string id_from(const std::string& path) {
+  std::string stem = fs::path(path).stem().string(), id;
+  for (unsigned char c : stem) id += std::isalnum(c) ? char(std::tolower(c)) : (c == '_' || c == '-') ? char(c) : '-';
+  if (id.size() > 64) id.resize(64);
+  return id.empty() ? "item" : id;
+}
+
+std::string read_text_file(const std::string& path, const std::string& what) {
+  std::ifstream f(path, std::ios::binary);
+  if (!f) throw InputError("cannot read " + what + " '" + path + "': " + std::strerror(errno));
+  std::string s((std::istreambuf_iterator<char>(f)), std::istreambuf_iterator<char>());
+  if (f.bad()) throw InputError("cannot read " + what + " '" + path + "'");
+  return s;
+}
+
+// "line L, column C" of a byte offset.
+std::string position(const std::string& text, size_t offset) {
+  size_t line = 1, col = 1;
+  for (size_t i = 0; i < offset && i < text.size(); ++i) {
+    if (text[i] == '\n') {
+      ++line;
+      col = 1;
+    } else if ((static_cast<unsigned char>(text[i]) & 0xc0) != 0x80) {
+      ++col;
+    }
+  }
+  return "line " + std::to_string(line) + ", column " + std::to_string(col);
+}
+
+// ---- the parsed config -----------------------------------------------------
+
+struct EffectEntry {
+  std::string field;  // "effects[2]"
+  std::string id, file, name, description;
+  std::vector<std::pair<std::string, double>> controls;  // page defaults, in config order
+};
+
+struct ClipEntry {
+  std::string field;
+  std::string id, file, name, description;
+};
+
+struct Config {
+  std::string title, description, paper, code;
+  std::vector<std::string> credits;
+  std::vector<EffectEntry> effects;
+  std::vector<ClipEntry> clips;
+  rapidjson::Document doc;  // owns listening_tests
+  const rapidjson::Value* listening_tests = nullptr;
+};
+
+Config parse_config(const std::string& path) {
+  const Where w{path};
+  const std::string text = read_text_file(path, "site config");
+  Config c;
+  c.doc.Parse(text.data(), text.size());
+  if (c.doc.HasParseError())
+    w.fail("", std::string("not valid JSON at ") + position(text, c.doc.GetErrorOffset()) + ": " +
+                   rapidjson::GetParseError_En(c.doc.GetParseError()));
+  if (!c.doc.IsObject()) w.fail("", std::string("the config must be a JSON object, got ") + type_name(c.doc));
+  const rapidjson::Value& root = c.doc;
+  only_fields(w, "", root,
+              {"version", "title", "description", "paper", "code", "credits", "effects", "clips", "listening_tests"});
+
+  if (const rapidjson::Value* v = member(root, "version")) {
+    if (!v->IsNumber() || v->GetDouble() != 1)
+      w.fail("version", "must be 1 (the only site config version), got " +
+                            (v->IsNumber() ? format_fixed(v->GetDouble(), 3) : std::string(type_name(*v))));
+  }
+  c.title = text_field(w, "title", member(root, "title"), true, 200, 1);
+  c.description = text_field(w, "description", member(root, "description"), false, 4000);
+  c.paper = url_field(w, "paper", member(root, "paper"));
+  c.code = url_field(w, "code", member(root, "code"));
+
+  if (const rapidjson::Value* v = member(root, "credits")) {
+    if (v->IsString()) {
+      c.credits.push_back(text_field(w, "credits", v, true, 1000, 1));
+    } else if (v->IsArray()) {
+      if (v->Size() > 50) w.fail("credits", "has " + std::to_string(v->Size()) + " entries, over the limit of 50");
+      for (rapidjson::SizeType i = 0; i < v->Size(); ++i)
+        c.credits.push_back(text_field(w, "credits[" + std::to_string(i) + "]", &(*v)[i], true, 1000, 1));
+    } else {
+      w.fail("credits", std::string("must be a string or an array of strings, got ") + type_name(*v));
+    }
+  }
+
+  const rapidjson::Value* effects = member(root, "effects");
+  if (!effects) w.fail("effects", "missing (an array of at least one effect is required)");
+  if (!effects->IsArray()) w.fail("effects", std::string("must be an array, got ") + type_name(*effects));
+  if (effects->Empty()) w.fail("effects", "is empty; list at least one effect");
+  if (effects->Size() > 64) w.fail("effects", "has " + std::to_string(effects->Size()) + " entries, over the limit of 64");
+  std::set<std::string> ids;
+  for (rapidjson::SizeType i = 0; i < effects->Size(); ++i) {
+    const rapidjson::Value& e = (*effects)[i];
+    EffectEntry fx;
+    fx.field = "effects[" + std::to_string(i) + "]";
+    if (!e.IsObject()) w.fail(fx.field, std::string("must be an object, got ") + type_name(e));
+    only_fields(w, fx.field, e, {"file", "id", "name", "description", "controls"});
+    fx.file = text_field(w, fx.field + ".file", member(e, "file"), true, 1000, 1);
+    fx.name = text_field(w, fx.field + ".name", member(e, "name"), false, 200);
+    fx.description = text_field(w, fx.field + ".description", member(e, "description"), false, 4000);
+    if (const rapidjson::Value* v = member(e, "id")) {
+      fx.id = text_field(w, fx.field + ".id", v, true, 64, 1);
+      if (!id_ok(fx.id)) w.fail(fx.field + ".id", "'" + fx.id + "' may hold only letters, digits, '-' and '_'");
+    } else {
+      fx.id = id_from(fx.file);
+    }
+    if (!ids.insert(fx.id).second)
+      w.fail(fx.field + ".id", "'" + fx.id + "' is used by an earlier effect; give each effect its own \"id\"");
+    if (const rapidjson::Value* v = member(e, "controls")) {
+      if (!v->IsObject()) w.fail(fx.field + ".controls", std::string("must be an object of name: value, got ") + type_name(*v));
+      for (auto it = v->MemberBegin(); it != v->MemberEnd(); ++it) {
+        const std::string name = it->name.GetString();
+        if (!it->value.IsNumber())
+          w.fail(fx.field + ".controls." + name, std::string("must be a number, got ") + type_name(it->value));
+        fx.controls.emplace_back(name, it->value.GetDouble());
+      }
+    }
+    c.effects.push_back(std::move(fx));
+  }
+
+  if (const rapidjson::Value* clips = member(root, "clips")) {
+    if (!clips->IsArray()) w.fail("clips", std::string("must be an array, got ") + type_name(*clips));
+    if (clips->Size() > 64) w.fail("clips", "has " + std::to_string(clips->Size()) + " entries, over the limit of 64");
+    std::set<std::string> clip_ids;
+    for (rapidjson::SizeType i = 0; i < clips->Size(); ++i) {
+      const rapidjson::Value& e = (*clips)[i];
+      ClipEntry cl;
+      cl.field = "clips[" + std::to_string(i) + "]";
+      if (!e.IsObject()) w.fail(cl.field, std::string("must be an object, got ") + type_name(e));
+      only_fields(w, cl.field, e, {"file", "name", "description"});
+      cl.file = text_field(w, cl.field + ".file", member(e, "file"), true, 1000, 1);
+      cl.name = text_field(w, cl.field + ".name", member(e, "name"), false, 200);
+      cl.description = text_field(w, cl.field + ".description", member(e, "description"), false, 4000);
+      if (cl.name.empty()) cl.name = fs::path(cl.file).filename().string();
+      cl.id = id_from(cl.file);
+      for (int k = 2; !clip_ids.insert(cl.id).second; ++k) cl.id = id_from(cl.file) + "-" + std::to_string(k);
+      c.clips.push_back(std::move(cl));
+    }
+  }
+
+  // Listening tests belong to the next stage of the project; the builder only
+  // checks the shape and passes them through unchanged.
+  if (const rapidjson::Value* v = member(root, "listening_tests")) {
+    if (!v->IsArray()) w.fail("listening_tests", std::string("must be an array, got ") + type_name(*v));
+    c.listening_tests = v;
+  }
+  return c;
+}
+
+// ---- files -----------------------------------------------------------------
+
+std::vector<unsigned char> read_binary(const fs::path& p, const std::string& what) {
+  std::ifstream f(p, std::ios::binary);
+  if (!f) throw InputError("cannot read " + what + " '" + p.string() + "': " + std::strerror(errno));
+  std::vector<unsigned char> b((std::istreambuf_iterator<char>(f)), std::istreambuf_iterator<char>());
+  if (f.bad()) throw InputError("cannot read " + what + " '" + p.string() + "'");
+  return b;
+}
+
+// Every file this run writes, relative to DIR, for the marker file.
+std::vector<std::string> g_written;
+fs::path g_out;
+
+void note_written(const fs::path& p) {
+  std::error_code ec;
+  const fs::path rel = fs::relative(p, g_out, ec);
+  if (!ec && !rel.empty()) g_written.push_back(rel.generic_string());
+}
+
+void write_binary(const fs::path& p, const void* data, size_t n) {
+  note_written(p);
+  std::ofstream f(p, std::ios::binary | std::ios::trunc);
+  if (!f) throw InputError("cannot write '" + p.string() + "': " + std::strerror(errno));
+  f.write(static_cast<const char*>(data), std::streamsize(n));
+  f.close();
+  if (!f) throw InputError("cannot write '" + p.string() + "'");
+}
+
+void copy_into(const fs::path& from, const fs::path& to, const std::string& what) {
+  std::error_code ec;
+  if (!fs::is_regular_file(from, ec)) throw InputError("cannot read " + what + " '" + from.string() + "': not a file");
+  note_written(to);
+  fs::copy_file(from, to, fs::copy_options::overwrite_existing, ec);
+  if (ec) throw InputError("cannot copy " + what + " '" + from.string() + "' to '" + to.string() + "': " + ec.message());
+}
+
+bool is_assets_root(const fs::path& p) {
+  std::error_code ec;
+  return fs::is_regular_file(p / "web" / "index.html", ec) && fs::is_regular_file(p / "worklet" / "loader.js", ec);
+}
+
+fs::path find_assets(const fs::path& config_dir) {
+  std::error_code ec;
+  for (fs::path p = fs::absolute(config_dir, ec);; p = p.parent_path()) {
+    if (is_assets_root(p)) return p;
+    if (p == p.parent_path() || p.empty()) break;
+  }
+  char exe[4096];
+  const ssize_t n = ::readlink("/proc/self/exe", exe, sizeof exe - 1);
+  if (n > 0) {
+    exe[n] = 0;
+    for (fs::path p = fs::path(exe).parent_path();; p = p.parent_path()) {
+      if (is_assets_root(p)) return p;
+      if (p == p.parent_path() || p.empty()) break;
+    }
+  }
+  throw UsageError("cannot find the earshot source tree (a folder with web/index.html and worklet/loader.js) above '" +
+                   config_dir.string() + "' or this program; pass --assets DIR");
+}
+
+std::vector<unsigned char> read_wasm(const fs::path& p, const std::string& option, const std::string& preset) {
+  std::error_code ec;
+  if (!fs::is_regular_file(p, ec))
+    throw InputError("no WebAssembly build at '" + p.string() + "'; build it with 'cmake --preset " + preset +
+                     " && cmake --build --preset " + preset + "' or pass " + option + " PATH");
+  std::vector<unsigned char> b = read_binary(p, "WebAssembly build");
+  if (b.size() < 8 || std::memcmp(b.data(), "\0asm", 4) != 0)
+    throw InputError("'" + p.string() + "' (" + option + ") is not a WebAssembly module (no \\0asm magic)");
+  return b;
+}
+
+// DIR must be new, empty, or an earlier site: then the files that build wrote
+// (listed in the marker file) are removed, and nothing else.
+void prepare_out(const fs::path& out) {
+  std::error_code ec;
+  if (fs::exists(out, ec)) {
+    if (!fs::is_directory(out, ec)) throw UsageError("--out '" + out.string() + "' exists and is not a folder");
+    const bool empty = fs::is_empty(out, ec);
+    if (!empty && !fs::exists(out / kMarker, ec))
+      throw UsageError("--out '" + out.string() +
+                       "' is not empty and was not made by 'earshot site'; choose a new or empty folder");
+    if (!empty) {
+      std::ifstream list(out / kMarker);
+      std::string line;
+      while (std::getline(list, line)) {
+        if (line.empty() || line[0] == '#') continue;
+        const fs::path rel(line);
+        if (rel.is_absolute() || line.find("..") != std::string::npos) continue;
+        fs::remove(out / rel, ec);
+      }
+      for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference"})
+        if (fs::is_directory(out / sub, ec) && fs::is_empty(out / sub, ec)) fs::remove(out / sub, ec);
+      fs::remove(out / kMarker, ec);
+    }
+  }
+  fs::create_directories(out, ec);
+  if (ec) throw InputError("cannot create '" + out.string() + "': " + ec.message());
+  for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference"}) {
+    fs::create_directories(out / sub, ec);
+    if (ec) throw InputError("cannot create '" + (out / sub).string() + "': " + ec.message());
+  }
+}
+
+// Copies web/ (recursively) into out: index.html, style.css, js/.
+size_t copy_page(const fs::path& web, const fs::path& out) {
+  size_t n = 0;
+  std::error_code ec;
+  for (auto it = fs::recursive_directory_iterator(web, ec); !ec && it != fs::recursive_directory_iterator();
+       it.increment(ec)) {
+    const fs::path rel = fs::relative(it->path(), web);
+    if (it->is_directory()) {
+      fs::create_directories(out / rel);
+    } else if (it->is_regular_file()) {
+      copy_into(it->path(), out / rel, "page file");
+      ++n;
+    }
+  }
+  if (ec) throw InputError("cannot list '" + web.string() + "': " + ec.message());
+  return n;
+}
+
+// ---- reference output ------------------------------------------------------
+
+std::string bits_hex(float v) {
+  uint32_t u;
+  std::memcpy(&u, &v, 4);
+  char buf[16];
+  std::snprintf(buf, sizeof buf, "%08x", u);
+  return buf;
+}
+
+struct Reference {
+  double rate = 0;
+  size_t samples = 0;
+  uint64_t signal_hash = 0, output_hash = 0;
+  unsigned nonfinite = 0;
+  std::vector<float> out;
+};
+
+// The effect's output on the standard test signal: native scalar variant, host
+// rate = model rate, controls at the file's defaults, blocks of 512 (the core
+// is block-size invariant, so any partition gives these bits).
+Reference reference_of(const std::vector<unsigned char>& bytes, double rate, const std::string& path) {
+  Reference r;
+  r.rate = rate;
+  Stream s(bytes, rate, "scalar", path);
+  const std::vector<float> x = test_signal(rate, kSignalSeconds);
+  r.samples = x.size();
+  r.signal_hash = fnv1a64(x.data(), x.size());
+  r.out.resize(x.size());
+  s.process(x.data(), r.out.data(), x.size(), 512);
+  r.output_hash = fnv1a64(r.out.data(), r.out.size());
+  r.nonfinite = earshot_nonfinite_count(s.get());
+  return r;
+}
+
+using Writer = rapidjson::PrettyWriter<rapidjson::StringBuffer>;
+
+void write_string(Writer& w, const char* key, const std::string& v) {
+  w.Key(key);
+  w.String(v.c_str(), rapidjson::SizeType(v.size()));
+}
+
+void write_optional(Writer& w, const char* key, const std::string& v) {
+  if (!v.empty()) write_string(w, key, v);
+}
+
+}  // namespace
+
+int cmd_site(const std::vector<std::string>& argv) {
+  const Args a = parse_args(argv, {{"--help", false},
+                                   {"--out", true},
+                                   {"--assets", true},
+                                   {"--wasm-simd", true},
+                                   {"--wasm-scalar", true},
+                                   {"--quiet", false}});
+  if (a.has("--help")) {
+    std::fputs(kHelp, stdout);
+    return kExitOk;
+  }
+  if (a.positional.size() != 1)
+    throw UsageError(a.positional.empty() ? "missing the site CONFIG file"
+                                          : "expected one CONFIG file, got " + std::to_string(a.positional.size()) +
+                                                " arguments");
+  const std::string* out_opt = a.last("--out");
+  if (!out_opt || out_opt->empty()) throw UsageError("missing --out DIR (where to write the site)");
+  const std::string config_path = a.positional[0];
+  const fs::path config_dir = fs::path(config_path).parent_path().empty() ? fs::path(".") : fs::path(config_path).parent_path();
+  const Where where{config_path};
+
+  Config cfg = parse_config(config_path);
+
+  fs::path assets;
+  if (const std::string* p = a.last("--assets")) {
+    assets = *p;
+    if (!is_assets_root(assets))
+      throw UsageError("--assets '" + *p + "' does not hold web/index.html and worklet/loader.js");
+  } else {
+    assets = find_assets(config_dir);
+  }
+  const std::vector<unsigned char> wasm_simd =
+      read_wasm(a.last("--wasm-simd") ? fs::path(*a.last("--wasm-simd")) : assets / "build/wasm-simd/earshot-simd.wasm",
+                "--wasm-simd", "wasm-simd");
+  const std::vector<unsigned char> wasm_scalar = read_wasm(
+      a.last("--wasm-scalar") ? fs::path(*a.last("--wasm-scalar")) : assets / "build/wasm-scalar/earshot-scalar.wasm",
+      "--wasm-scalar", "wasm-scalar");
+  for (const char* f : {"loader.js", "capabilities.js", "processor.js"}) {
+    std::error_code ec;
+    if (!fs::is_regular_file(assets / "worklet" / f, ec))
+      throw InputError("missing '" + (assets / "worklet" / f).string() + "' in the source tree");
+  }
+
+  // Effects: load each through the C ABI (the loader's message names any
+  // fault), check the page defaults, compute the reference. All before DIR is touched.
+  struct Loaded {
+    std::vector<unsigned char> bytes;
+    rapidjson::Document info;
+    Reference ref;
+  };
+  std::vector<Loaded> loaded(cfg.effects.size());
+  for (size_t i = 0; i < cfg.effects.size(); ++i) {
+    EffectEntry& fx = cfg.effects[i];
+    const fs::path file = config_dir / fx.file;
+    Loaded& L = loaded[i];
+    try {
+      L.bytes = read_effect_file(file.string());
+    } catch (const InputError& e) {
+      where.fail(fx.field + ".file", e.what());
+    }
+    std::unique_ptr<Stream> probe;
+    try {
+      probe.reset(new Stream(L.bytes, 48000, "scalar", file.string()));
+    } catch (const InputError& e) {
+      where.fail(fx.field + ".file", e.what());
+    }
+    L.info = probe->info();
+    const double model_rate = json_number(L.info, "model_rate", 48000);
+    for (const auto& c : fx.controls) {
+      const int index = earshot_control_index(probe->get(), c.first.c_str());
+      const std::string field = fx.field + ".controls." + c.first;
+      const rapidjson::Value& list = L.info["effect"]["controls"];
+      if (index < 0) {
+        std::string names;
+        for (const auto& d : list.GetArray()) names += (names.empty() ? "" : ", ") + json_string(d, "name");
+        where.fail(field, "the effect '" + fx.file + "' has no control named '" + c.first + "' (" +
+                              (names.empty() ? std::string("it has no controls") : "its controls: " + names) + ")");
+      }
+      const int st = earshot_set_control(probe->get(), index, float(c.second));
+      if (st != EARSHOT_OK) {
+        const rapidjson::Value& d = list[rapidjson::SizeType(index)];
+        char buf[200];
+        std::snprintf(buf, sizeof buf, "%.10g is refused: %s (%s takes %.10g .. %.10g)", c.second,
+                      earshot_status_text(st), c.first.c_str(), json_number(d, "min"), json_number(d, "max"));
+        where.fail(field, buf);
+      }
+    }
+    probe.reset();
+    if (fx.name.empty()) fx.name = json_string(L.info, "title", fx.id);
+    L.ref = reference_of(L.bytes, model_rate, file.string());
+    if (L.ref.nonfinite > 0)
+      std::fprintf(stderr, "earshot site: warning: %s: %u block(s) of the test signal gave non-finite output\n",
+                   fx.file.c_str(), L.ref.nonfinite);
+  }
+
+  // Clips: readable, mono or stereo, WAV or FLAC (both the page and browsers read them).
+  struct ClipInfo {
+    int rate = 0, channels = 0;
+    int64_t frames = 0;
+    std::string ext;
+  };
+  std::vector<ClipInfo> clip_info(cfg.clips.size());
+  for (size_t i = 0; i < cfg.clips.size(); ++i) {
+    const ClipEntry& cl = cfg.clips[i];
+    const fs::path file = config_dir / cl.file;
+    std::string ext = file.extension().string();
+    for (char& ch : ext) ch = char(std::tolower((unsigned char)ch));
+    if (ext != ".wav" && ext != ".flac")
+      where.fail(cl.field + ".file", "'" + cl.file + "': a bundled clip must be a .wav or .flac file");
+    SF_INFO info{};
+    SNDFILE* f = sf_open(file.string().c_str(), SFM_READ, &info);
+    if (!f) where.fail(cl.field + ".file", "cannot read audio file '" + file.string() + "': " + sf_strerror(nullptr));
+    sf_close(f);
+    if (info.channels < 1 || info.channels > 2)
+      where.fail(cl.field + ".file", "'" + cl.file + "' has " + std::to_string(info.channels) +
+                                         " channels; the page renders mono or stereo only");
+    if (info.samplerate < 8000 || info.samplerate > 384000)
+      where.fail(cl.field + ".file", "'" + cl.file + "' has sample rate " + std::to_string(info.samplerate) +
+                                         " Hz; earshot streams run at 8000 .. 384000 Hz");
+    clip_info[i] = {info.samplerate, info.channels, int64_t(info.frames), ext};
+  }
+
+  // Write.
+  const fs::path out = *out_opt;
+  prepare_out(out);
+  g_out = out;
+  g_written.clear();
+  const size_t page_files = copy_page(assets / "web", out);
+  for (const char* f : {"loader.js", "capabilities.js", "processor.js"})
+    copy_into(assets / "worklet" / f, out / "worklet" / f, "worklet file");
+  write_binary(out / "wasm" / "earshot-simd.wasm", wasm_simd.data(), wasm_simd.size());
+  write_binary(out / "wasm" / "earshot-scalar.wasm", wasm_scalar.data(), wasm_scalar.size());
+
+  rapidjson::StringBuffer sb;
+  Writer w(sb);
+  w.SetIndent(' ', 1);
+  w.StartObject();
+  write_string(w, "format", "earshot-site");
+  w.Key("version");
+  w.Int(1);
+  write_string(w, "generator", "earshot " EARSHOT_VERSION);
+  write_string(w, "title", cfg.title);
+  write_optional(w, "description", cfg.description);
+  write_optional(w, "paper", cfg.paper);
+  write_optional(w, "code", cfg.code);
+  w.Key("credits");
+  w.StartArray();
+  for (const std::string& c : cfg.credits) w.String(c.c_str(), rapidjson::SizeType(c.size()));
+  w.EndArray();
+  w.Key("wasm");
+  w.StartObject();
+  write_string(w, "simd", "wasm/earshot-simd.wasm");
+  write_string(w, "scalar", "wasm/earshot-scalar.wasm");
+  w.EndObject();
+  w.Key("test_signal");
+  w.StartObject();
+  write_string(w, "definition", kTestSignalSummary);
+  w.Key("seconds");
+  w.Double(kSignalSeconds);
+  write_string(w, "hash", "fnv1a64-float32le");
+  w.EndObject();
+
+  w.Key("effects");
+  w.StartArray();
+  for (size_t i = 0; i < cfg.effects.size(); ++i) {
+    const EffectEntry& fx = cfg.effects[i];
+    const Loaded& L = loaded[i];
+    const std::string site_file = "effects/" + fx.id + ".nfx";
+    const std::string ref_file = "reference/" + fx.id + ".f32";
+    write_binary(out / site_file, L.bytes.data(), L.bytes.size());
+    // reference/<id>.f32: the native output, float32 little-endian (x86 and
+    // every WebAssembly engine are little-endian).
+    write_binary(out / ref_file, L.ref.out.data(), L.ref.out.size() * 4);
+
+    w.StartObject();
+    write_string(w, "id", fx.id);
+    write_string(w, "name", fx.name);
+    write_optional(w, "description", fx.description);
+    write_string(w, "file", site_file);
+    w.Key("bytes");
+    w.Uint64(L.bytes.size());
+    write_string(w, "title", json_string(L.info, "title"));
+    w.Key("model_rate");
+    w.Double(L.ref.rate);
+    w.Key("defaults");
+    w.StartObject();
+    for (const auto& c : fx.controls) {
+      w.Key(c.first.c_str());
+      w.Double(c.second);
+    }
+    w.EndObject();
+    w.Key("reference");
+    w.StartObject();
+    write_string(w, "variant", "native scalar");
+    w.Key("rate");
+    w.Double(L.ref.rate);
+    w.Key("seconds");
+    w.Double(kSignalSeconds);
+    w.Key("samples");
+    w.Uint64(L.ref.samples);
+    write_string(w, "signal_hash", hex64(L.ref.signal_hash));
+    write_string(w, "output_hash", hex64(L.ref.output_hash));
+    w.Key("nonfinite_blocks");
+    w.Uint(L.ref.nonfinite);
+    write_string(w, "data", ref_file);
+    w.Key("excerpt");
+    w.StartArray();
+    for (int k = 0; k < kExcerpt && size_t(k) < L.ref.out.size(); ++k) w.Double(double(L.ref.out[size_t(k)]));
+    w.EndArray();
+    w.Key("excerpt_bits");
+    w.StartArray();
+    for (int k = 0; k < kExcerpt && size_t(k) < L.ref.out.size(); ++k) {
+      const std::string b = bits_hex(L.ref.out[size_t(k)]);
+      w.String(b.c_str());
+    }
+    w.EndArray();
+    w.EndObject();
+    w.EndObject();
+  }
+  w.EndArray();
+
+  w.Key("clips");
+  w.StartArray();
+  for (size_t i = 0; i < cfg.clips.size(); ++i) {
+    const ClipEntry& cl = cfg.clips[i];
+    const ClipInfo& ci = clip_info[i];
+    const std::string site_file = "clips/" + cl.id + ci.ext;
+    copy_into(config_dir / cl.file, out / site_file, "clip");
+    w.StartObject();
+    write_string(w, "id", cl.id);
+    write_string(w, "name", cl.name);
+    write_optional(w, "description", cl.description);
+    write_string(w, "file", site_file);
+    w.Key("rate");
+    w.Int(ci.rate);
+    w.Key("channels");
+    w.Int(ci.channels);
+    w.Key("seconds");
+    w.Double(double(ci.frames) / ci.rate);
+    w.EndObject();
+  }
+  w.EndArray();
+
+  w.Key("listening_tests");
+  if (cfg.listening_tests)
+    cfg.listening_tests->Accept(w);
+  else {
+    w.StartArray();
+    w.EndArray();
+  }
+  w.EndObject();
+
+  std::string json = sb.GetString();
+  json += '\n';
+  write_binary(out / "site.json", json.data(), json.size());
+  std::string marker = "# made by 'earshot site'; the next run removes these files and rebuilds\n";
+  for (const std::string& f : g_written) marker += f + "\n";
+  write_binary(out / kMarker, marker.data(), marker.size());
+
+  if (!a.has("--quiet")) {
+    std::error_code ec;
+    uintmax_t total = 0;
+    for (auto it = fs::recursive_directory_iterator(out, ec); !ec && it != fs::recursive_directory_iterator();
+         it.increment(ec))
+      if (it->is_regular_file()) total += it->file_size();
+    std::printf("wrote site %s: %zu effect(s), %zu clip(s), %zu page file(s), %s kB\n", out.string().c_str(),
+                cfg.effects.size(), cfg.clips.size(), page_files, format_count(int64_t(total / 1024)).c_str());
+    for (size_t i = 0; i < cfg.effects.size(); ++i)
+      std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", cfg.effects[i].id.c_str(), loaded[i].ref.rate,
+                  hex64(loaded[i].ref.output_hash).c_str(), hex64(loaded[i].ref.signal_hash).c_str());
+    std::printf("serve it: tools/serve.sh %s\n", out.string().c_str());
+  }
+  return kExitOk;
+}
+
+}  // namespace cli
+}  // namespace earshot
+
+// The entry point main.cpp dispatches to: argv[0] is the command word
+// ("site"), the rest its arguments. Errors become a message on stderr and the
+// exit codes of docs/cli.md, as for every other command.
+int earshot_cmd_site(int argc, char** argv) {
+  using namespace earshot::cli;
+  const std::vector<std::string> rest(argv + (argc > 0 ? 1 : 0), argv + argc);
+  try {
+    const int rc = cmd_site(rest);
+    if (std::fflush(stdout) != 0) {
+      std::fputs("earshot site: cannot write to standard output\n", stderr);
+      return kExitInput;
+    }
+    return rc;
+  } catch (const UsageError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot site: %s\nRun 'earshot site --help' for usage.\n", e.what());
+    return kExitUsage;
+  } catch (const InputError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot site: %s\n", e.what());
+    return kExitInput;
+  } catch (const std::bad_alloc&) {
+    std::fputs("earshot site: out of memory\n", stderr);
+    return kExitInput;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "earshot site: internal error: %s\n", e.what());
+    return kExitInput;
+  }
+}

@@ -1,0 +1,70 @@
+// The page's entry point: capability check, site description, then the
+// panels, wired together. One job per module; this one only connects them.
+import { detectCapabilities } from '../worklet/capabilities.js';
+import { $, el, clear, setText, status, link } from './dom.js';
+import { loadSite } from './site.js';
+import { Engine } from './engine.js';
+import { showCapabilities, showLoaded, showLoadFailed } from './capability-panel.js';
+import { EffectPanel } from './effect-panel.js';
+import { ControlsPanel } from './controls-panel.js';
+import { SelfCheck } from './selfcheck.js';
+import { OfflinePanel } from './offline-panel.js';
+import { LivePanel } from './live-panel.js';
+
+function showSite(site) {
+  document.title = site.title;
+  setText($('site-title'), site.title);
+  const d = $('site-description');
+  setText(d, site.description || '');
+  d.hidden = !site.description;
+  const links = clear($('site-links'));
+  if (site.paper) links.appendChild(el('li', {}, link(site.paper, 'Paper')));
+  if (site.code) links.appendChild(el('li', {}, link(site.code, 'Code')));
+  links.hidden = !links.firstChild;
+  const credits = clear($('site-credits'));
+  for (const c of site.credits) credits.appendChild(el('li', {}, c));
+}
+
+function pageError(message) {
+  status($('page-error'), 'error', message);
+}
+
+async function main() {
+  const caps = detectCapabilities();
+  showCapabilities(caps);
+  let site;
+  try {
+    site = await loadSite('site.json');
+  } catch (e) {
+    pageError(e.message);
+    return;
+  }
+  showSite(site);
+  if (!caps.variant) return;
+  let engine;
+  try {
+    engine = await new Engine(site, caps.variant).load();
+  } catch (e) {
+    showLoadFailed(`The ${caps.variant} build could not be loaded: ${e.message}`);
+    return;
+  }
+  showLoaded(caps, engine);
+
+  const controls = new ControlsPanel();
+  const check = new SelfCheck(engine);
+  const offline = new OfflinePanel(engine, controls, site);
+  const live = new LivePanel(engine, controls, caps);
+  const effects = new EffectPanel(engine, site, (fx) => {
+    controls.setEffect(fx);
+    check.run(fx);
+    offline.setEffect(fx);
+    live.setEffect(fx);
+  });
+  await effects.choose(effects.initialKey());
+  document.body.dataset.ready = 'true';
+}
+
+window.addEventListener('unhandledrejection', (e) => {
+  pageError(`Something went wrong: ${e.reason && e.reason.message ? e.reason.message : e.reason}`);
+});
+main().catch((e) => pageError(`The page could not start: ${e.message}`));

@@ -1,0 +1,328 @@
+// The offline Web Worker: renders files and runs the self-check, off the
+// page's thread. One job at a time; the page cancels a job by terminating
+// the worker and starting a new one.
+//
+// Messages in (all carry `id`, `wasmUrl` and `variant`, the build to use):
+//   { type: 'check', effect: ArrayBuffer, reference: {...} | null }
+//       the standard test signal at the model rate, controls at the file's
+//       defaults → { type: 'checked', id, result }
+//   { type: 'render', effect: ArrayBuffer, settings, source }
+//       source { kind: 'wav', file: Blob, name } (read here, at the file's
+//       rate; the core resamples to the model rate and back) or
+//       { kind: 'pcm', rate, channels: [Float32Array], name } (already decoded)
+//       → { type: 'progress', id, done, total } ... { type: 'rendered', id, ... }
+//       or { type: 'fallback', id, reason } when a WAV needs the browser's decoder
+// Failures → { type: 'failed', id, message }.
+import { loadVariant } from '../worklet/loader.js';
+import { readWavHeader, decodeFrames, WavError } from './wav.js';
+import { integratedLoudness } from './loudness.js';
+import { testSignal, fnv1a64, floatBits } from './test-signal.js';
+
+const SLICE = 1 << 16; // frames read and processed per step
+const PEAK_BUCKETS = 2048; // waveform resolution sent to the page
+const variants = new Map(); // wasm URL → Promise<Variant>
+
+function variantFor(url, name) {
+  let v = variants.get(url);
+  if (!v) {
+    v = (async () => {
+      const res = await fetch(url);
+      if (!res.ok) throw new Error(`cannot load the ${name} WebAssembly build (${url}): HTTP ${res.status}`);
+      const module = await WebAssembly.compile(await res.arrayBuffer());
+      return loadVariant(module, { name });
+    })();
+    variants.set(url, v);
+  }
+  return v.then((variant) => {
+    if (variant.broken) {
+      variants.delete(url);
+      return variantFor(url, name);
+    }
+    return variant;
+  });
+}
+
+// An effect streaming at hostRate, or at its own model rate when hostRate is 0.
+function effectAt(variant, bytes, hostRate) {
+  let fx = variant.createEffect(bytes, hostRate || 48000);
+  const modelRate = fx.info.model_rate;
+  if (!hostRate && modelRate !== 48000) {
+    fx.destroy();
+    fx = variant.createEffect(bytes, modelRate);
+  }
+  return fx;
+}
+
+// ---------------------------------------------------------------- self-check
+
+async function check(msg) {
+  const variant = await variantFor(msg.wasmUrl, msg.variant);
+  const fx = effectAt(variant, new Uint8Array(msg.effect), 0);
+  const rate = fx.info.model_rate;
+  const seconds = msg.reference ? msg.reference.seconds : 3;
+  const started = Date.now();
+  let x;
+  let y;
+  let nonfinite;
+  try {
+    x = testSignal(rate, seconds);
+    y = new Float32Array(x.length);
+    fx.process(x, y);
+    nonfinite = fx.nonFiniteCount;
+  } finally {
+    fx.destroy();
+  }
+  const result = {
+    variant: fx.variantName,
+    rate,
+    seconds,
+    samples: y.length,
+    signalHash: fnv1a64(x),
+    outputHash: fnv1a64(y),
+    nonfinite,
+    elapsedMs: Date.now() - started,
+    excerptBits: Array.from(y.subarray(0, 64), floatBits),
+    reference: null,
+    pass: null,
+    difference: null,
+  };
+  const ref = msg.reference;
+  if (!ref) return result;
+  result.reference = { outputHash: ref.output_hash, signalHash: ref.signal_hash, variant: ref.variant };
+  if (result.signalHash !== ref.signal_hash || result.samples !== ref.samples) {
+    result.pass = false;
+    result.difference = {
+      kind: 'signal',
+      text: `the page built a different test signal (hash ${result.signalHash}, ${result.samples} samples; native ${ref.signal_hash}, ${ref.samples} samples)`,
+    };
+    return result;
+  }
+  result.pass = result.outputHash === ref.output_hash;
+  if (result.pass) return result;
+  // Find the first differing sample: in the whole native output when it can
+  // be fetched, else in the excerpt.
+  let native = null;
+  let source = 'the whole native output';
+  try {
+    const res = await fetch(new URL(ref.data, msg.siteUrl));
+    if (res.ok) native = new Float32Array(await res.arrayBuffer());
+  } catch {
+    native = null;
+  }
+  if (!native || native.length !== y.length) {
+    source = `the first ${ref.excerpt_bits.length} native samples`;
+    native = new Float32Array(new Uint32Array(ref.excerpt_bits.map((b) => parseInt(b, 16))).buffer);
+  }
+  const a = new Uint32Array(y.buffer);
+  const b = new Uint32Array(native.buffer, native.byteOffset, native.length);
+  let index = -1;
+  for (let i = 0; i < b.length; i++) {
+    if (a[i] !== b[i]) {
+      index = i;
+      break;
+    }
+  }
+  result.difference = index < 0
+    ? { kind: 'beyond', source, text: `the hashes differ but ${source} agrees; the difference lies after sample ${b.length - 1}` }
+    : {
+        kind: 'sample',
+        source,
+        index,
+        browser: y[index],
+        browserBits: floatBits(y[index]),
+        native: native[index],
+        nativeBits: floatBits(native[index]),
+      };
+  return result;
+}
+
+// ---------------------------------------------------------------- render
+
+function peaks(channels) {
+  const n = channels[0].length;
+  const buckets = Math.min(PEAK_BUCKETS, Math.max(1, n));
+  const lo = new Float32Array(buckets);
+  const hi = new Float32Array(buckets);
+  for (let k = 0; k < buckets; k++) {
+    const from = Math.floor((k * n) / buckets);
+    const to = Math.max(from + 1, Math.floor(((k + 1) * n) / buckets));
+    let mn = 0;
+    let mx = 0;
+    for (const ch of channels) {
+      for (let i = from; i < to && i < n; i++) {
+        const v = ch[i];
+        if (v < mn) mn = v;
+        if (v > mx) mx = v;
+      }
+    }
+    lo[k] = mn;
+    hi[k] = mx;
+  }
+  return { lo, hi };
+}
+
+function peakOf(channels) {
+  let p = 0;
+  for (const ch of channels) for (let i = 0; i < ch.length; i++) p = Math.max(p, Math.abs(ch[i]));
+  return p;
+}
+
+function applySettings(fx, settings) {
+  for (const [name, value] of Object.entries(settings.controls || {})) fx.setControl(name, value);
+  fx.setMix(settings.bypass ? 0 : settings.mix);
+  fx.setGain(settings.inputDb, settings.outputDb);
+  // As `earshot render`: the render starts at the settings, without a ramp.
+  fx.reset();
+}
+
+async function render(msg) {
+  const { source, settings } = msg;
+  let rate;
+  let frames;
+  let nChannels;
+  let header = null;
+  let input;
+  let how;
+  if (source.kind === 'wav') {
+    const file = source.file;
+    const read = (o, n) => file.slice(o, o + n).arrayBuffer();
+    try {
+      header = await readWavHeader(read, file.size, `'${source.name}'`);
+    } catch (e) {
+      if (e instanceof WavError) return { fallback: e.message };
+      throw e;
+    }
+    rate = header.rate;
+    frames = header.frames;
+    nChannels = header.channels;
+    how = `read as WAV (${header.format === 3 ? 'float' : 'integer'} ${header.bits}-bit) at its own rate`;
+  } else {
+    rate = source.rate;
+    frames = source.channels[0].length;
+    nChannels = source.channels.length;
+    input = source.channels;
+    how = source.how || 'decoded by the browser';
+  }
+  if (nChannels < 1 || nChannels > 2)
+    throw new Error(`'${source.name}' has ${nChannels} channels; the page renders mono or stereo files only`);
+  if (rate < 8000 || rate > 384000)
+    throw new Error(`'${source.name}' has sample rate ${rate} Hz; earshot streams run at 8000 .. 384000 Hz`);
+  if (frames === 0) throw new Error(`'${source.name}' holds no audio samples`);
+
+  const variant = await variantFor(msg.wasmUrl, msg.variant);
+  const bytes = new Uint8Array(msg.effect);
+  const effects = [];
+  try {
+    for (let c = 0; c < nChannels; c++) {
+      const fx = variant.createEffect(bytes, rate);
+      effects.push(fx);
+      applySettings(fx, settings);
+    }
+    const latency = effects[0].latency;
+    if (!input) input = Array.from({ length: nChannels }, () => new Float32Array(frames));
+    const output = Array.from({ length: nChannels }, () => new Float32Array(frames));
+    const tmps = input.map(() => new Float32Array(SLICE));
+    const total = frames + latency;
+    let toSkip = latency;
+    let written = 0;
+    let done = 0;
+    let lastReport = 0;
+    const started = Date.now();
+    let processMs = 0;
+    const run = (c, src) => {
+      const k = src.length;
+      const y = tmps[c].subarray(0, k);
+      effects[c].process(src, y);
+      return y;
+    };
+    const emit = (ys) => {
+      const k = ys[0].length;
+      const skip = Math.min(toSkip, k);
+      const m = k - skip;
+      for (let c = 0; c < nChannels; c++) output[c].set(ys[c].subarray(skip), written);
+      toSkip -= skip;
+      written += m;
+      done += k;
+    };
+    for (let off = 0; off < frames; off += SLICE) {
+      const n = Math.min(SLICE, frames - off);
+      if (header) {
+        const raw = await source.file.slice(header.dataOffset + off * header.blockAlign,
+          header.dataOffset + (off + n) * header.blockAlign).arrayBuffer();
+        if (raw.byteLength < n * header.blockAlign) throw new Error(`'${source.name}' ended early while reading`);
+        decodeFrames(header, raw, n, input, off);
+      }
+      const t0 = Date.now();
+      const ys = [];
+      for (let c = 0; c < nChannels; c++) ys.push(run(c, input[c].subarray(off, off + n)));
+      processMs += Date.now() - t0;
+      emit(ys);
+      const now = Date.now();
+      if (now - lastReport > 100) {
+        lastReport = now;
+        postMessage({ type: 'progress', id: msg.id, done, total });
+      }
+    }
+    // Flush: `latency` samples of silence push the tail out (as `earshot render`).
+    for (let left = latency; left > 0;) {
+      const k = Math.min(left, SLICE);
+      const z = new Float32Array(k);
+      const ys = [];
+      for (let c = 0; c < nChannels; c++) ys.push(run(c, z));
+      emit(ys);
+      left -= k;
+    }
+    postMessage({ type: 'progress', id: msg.id, done: total, total });
+    const nonfinite = effects.reduce((s, fx) => s + fx.nonFiniteCount, 0);
+    const result = {
+      name: source.name,
+      how,
+      rate,
+      frames,
+      channels: nChannels,
+      modelRate: effects[0].info.model_rate,
+      latency,
+      variant: effects[0].variantName,
+      nonfinite,
+      processMs,
+      elapsedMs: Date.now() - started,
+      input,
+      output,
+      inputPeaks: peaks(input),
+      outputPeaks: peaks(output),
+      inputPeak: peakOf(input),
+      outputPeak: peakOf(output),
+      inputLkfs: integratedLoudness(input, rate),
+      outputLkfs: integratedLoudness(output, rate),
+      loudnessBy: 'JavaScript (web/js/loudness.js)',
+    };
+    return { result };
+  } finally {
+    for (const fx of effects) fx.destroy();
+  }
+}
+
+// ---------------------------------------------------------------- messages
+
+self.onmessage = async (event) => {
+  const msg = event.data;
+  try {
+    if (msg.type === 'check') {
+      const result = await check(msg);
+      postMessage({ type: 'checked', id: msg.id, result });
+    } else if (msg.type === 'render') {
+      const r = await render(msg);
+      if (r.fallback) {
+        postMessage({ type: 'fallback', id: msg.id, reason: r.fallback });
+        return;
+      }
+      const res = r.result;
+      const transfer = [...res.input, ...res.output].map((a) => a.buffer);
+      postMessage({ type: 'rendered', id: msg.id, result: res }, transfer);
+    } else {
+      postMessage({ type: 'failed', id: msg.id, message: `unknown job type '${msg.type}'` });
+    }
+  } catch (e) {
+    postMessage({ type: 'failed', id: msg.id, message: e && e.message ? e.message : String(e) });
+  }
+};

@@ -1,0 +1,132 @@
+// Playback of the original and the processed result in lockstep: two buffer
+// sources started at the same context time and offset, so they stay sample-
+// aligned; switching moves two gains in a 5 ms linear ramp (short enough to
+// feel instant, long enough not to click). The loudness-matched switch scales
+// the processed path by the gain that brings its integrated loudness
+// (BS.1770) to the original's.
+
+const SWITCH_S = 0.005;
+
+export class Player {
+  constructor(onEnd) {
+    this.ctx = null;
+    this.onEnd = onEnd;
+    this.original = null;
+    this.processed = null;
+    this.which = 'processed';
+    this.matchDb = 0;
+    this.match = false;
+    this.playing = false;
+    this.offset = 0;
+    this.startedAt = 0;
+    this.nodes = null;
+  }
+
+  get duration() {
+    return this.original ? this.original.duration : 0;
+  }
+
+  // result: the Worker's 'rendered' result (channels are consumed).
+  load(result) {
+    this.stop();
+    const make = (chs) => {
+      const b = new AudioBuffer({ length: chs[0].length, numberOfChannels: chs.length, sampleRate: result.rate });
+      chs.forEach((ch, c) => b.copyToChannel(ch, c));
+      return b;
+    };
+    this.original = make(result.input);
+    this.processed = make(result.output);
+    this.offset = 0;
+  }
+
+  gains() {
+    const m = this.match ? Math.pow(10, this.matchDb / 20) : 1;
+    return this.which === 'original' ? [1, 0] : [0, m];
+  }
+
+  async play() {
+    if (!this.original) return;
+    if (!this.ctx) this.ctx = new AudioContext({ latencyHint: 'playback' });
+    await this.ctx.resume();
+    this.stopNodes();
+    const ctx = this.ctx;
+    const [ga, gb] = this.gains();
+    const a = new AudioBufferSourceNode(ctx, { buffer: this.original });
+    const b = new AudioBufferSourceNode(ctx, { buffer: this.processed });
+    const gA = new GainNode(ctx, { gain: ga });
+    const gB = new GainNode(ctx, { gain: gb });
+    a.connect(gA).connect(ctx.destination);
+    b.connect(gB).connect(ctx.destination);
+    const t = ctx.currentTime + 0.03;
+    const off = this.offset >= this.duration ? 0 : this.offset;
+    a.start(t, off);
+    b.start(t, off);
+    this.startedAt = t - off;
+    this.nodes = { a, b, gA, gB };
+    this.playing = true;
+    b.onended = () => {
+      if (this.nodes && this.nodes.b === b) {
+        this.stopNodes();
+        this.playing = false;
+        this.offset = 0;
+        if (this.onEnd) this.onEnd();
+      }
+    };
+  }
+
+  pause() {
+    if (!this.playing) return;
+    this.offset = this.position();
+    this.stopNodes();
+    this.playing = false;
+  }
+
+  stop() {
+    this.stopNodes();
+    this.playing = false;
+    this.offset = 0;
+  }
+
+  stopNodes() {
+    if (!this.nodes) return;
+    const { a, b } = this.nodes;
+    this.nodes = null;
+    for (const s of [a, b]) {
+      s.onended = null;
+      try { s.stop(); } catch { /* not started */ }
+      s.disconnect();
+    }
+  }
+
+  seek(seconds) {
+    this.offset = Math.max(0, Math.min(this.duration, seconds));
+    if (this.playing) this.play();
+  }
+
+  position() {
+    if (!this.playing || !this.ctx) return this.offset;
+    return Math.max(0, Math.min(this.duration, this.ctx.currentTime - this.startedAt));
+  }
+
+  setWhich(which) {
+    this.which = which;
+    this.ramp();
+  }
+
+  setMatch(on, db) {
+    this.match = on;
+    this.matchDb = db;
+    this.ramp();
+  }
+
+  ramp() {
+    if (!this.nodes) return;
+    const t = this.ctx.currentTime;
+    const [ga, gb] = this.gains();
+    for (const [g, v] of [[this.nodes.gA, ga], [this.nodes.gB, gb]]) {
+      g.gain.cancelScheduledValues(t);
+      g.gain.setValueAtTime(g.gain.value, t);
+      g.gain.linearRampToValueAtTime(v, t + SWITCH_S);
+    }
+  }
+}
