@@ -20,7 +20,7 @@
 // §7.6, Kaiser's formulas): stop-band edge fs = 8/7·fp, cut-off midway,
 // A = 70 dB → β = 0.1102·(A − 8.7), N − 1 = (A − 8)/(2.285·Δω) rounded up to
 // an even number, Δω = 2π(fs − fp)/rate; DC gain normalised to 1. Measured
-// response: tests/native/anchors_test.cpp, tests/python/test_anchors* (see
+// response: tests/native/anchors_test.cpp, tests/python/test_loudness.py (see
 // docs/listening.md for the figures).
 #pragma once
 #include <cstddef>

@@ -1,0 +1,384 @@
+// `earshot loudness FILE...`: integrated loudness (ITU-R BS.1770-4) of audio
+// files, optionally writing a loudness-matched copy; and `earshot anchors
+// REF... --out DIR`: the MUSHRA anchors (ITU-R BS.1534-3) of reference clips.
+// Both read audio through libsndfile and reach the core only through the C
+// ABI (earshot_loudness, earshot_loudness_match, earshot_anchor), so their
+// figures are the ones the browser computes. docs/listening.md describes them.
+#include <sndfile.h>
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <exception>
+#include <memory>
+#include <new>
+#include <string>
+#include <vector>
+
+#include "cli.hpp"
+
+#include <rapidjson/prettywriter.h>
+#include <rapidjson/stringbuffer.h>
+
+namespace earshot {
+namespace cli {
+namespace {
+
+const char* kLoudnessHelp =
+    "usage: earshot loudness FILE... [options]\n"
+    "\n"
+    "Prints the integrated loudness of each audio file (WAV, FLAC, AIFF: anything\n"
+    "libsndfile reads) per ITU-R BS.1770-4, in LUFS: K-weighting, 400 ms blocks\n"
+    "with 75% overlap, absolute gate -70 LUFS, relative gate -10 LU. It is the\n"
+    "core's measurement, the same the listening page uses to match stimuli.\n"
+    "\n"
+    "Channel weights by channel count: 1-3 channels 1.0 each; 4: L R Ls Rs;\n"
+    "5: L R C Ls Rs; 6: L R C LFE Ls Rs (LFE not counted); surround channels\n"
+    "weigh 1.41. Other counts need --weights.\n"
+    "\n"
+    "A file with no 400 ms block above -70 LUFS (silence, or shorter than 0.4 s)\n"
+    "reads -inf (null in JSON).\n"
+    "\n"
+    "options:\n"
+    "  --json            print one JSON document instead of the table\n"
+    "  --weights LIST    channel weights, comma-separated, one per channel, 0 .. 10\n"
+    "  --match LUFS      write a copy of the (single) FILE scaled to this loudness,\n"
+    "                    -70 .. 0, to --out as 32-bit float WAV\n"
+    "  --out FILE        where --match writes (must not exist unless --force)\n"
+    "  --force           overwrite --out\n"
+    "  -h, --help        this text\n"
+    "\n"
+    "exit codes: 0 success, 2 bad command line, 3 unreadable or invalid audio file,\n"
+    "            or a write failure\n";
+
+const char* kAnchorsHelp =
+    "usage: earshot anchors REF... --out DIR [options]\n"
+    "\n"
+    "Writes the MUSHRA anchors (ITU-R BS.1534-3) of each reference clip REF into\n"
+    "DIR: NAME-lp3500.wav (the low anchor, 3.5 kHz low-pass) and NAME-lp7000.wav\n"
+    "(the mid anchor, 7 kHz low-pass), where NAME is REF's file name without its\n"
+    "extension. 32-bit float WAV at REF's rate, with REF's length and channels.\n"
+    "\n"
+    "The filter is a linear-phase FIR applied centred, so an anchor has no delay:\n"
+    "it stays sample-aligned with REF. Pass band flat within +-0.003 dB, at least\n"
+    "69 dB attenuation from 8/7 of the pass-band edge (4 kHz for the low anchor)\n"
+    "(docs/listening.md). Anchors are not loudness-matched here; the listening\n"
+    "page matches every stimulus to the configured target.\n"
+    "\n"
+    "options:\n"
+    "  --out DIR         folder to write into (created if missing; required)\n"
+    "  --passband HZ     write one low-pass copy NAME-lpHZ.wav per value instead of\n"
+    "                    the two standard anchors (repeatable; 1000 .. 20000, and\n"
+    "                    9/7 of it must not exceed half the sample rate)\n"
+    "  --force           overwrite existing files\n"
+    "  -h, --help        this text\n"
+    "\n"
+    "exit codes: 0 success, 2 bad command line, 3 unreadable or invalid audio file,\n"
+    "            or a write failure\n";
+
+struct SndCloser {
+  void operator()(SNDFILE* f) const {
+    if (f) sf_close(f);
+  }
+};
+using SndPtr = std::unique_ptr<SNDFILE, SndCloser>;
+
+struct Audio {
+  std::vector<float> samples;  // interleaved
+  size_t frames = 0;
+  int channels = 0;
+  int rate = 0;
+};
+
+Audio read_audio(const std::string& path) {
+  struct stat st;
+  if (stat(path.c_str(), &st) != 0)
+    throw InputError("cannot read audio file '" + path + "': " + std::strerror(errno));
+  if (S_ISDIR(st.st_mode)) throw InputError("'" + path + "' is a folder, not an audio file");
+  SF_INFO info;
+  std::memset(&info, 0, sizeof info);
+  SndPtr f(sf_open(path.c_str(), SFM_READ, &info));
+  if (!f) throw InputError("cannot read audio file '" + path + "': " + sf_strerror(nullptr));
+  Audio a;
+  a.channels = info.channels;
+  a.rate = info.samplerate;
+  if (a.channels < 1 || a.channels > 32)
+    throw InputError("'" + path + "' has " + std::to_string(a.channels) + " channels; 1 to 32 are supported");
+  if (a.rate < 8000 || a.rate > 384000)
+    throw InputError("'" + path + "' has a sample rate of " + std::to_string(a.rate) +
+                     " Hz; 8000 to 384000 Hz are supported");
+  if (info.frames < 0) throw InputError("'" + path + "': libsndfile reports no length");
+  a.frames = size_t(info.frames);
+  a.samples.resize(a.frames * size_t(a.channels));
+  const sf_count_t got = a.frames ? sf_readf_float(f.get(), a.samples.data(), sf_count_t(a.frames)) : 0;
+  if (got != sf_count_t(a.frames))
+    throw InputError("'" + path + "': read " + std::to_string(got) + " of " + std::to_string(a.frames) +
+                     " frames: " + sf_strerror(f.get()));
+  for (size_t i = 0; i < a.samples.size(); ++i)
+    if (!std::isfinite(a.samples[i]))
+      throw InputError("'" + path + "': sample " + std::to_string(i / size_t(a.channels)) + " of channel " +
+                       std::to_string(i % size_t(a.channels) + 1) + " is not a finite number");
+  return a;
+}
+
+bool exists(const std::string& path) {
+  struct stat st;
+  return stat(path.c_str(), &st) == 0;
+}
+
+void write_float_wav(const std::string& path, const Audio& a, const std::vector<float>& samples) {
+  SF_INFO info;
+  std::memset(&info, 0, sizeof info);
+  info.channels = a.channels;
+  info.samplerate = a.rate;
+  info.format = SF_FORMAT_WAV | SF_FORMAT_FLOAT;
+  SndPtr f(sf_open(path.c_str(), SFM_WRITE, &info));
+  if (!f) throw InputError("cannot write audio file '" + path + "': " + sf_strerror(nullptr));
+  const sf_count_t put = a.frames ? sf_writef_float(f.get(), samples.data(), sf_count_t(a.frames)) : 0;
+  if (put != sf_count_t(a.frames)) throw InputError("cannot write audio file '" + path + "': " + sf_strerror(f.get()));
+  if (sf_close(f.release()) != 0) throw InputError("cannot finish audio file '" + path + "'");
+}
+
+double peak_dbfs(const std::vector<float>& x) {
+  float p = 0;
+  for (float v : x) p = std::max(p, std::abs(v));
+  return p > 0 ? 20.0 * std::log10(double(p)) : -INFINITY;
+}
+
+std::vector<double> parse_weights(const std::string& text) {
+  std::vector<double> w;
+  size_t start = 0;
+  while (true) {
+    const size_t comma = text.find(',', start);
+    const std::string item = text.substr(start, comma == std::string::npos ? std::string::npos : comma - start);
+    w.push_back(parse_number("--weights item " + std::to_string(w.size() + 1), item, 0, 10));
+    if (comma == std::string::npos) break;
+    start = comma + 1;
+  }
+  return w;
+}
+
+// The core's status as a message naming the file and what it refused.
+std::string status_message(const std::string& path, int st) {
+  return "'" + path + "': the core refused it: " + earshot_status_text(st);
+}
+
+std::string lufs_text(double v) { return std::isinf(v) ? "-inf" : format_fixed(v, 2); }
+
+int cmd_loudness(const std::vector<std::string>& argv) {
+  const Args a = parse_args(argv, {{"--help", false},
+                                   {"--json", false},
+                                   {"--weights", true},
+                                   {"--match", true},
+                                   {"--out", true},
+                                   {"--force", false}});
+  if (a.has("--help")) {
+    std::fputs(kLoudnessHelp, stdout);
+    return kExitOk;
+  }
+  if (a.positional.empty()) throw UsageError("give at least one audio FILE");
+  std::vector<double> weights;
+  if (const std::string* w = a.last("--weights")) weights = parse_weights(*w);
+  const bool matching = a.has("--match");
+  double target = 0;
+  std::string out_path;
+  if (matching) {
+    target = parse_number("--match", *a.last("--match"), -70, 0);
+    if (a.positional.size() != 1) throw UsageError("--match takes exactly one FILE");
+    if (!a.has("--out")) throw UsageError("--match needs --out FILE");
+    out_path = *a.last("--out");
+    if (out_path == a.positional[0]) throw UsageError("--out is the same file as FILE; choose another");
+    if (exists(out_path) && !a.has("--force"))
+      throw UsageError("--out '" + out_path + "' exists; add --force to overwrite it");
+  } else if (a.has("--out")) {
+    throw UsageError("--out is only used with --match");
+  }
+
+  rapidjson::StringBuffer sb;
+  rapidjson::PrettyWriter<rapidjson::StringBuffer> w(sb);
+  const bool json = a.has("--json");
+  w.StartObject();
+  w.Key("measurement");
+  w.String("ITU-R BS.1770-4 integrated loudness");
+  w.Key("files");
+  w.StartArray();
+  for (const std::string& path : a.positional) {
+    Audio au = read_audio(path);
+    if (!weights.empty() && int(weights.size()) != au.channels)
+      throw UsageError("--weights gives " + std::to_string(weights.size()) + " weights but '" + path + "' has " +
+                       std::to_string(au.channels) + " channels");
+    if (weights.empty() && au.channels > 6)
+      throw UsageError("'" + path + "' has " + std::to_string(au.channels) +
+                       " channels, which have no default weights; give --weights");
+    const double* wp = weights.empty() ? nullptr : weights.data();
+    double lkfs = 0;
+    const int st = earshot_loudness(au.samples.data(), au.frames, au.channels, double(au.rate), wp, &lkfs);
+    if (st != EARSHOT_OK) throw InputError(status_message(path, st));
+    const double seconds = double(au.frames) / double(au.rate);
+    const double peak = peak_dbfs(au.samples);
+    double gain = 0, peak_after = 0;
+    if (matching) {
+      if (std::isinf(lkfs))
+        throw InputError("'" + path + "' is silent (no 400 ms block above -70 LUFS): there is no loudness to match");
+      const int ms = earshot_loudness_match(au.samples.data(), au.frames, au.channels, double(au.rate), wp, target,
+                                            &gain);
+      if (ms != EARSHOT_OK) throw InputError(status_message(path, ms));
+      peak_after = peak_dbfs(au.samples);
+      write_float_wav(out_path, au, au.samples);
+      if (peak_after > 0)
+        std::fprintf(stderr,
+                     "earshot loudness: note: '%s' peaks at %+.2f dBFS after matching; the float WAV keeps the "
+                     "peaks, but playback at full scale will clip\n",
+                     out_path.c_str(), peak_after);
+    }
+    if (json) {
+      w.StartObject();
+      w.Key("file");
+      w.String(path);
+      w.Key("integrated_lufs");
+      if (std::isinf(lkfs))
+        w.Null();
+      else
+        w.Double(lkfs);
+      w.Key("channels");
+      w.Int(au.channels);
+      w.Key("sample_rate");
+      w.Int(au.rate);
+      w.Key("frames");
+      w.Uint64(au.frames);
+      w.Key("seconds");
+      w.Double(seconds);
+      w.Key("sample_peak_dbfs");
+      if (std::isinf(peak))
+        w.Null();
+      else
+        w.Double(peak);
+      if (matching) {
+        w.Key("matched");
+        w.StartObject();
+        w.Key("out");
+        w.String(out_path);
+        w.Key("target_lufs");
+        w.Double(target);
+        w.Key("gain_db");
+        w.Double(gain);
+        w.Key("sample_peak_dbfs");
+        w.Double(peak_after);
+        w.EndObject();
+      }
+      w.EndObject();
+    } else {
+      std::printf("%8s LUFS  %s  (%d ch, %d Hz, %s s, sample peak %s dBFS)\n", lufs_text(lkfs).c_str(), path.c_str(),
+                  au.channels, au.rate, format_fixed(seconds, 3).c_str(),
+                  std::isinf(peak) ? "-inf" : format_fixed(peak, 2).c_str());
+      if (matching)
+        std::printf("%8s LUFS  %s  (gain %+.2f dB, sample peak %s dBFS)\n", lufs_text(target).c_str(),
+                    out_path.c_str(), gain, format_fixed(peak_after, 2).c_str());
+    }
+  }
+  w.EndArray();
+  w.EndObject();
+  if (json) std::printf("%s\n", sb.GetString());
+  return kExitOk;
+}
+
+std::string stem_of(const std::string& path) {
+  const size_t slash = path.find_last_of('/');
+  std::string name = slash == std::string::npos ? path : path.substr(slash + 1);
+  const size_t dot = name.find_last_of('.');
+  if (dot != std::string::npos && dot > 0) name = name.substr(0, dot);
+  return name;
+}
+
+int cmd_anchors(const std::vector<std::string>& argv) {
+  const Args a = parse_args(argv, {{"--help", false}, {"--out", true}, {"--passband", true}, {"--force", false}});
+  if (a.has("--help")) {
+    std::fputs(kAnchorsHelp, stdout);
+    return kExitOk;
+  }
+  if (a.positional.empty()) throw UsageError("give at least one reference clip REF");
+  if (!a.has("--out")) throw UsageError("give the output folder with --out DIR");
+  const std::string dir = *a.last("--out");
+  std::vector<double> bands;
+  for (const std::string& v : a.all("--passband")) bands.push_back(parse_number("--passband", v, 1000, 20000));
+  if (bands.empty()) bands = {3500, 7000};
+  struct stat st;
+  if (stat(dir.c_str(), &st) == 0) {
+    if (!S_ISDIR(st.st_mode)) throw UsageError("--out '" + dir + "' exists and is not a folder");
+  } else if (mkdir(dir.c_str(), 0777) != 0) {
+    throw InputError("cannot create folder '" + dir + "': " + std::strerror(errno));
+  }
+  // Every output name first, so a clash or an existing file stops the run before anything is written.
+  std::vector<std::string> names;
+  for (const std::string& ref : a.positional)
+    for (double b : bands) {
+      char suffix[32];
+      std::snprintf(suffix, sizeof suffix, "-lp%.0f.wav", b);
+      const std::string out = dir + "/" + stem_of(ref) + suffix;
+      if (std::find(names.begin(), names.end(), out) != names.end())
+        throw UsageError("two outputs would both be '" + out + "' (references with the same name, or a repeated "
+                         "--passband)");
+      if (exists(out) && !a.has("--force")) throw UsageError("'" + out + "' exists; add --force to overwrite it");
+      names.push_back(out);
+    }
+  size_t k = 0;
+  for (const std::string& ref : a.positional) {
+    const Audio au = read_audio(ref);
+    std::vector<float> y(au.samples.size());
+    for (double b : bands) {
+      const int rc = earshot_anchor(au.samples.data(), y.data(), au.frames, au.channels, double(au.rate), b);
+      if (rc == EARSHOT_ERR_RANGE)
+        throw InputError("'" + ref + "': a " + format_fixed(b, 0) + " Hz low-pass needs 9/7 of it (" +
+                         format_fixed(b * 9 / 7, 0) + " Hz) at or below half the sample rate (" +
+                         format_fixed(au.rate / 2.0, 0) + " Hz)");
+      if (rc != EARSHOT_OK) throw InputError(status_message(ref, rc));
+      write_float_wav(names[k], au, y);
+      std::printf("%s  (%.0f Hz low-pass, %d taps, %d ch, %d Hz)\n", names[k].c_str(), b,
+                  earshot_anchor_taps(double(au.rate), b, nullptr, 0), au.channels, au.rate);
+      ++k;
+    }
+  }
+  return kExitOk;
+}
+
+int guarded(const char* name, int (*fn)(const std::vector<std::string>&), int argc, char** argv) {
+  const std::vector<std::string> rest(argv + (argc > 0 ? 1 : 0), argv + argc);
+  try {
+    const int rc = fn(rest);
+    if (std::fflush(stdout) != 0) {
+      std::fprintf(stderr, "earshot %s: cannot write to standard output\n", name);
+      return kExitInput;
+    }
+    return rc;
+  } catch (const UsageError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name, e.what(), name);
+    return kExitUsage;
+  } catch (const InputError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot %s: %s\n", name, e.what());
+    return kExitInput;
+  } catch (const std::bad_alloc&) {
+    std::fprintf(stderr, "earshot %s: out of memory\n", name);
+    return kExitInput;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "earshot %s: internal error: %s\n", name, e.what());
+    return kExitInput;
+  }
+}
+
+}  // namespace
+}  // namespace cli
+}  // namespace earshot
+
+// Entry points for dsp/cli/main.cpp; argv[0] is the command name.
+int earshot_cmd_loudness(int argc, char** argv) {
+  return earshot::cli::guarded("loudness", earshot::cli::cmd_loudness, argc, argv);
+}
+
+int earshot_cmd_anchors(int argc, char** argv) {
+  return earshot::cli::guarded("anchors", earshot::cli::cmd_anchors, argc, argv);
+}
