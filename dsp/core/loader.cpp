@@ -519,8 +519,11 @@ std::shared_ptr<const Model> load_model(const unsigned char* bytes, size_t len, 
   if (8 + hlen > len)
     return bad("effect file: header length " + std::to_string(hlen) + " runs past the end of the file (" +
                std::to_string(len) + " bytes)");
+  // Iterative parsing: nesting depth costs heap, not call stack (a deeply
+  // nested header would otherwise overflow the stack, natively a crash and in
+  // WebAssembly a trap).
   rapidjson::Document h;
-  h.Parse(reinterpret_cast<const char*>(bytes + 8), size_t(hlen));
+  h.Parse<rapidjson::kParseIterativeFlag>(reinterpret_cast<const char*>(bytes + 8), size_t(hlen));
   if (h.HasParseError())
     return bad(std::string("effect file header: invalid JSON at byte ") + std::to_string(h.GetErrorOffset()) + ": " +
                rapidjson::GetParseError_En(h.GetParseError()));
@@ -590,7 +593,7 @@ std::shared_ptr<const Model> load_model(const unsigned char* bytes, size_t len, 
     return bad("effect file header: no '__metadata__' (not an earshot effect file)");
 
   rapidjson::Document d;
-  d.Parse(description.c_str(), description.size());
+  d.Parse<rapidjson::kParseIterativeFlag>(description.c_str(), description.size());
   if (d.HasParseError())
     return bad(std::string("effect description: invalid JSON at byte ") + std::to_string(d.GetErrorOffset()) + ": " +
                rapidjson::GetParseError_En(d.GetParseError()));
