@@ -180,7 +180,7 @@ def test_reference_modules_match_torch():
 
 
 def plain_loop_smoother(n, rate, initial, events, ms):
-    """The ramp exactly as worded in the brief, one sample at a time (float32)."""
+    """The ramp as worded in dsp/FORMAT.md, "Control smoothing", one sample at a time (float32)."""
     f = np.float32
     steps = int(math.floor(ms / 1000 * rate + 0.5))
     cur, target, inc, left = f(initial), f(initial), f(0), 0
