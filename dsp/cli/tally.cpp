@@ -1,0 +1,936 @@
+// `earshot tally RESULTS...`: reads the results files the listening page
+// writes (format in docs/listening.md), checks that they belong to one test
+// with the same stimuli, and prints the statistics:
+//   mushra  per condition (all items, and per item): n, mean with a t-based
+//           confidence interval, standard deviation, median, quartiles
+//           (linear interpolation, Hyndman & Fan type 7), min, max — after the
+//           ITU-R BS.1534-3 post-screening of assessors;
+//   abx     per condition pair (pooled and per participant): correct of N and
+//           the one-tailed exact binomial p-value P(X >= correct | N, 1/2);
+//   ab      per condition pair: preference counts, "no preference" counts,
+//           and the two-sided exact binomial p-value with ties left out.
+// Outputs: a text table on stdout, --csv FILE, --svg DIR (box plots, MUSHRA).
+// The statistics use libm freely: this is a native-only report.
+#include <sys/stat.h>
+
+#include <algorithm>
+#include <cctype>
+#include <cerrno>
+#include <cmath>
+#include <cstdio>
+#include <cstring>
+#include <exception>
+#include <fstream>
+#include <map>
+#include <new>
+#include <set>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "cli.hpp"  // first: it configures rapidjson
+
+#include <rapidjson/error/en.h>
+
+namespace earshot {
+namespace cli {
+namespace {
+
+const char* kHelp =
+    "usage: earshot tally RESULTS... [options]\n"
+    "\n"
+    "Reads the results files (JSON, one per participant) that the listening page\n"
+    "downloads, checks that they come from one test with the same stimuli, and\n"
+    "prints the statistics (format and methods: docs/listening.md).\n"
+    "\n"
+    "  mushra  per condition, over all items and per item: n, mean and its\n"
+    "          confidence interval (t distribution), standard deviation, median,\n"
+    "          quartiles, range; after the ITU-R BS.1534-3 post-screening, which\n"
+    "          excludes an assessor who rates the hidden reference below 90 for\n"
+    "          more than 15% of the items, or the mid anchor above 90 for more than\n"
+    "          15% of the items (who and why is listed)\n"
+    "  abx     correct answers of N per condition pair, pooled and per participant,\n"
+    "          with the one-tailed exact binomial p-value P(X >= correct)\n"
+    "  ab      preference counts per condition pair, with the two-sided exact\n"
+    "          binomial p-value; 'no preference' answers are counted and left out\n"
+    "          of the test\n"
+    "\n"
+    "options:\n"
+    "  --csv FILE        also write the statistics as CSV (overwritten)\n"
+    "  --svg DIR         MUSHRA: write box plots, all.svg and one per item, into DIR\n"
+    "                    (created if missing; files overwritten)\n"
+    "  --confidence C    confidence level of the intervals, 0.5 .. 0.999 (default 0.95)\n"
+    "  --no-screening    keep every assessor (the screening is still reported)\n"
+    "  -h, --help        this text\n"
+    "\n"
+    "exit codes: 0 success, 2 bad command line, 3 unreadable, malformed or\n"
+    "            mismatched results file, or a write failure\n";
+
+constexpr const char* kFormat = "earshot-listening-results";
+constexpr int kVersion = 1;
+constexpr size_t kMaxFileBytes = 64u << 20;
+constexpr int kMaxMushraStimuli = 12;
+
+// ---- statistics -------------------------------------------------------------
+
+// Continued fraction of the regularized incomplete beta function,
+// I_x(a,b) = x^a (1−x)^b / (a·B(a,b)) · 1/(1+ d1/(1+ d2/(1+ …))) with
+//   d_{2m+1} = −(a+m)(a+b+m)x / ((a+2m)(a+2m+1)),  d_{2m} = m(b−m)x / ((a+2m−1)(a+2m))
+// (DLMF 8.17.22), evaluated by the modified Lentz method (Thompson & Barnett,
+// J. Comput. Phys. 64, 1986). Converges quickly for x < (a+1)/(a+b+2).
+double beta_cf(double a, double b, double x) {
+  const double tiny = 1e-300;
+  double c = 1, d = 1 - (a + b) * x / (a + 1);
+  if (std::abs(d) < tiny) d = tiny;
+  d = 1 / d;
+  double h = d;
+  for (int m = 1; m <= 1000; ++m) {
+    const double m2 = 2.0 * m;
+    double aa = m * (b - m) * x / ((a + m2 - 1) * (a + m2));
+    d = 1 + aa * d;
+    if (std::abs(d) < tiny) d = tiny;
+    c = 1 + aa / c;
+    if (std::abs(c) < tiny) c = tiny;
+    d = 1 / d;
+    h *= d * c;
+    aa = -(a + m) * (a + b + m) * x / ((a + m2) * (a + m2 + 1));
+    d = 1 + aa * d;
+    if (std::abs(d) < tiny) d = tiny;
+    c = 1 + aa / c;
+    if (std::abs(c) < tiny) c = tiny;
+    d = 1 / d;
+    const double del = d * c;
+    h *= del;
+    if (std::abs(del - 1) < 1e-16) break;
+  }
+  return h;
+}
+
+// I_x(a, b), a, b > 0, 0 <= x <= 1.
+double beta_inc(double a, double b, double x) {
+  if (x <= 0) return 0;
+  if (x >= 1) return 1;
+  const double ln_front = a * std::log(x) + b * std::log1p(-x) - (std::lgamma(a) + std::lgamma(b) - std::lgamma(a + b));
+  if (x < (a + 1) / (a + b + 2)) return std::exp(ln_front) * beta_cf(a, b, x) / a;
+  return 1 - std::exp(ln_front) * beta_cf(b, a, 1 - x) / b;  // I_x(a,b) = 1 − I_{1−x}(b,a)
+}
+
+// P(T > t) for Student's t with nu degrees of freedom, t >= 0:
+// ½·I_{ν/(ν+t²)}(ν/2, ½) (Abramowitz & Stegun 26.7.1 with 26.5.27).
+double t_upper(double t, double nu) { return 0.5 * beta_inc(nu / 2, 0.5, nu / (nu + t * t)); }
+
+// The p-quantile of Student's t, 0.5 < p < 1, by bisection on t_upper.
+double t_quantile(double p, double nu) {
+  const double q = 1 - p;
+  double lo = 0, hi = 1;
+  while (t_upper(hi, nu) > q) hi *= 2;
+  for (int i = 0; i < 2000 && hi - lo > 1e-15 * hi; ++i) {
+    const double mid = 0.5 * (lo + hi);
+    if (t_upper(mid, nu) > q)
+      lo = mid;
+    else
+      hi = mid;
+  }
+  return 0.5 * (lo + hi);
+}
+
+// Binomial(n, ½) probability of exactly k, through log-gamma.
+double binom_half_pmf(long k, long n) {
+  return std::exp(std::lgamma(n + 1.0) - std::lgamma(k + 1.0) - std::lgamma(n - k + 1.0) - n * std::log(2.0));
+}
+
+// P(X >= k), X ~ Binomial(n, ½): the one-tailed exact test.
+double binom_half_upper(long k, long n) {
+  if (k <= 0) return 1;
+  if (k > n) return 0;
+  double s = 0;
+  for (long i = n; i >= k; --i) s += binom_half_pmf(i, n);  // small terms first
+  return std::min(1.0, s);
+}
+
+// Two-sided exact test for p = ½: the probability of an outcome at least as
+// unlikely as k, which by symmetry is 2·P(X <= min(k, n−k)), capped at 1.
+double binom_half_two_sided(long k, long n) {
+  if (n == 0) return 1;
+  const long m = std::min(k, n - k);
+  return std::min(1.0, 2 * binom_half_upper(n - m, n));
+}
+
+struct Summary {
+  size_t n = 0;
+  double mean = NAN, sd = NAN, ci_lo = NAN, ci_hi = NAN;
+  double median = NAN, q1 = NAN, q3 = NAN, min = NAN, max = NAN;
+  double whisker_lo = NAN, whisker_hi = NAN;  // Tukey: furthest data within 1.5·IQR of the box
+  std::vector<double> outliers;
+};
+
+// Linear interpolation between order statistics (Hyndman & Fan 1996, type 7).
+double quantile_sorted(const std::vector<double>& v, double p) {
+  const double h = (double(v.size()) - 1) * p;
+  const size_t lo = size_t(std::floor(h));
+  if (lo + 1 >= v.size()) return v.back();
+  return v[lo] + (h - double(lo)) * (v[lo + 1] - v[lo]);
+}
+
+Summary summarize(std::vector<double> v, double confidence) {
+  Summary s;
+  s.n = v.size();
+  if (v.empty()) return s;
+  std::sort(v.begin(), v.end());
+  double sum = 0;
+  for (double x : v) sum += x;
+  s.mean = sum / double(v.size());
+  s.min = v.front();
+  s.max = v.back();
+  s.median = quantile_sorted(v, 0.5);
+  s.q1 = quantile_sorted(v, 0.25);
+  s.q3 = quantile_sorted(v, 0.75);
+  if (v.size() >= 2) {
+    double ss = 0;
+    for (double x : v) ss += (x - s.mean) * (x - s.mean);
+    s.sd = std::sqrt(ss / double(v.size() - 1));
+    const double half = t_quantile(0.5 + confidence / 2, double(v.size() - 1)) * s.sd / std::sqrt(double(v.size()));
+    s.ci_lo = s.mean - half;
+    s.ci_hi = s.mean + half;
+  }
+  const double iqr = s.q3 - s.q1;
+  s.whisker_lo = s.q1;
+  s.whisker_hi = s.q3;
+  for (double x : v) {
+    if (x >= s.q1 - 1.5 * iqr) s.whisker_lo = std::min(s.whisker_lo, x);
+    if (x <= s.q3 + 1.5 * iqr) s.whisker_hi = std::max(s.whisker_hi, x);
+    if (x < s.q1 - 1.5 * iqr || x > s.q3 + 1.5 * iqr) s.outliers.push_back(x);
+  }
+  return s;
+}
+
+// ---- results files ------------------------------------------------------------
+
+struct Condition {
+  std::string id, role;  // role: reference, anchor-low, anchor-mid, test
+};
+struct Stimulus {
+  std::string item, condition, hash;
+};
+struct Trial {
+  std::string item;
+  std::vector<std::pair<std::string, double>> ratings;  // mushra: condition → score
+  std::string a, b;                                      // abx, ab: condition ids presented as A and B
+  char x = 0;                                            // abx: 'a' or 'b', which one X was
+  char answer = 0;                                       // abx: 'a'/'b'; ab: 'a'/'b'/'n' (no preference)
+};
+struct Result {
+  std::string file;
+  std::string test_id, type;
+  std::string participant;
+  uint64_t seed = 0;
+  std::vector<Condition> conditions;
+  std::vector<Stimulus> stimuli;
+  std::vector<Trial> trials;
+};
+
+[[noreturn]] void fail(const std::string& file, const std::string& field, const std::string& what) {
+  throw InputError(file + ": " + field + ": " + what);
+}
+
+std::string type_name(const rapidjson::Value& v) {
+  if (v.IsNull()) return "null";
+  if (v.IsBool()) return "a boolean";
+  if (v.IsNumber()) return "a number";
+  if (v.IsString()) return "a string";
+  if (v.IsArray()) return "an array";
+  return "an object";
+}
+
+const rapidjson::Value& member(const std::string& file, const rapidjson::Value& obj, const std::string& path,
+                               const char* key) {
+  auto it = obj.FindMember(key);
+  if (it == obj.MemberEnd()) fail(file, path.empty() ? key : path + "." + key, "missing");
+  return it->value;
+}
+
+std::string get_string(const std::string& file, const rapidjson::Value& obj, const std::string& path, const char* key) {
+  const rapidjson::Value& v = member(file, obj, path, key);
+  const std::string field = path.empty() ? key : path + "." + key;
+  if (!v.IsString()) fail(file, field, "must be a string, not " + type_name(v));
+  std::string s(v.GetString(), v.GetStringLength());
+  if (s.empty()) fail(file, field, "must not be empty");
+  return s;
+}
+
+const rapidjson::Value& get_object(const std::string& file, const rapidjson::Value& obj, const std::string& path,
+                                   const char* key) {
+  const rapidjson::Value& v = member(file, obj, path, key);
+  if (!v.IsObject()) fail(file, path.empty() ? key : path + "." + key, "must be an object, not " + type_name(v));
+  return v;
+}
+
+const rapidjson::Value& get_array(const std::string& file, const rapidjson::Value& obj, const std::string& path,
+                                  const char* key) {
+  const rapidjson::Value& v = member(file, obj, path, key);
+  if (!v.IsArray()) fail(file, path.empty() ? key : path + "." + key, "must be an array, not " + type_name(v));
+  return v;
+}
+
+std::string quoted(const std::string& s) { return "'" + s + "'"; }
+
+bool valid_hash(const std::string& h) {
+  const size_t colon = h.find(':');
+  if (colon == std::string::npos || colon == 0 || colon + 1 == h.size()) return false;
+  for (size_t i = 0; i < colon; ++i) {
+    const char c = h[i];
+    if (!((c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '-')) return false;
+  }
+  for (size_t i = colon + 1; i < h.size(); ++i) {
+    const char c = h[i];
+    if (!((c >= '0' && c <= '9') || (c >= 'a' && c <= 'f'))) return false;
+  }
+  return true;
+}
+
+std::string read_text(const std::string& path) {
+  struct stat st;
+  if (stat(path.c_str(), &st) != 0) throw InputError("cannot read results file '" + path + "': " + std::strerror(errno));
+  if (S_ISDIR(st.st_mode)) throw InputError("'" + path + "' is a folder, not a results file");
+  if (uintmax_t(st.st_size) > kMaxFileBytes)
+    throw InputError("'" + path + "' is " + std::to_string(st.st_size) + " bytes; a results file is at most 64 MiB");
+  std::ifstream f(path, std::ios::binary);
+  if (!f) throw InputError("cannot read results file '" + path + "': " + std::strerror(errno));
+  std::ostringstream ss;
+  ss << f.rdbuf();
+  if (f.bad()) throw InputError("cannot read results file '" + path + "'");
+  return ss.str();
+}
+
+Result load(const std::string& path) {
+  const std::string text = read_text(path);
+  rapidjson::Document doc;
+  doc.Parse(text.c_str(), text.size());
+  if (doc.HasParseError()) {
+    const size_t off = doc.GetErrorOffset();
+    size_t line = 1, col = 1;
+    for (size_t i = 0; i < off && i < text.size(); ++i) {
+      if (text[i] == '\n') {
+        ++line;
+        col = 1;
+      } else {
+        ++col;
+      }
+    }
+    throw InputError(path + ": not valid JSON at line " + std::to_string(line) + ", column " + std::to_string(col) +
+                     ": " + rapidjson::GetParseError_En(doc.GetParseError()));
+  }
+  if (!doc.IsObject()) fail(path, "(top level)", "must be a JSON object, not " + type_name(doc));
+  Result r;
+  r.file = path;
+  const std::string format = get_string(path, doc, "", "format");
+  if (format != kFormat)
+    fail(path, "format", quoted(format) + " is not an earshot results file (expected " + quoted(kFormat) + ")");
+  const rapidjson::Value& ver = member(path, doc, "", "version");
+  if (!ver.IsInt()) fail(path, "version", "must be a whole number, not " + type_name(ver));
+  if (ver.GetInt() != kVersion)
+    fail(path, "version", std::to_string(ver.GetInt()) + " is not supported (this tally reads version " +
+                              std::to_string(kVersion) + ")");
+
+  const rapidjson::Value& test = get_object(path, doc, "", "test");
+  r.test_id = get_string(path, test, "test", "id");
+  r.type = get_string(path, test, "test", "type");
+  if (r.type != "mushra" && r.type != "abx" && r.type != "ab")
+    fail(path, "test.type", quoted(r.type) + " is not a test type (mushra, abx or ab)");
+
+  const rapidjson::Value& who = get_object(path, doc, "", "participant");
+  r.participant = get_string(path, who, "participant", "id");
+  const rapidjson::Value& seed = member(path, who, "participant", "seed");
+  if (!seed.IsUint64() || seed.GetUint64() > 9007199254740991ull)
+    fail(path, "participant.seed", "must be a whole number from 0 to 2^53 - 1");
+  r.seed = seed.GetUint64();
+
+  // Conditions.
+  const rapidjson::Value& conds = get_array(path, doc, "", "conditions");
+  if (conds.Empty()) fail(path, "conditions", "must list at least one condition");
+  std::set<std::string> cond_ids;
+  int n_ref = 0, n_low = 0, n_mid = 0;
+  for (rapidjson::SizeType i = 0; i < conds.Size(); ++i) {
+    const std::string p = "conditions[" + std::to_string(i) + "]";
+    if (!conds[i].IsObject()) fail(path, p, "must be an object, not " + type_name(conds[i]));
+    Condition c;
+    c.id = get_string(path, conds[i], p, "id");
+    c.role = conds[i].HasMember("role") ? get_string(path, conds[i], p, "role") : "test";
+    if (c.role != "reference" && c.role != "anchor-low" && c.role != "anchor-mid" && c.role != "test")
+      fail(path, p + ".role", quoted(c.role) + " is not a role (reference, anchor-low, anchor-mid or test)");
+    if (!cond_ids.insert(c.id).second) fail(path, p + ".id", quoted(c.id) + " is listed twice");
+    n_ref += c.role == "reference";
+    n_low += c.role == "anchor-low";
+    n_mid += c.role == "anchor-mid";
+    r.conditions.push_back(c);
+  }
+  if (n_ref > 1 || n_low > 1 || n_mid > 1)
+    fail(path, "conditions", "at most one condition may have each of the roles reference, anchor-low, anchor-mid");
+  if (r.type == "mushra" && n_ref != 1)
+    fail(path, "conditions", "a mushra test needs exactly one condition with role 'reference' (the hidden reference)");
+
+  // Stimuli: one per (item, condition).
+  const rapidjson::Value& stims = get_array(path, doc, "", "stimuli");
+  if (stims.Empty()) fail(path, "stimuli", "must list at least one stimulus");
+  std::set<std::pair<std::string, std::string>> have;
+  std::map<std::string, int> per_item;
+  for (rapidjson::SizeType i = 0; i < stims.Size(); ++i) {
+    const std::string p = "stimuli[" + std::to_string(i) + "]";
+    if (!stims[i].IsObject()) fail(path, p, "must be an object, not " + type_name(stims[i]));
+    Stimulus s;
+    s.item = get_string(path, stims[i], p, "item");
+    s.condition = get_string(path, stims[i], p, "condition");
+    s.hash = get_string(path, stims[i], p, "hash");
+    if (!cond_ids.count(s.condition))
+      fail(path, p + ".condition", quoted(s.condition) + " is not one of the conditions");
+    if (!valid_hash(s.hash))
+      fail(path, p + ".hash", quoted(s.hash) + " is not ALGORITHM:HEX (e.g. fnv1a64-float32le:0123456789abcdef)");
+    if (!have.insert({s.item, s.condition}).second)
+      fail(path, p, "item " + quoted(s.item) + " has condition " + quoted(s.condition) + " twice");
+    ++per_item[s.item];
+    r.stimuli.push_back(s);
+  }
+  if (r.type == "mushra")
+    for (const auto& kv : per_item)
+      if (kv.second > kMaxMushraStimuli)
+        fail(path, "stimuli", "item " + quoted(kv.first) + " has " + std::to_string(kv.second) +
+                                  " stimuli; a MUSHRA trial has at most 12 (ITU-R BS.1534-3)");
+
+  // Trials.
+  const rapidjson::Value& trials = get_array(path, doc, "", "trials");
+  if (trials.Empty()) fail(path, "trials", "holds no answers");
+  std::set<std::string> rated_items;
+  for (rapidjson::SizeType i = 0; i < trials.Size(); ++i) {
+    const std::string p = "trials[" + std::to_string(i) + "]";
+    const rapidjson::Value& tv = trials[i];
+    if (!tv.IsObject()) fail(path, p, "must be an object, not " + type_name(tv));
+    Trial t;
+    t.item = get_string(path, tv, p, "item");
+    if (!per_item.count(t.item)) fail(path, p + ".item", quoted(t.item) + " has no stimuli");
+    if (r.type == "mushra") {
+      if (!rated_items.insert(t.item).second)
+        fail(path, p + ".item", quoted(t.item) + " was already rated in an earlier trial");
+      const rapidjson::Value& ratings = get_object(path, tv, p, "ratings");
+      std::set<std::string> seen;
+      for (auto m = ratings.MemberBegin(); m != ratings.MemberEnd(); ++m) {
+        const std::string cid(m->name.GetString(), m->name.GetStringLength());
+        const std::string f = p + ".ratings." + cid;
+        if (!seen.insert(cid).second) fail(path, f, "rated twice");
+        if (!have.count({t.item, cid}))
+          fail(path, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
+        if (!m->value.IsNumber()) fail(path, f, "must be a number, not " + type_name(m->value));
+        const double v = m->value.GetDouble();
+        if (!(v >= 0 && v <= 100)) fail(path, f, std::to_string(v) + " is outside the scale 0 .. 100");
+        t.ratings.push_back({cid, v});
+      }
+      for (const Condition& c : r.conditions)
+        if (have.count({t.item, c.id}) && !seen.count(c.id))
+          fail(path, p + ".ratings", "no rating for condition " + quoted(c.id) + ", which item " + quoted(t.item) +
+                                         " has");
+    } else {
+      t.a = get_string(path, tv, p, "a");
+      t.b = get_string(path, tv, p, "b");
+      if (t.a == t.b) fail(path, p, "a and b are the same condition " + quoted(t.a));
+      for (const std::string* c : {&t.a, &t.b})
+        if (!have.count({t.item, *c}))
+          fail(path, p + (c == &t.a ? ".a" : ".b"),
+               "item " + quoted(t.item) + " has no stimulus of condition " + quoted(*c));
+      const std::string answer = get_string(path, tv, p, "answer");
+      if (r.type == "abx") {
+        const std::string x = get_string(path, tv, p, "x");
+        if (x != "a" && x != "b") fail(path, p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
+        if (answer != "a" && answer != "b")
+          fail(path, p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
+        t.x = x[0];
+        t.answer = answer[0];
+      } else {
+        if (answer != "a" && answer != "b" && answer != "none")
+          fail(path, p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
+        t.answer = answer == "none" ? 'n' : answer[0];
+      }
+    }
+    r.trials.push_back(t);
+  }
+  return r;
+}
+
+// Every file must describe the same test with the same stimuli as the first.
+void check_consistent(const std::vector<Result>& rs) {
+  const Result& f = rs[0];
+  std::map<std::string, std::string> participants;
+  for (const Result& r : rs) {
+    auto it = participants.find(r.participant);
+    if (it != participants.end())
+      fail(r.file, "participant.id", quoted(r.participant) + " also appears in " + it->second +
+                                         " (the same participant twice: remove one file)");
+    participants[r.participant] = r.file;
+    if (&r == &f) continue;
+    if (r.test_id != f.test_id)
+      fail(r.file, "test.id", quoted(r.test_id) + " differs from " + quoted(f.test_id) + " in " + f.file +
+                                  " (results of different tests)");
+    if (r.type != f.type)
+      fail(r.file, "test.type", quoted(r.type) + " differs from " + quoted(f.type) + " in " + f.file);
+    if (r.conditions.size() != f.conditions.size())
+      fail(r.file, "conditions", std::to_string(r.conditions.size()) + " conditions, but " + f.file + " has " +
+                                     std::to_string(f.conditions.size()));
+    for (size_t i = 0; i < f.conditions.size(); ++i) {
+      const std::string p = "conditions[" + std::to_string(i) + "]";
+      if (r.conditions[i].id != f.conditions[i].id)
+        fail(r.file, p + ".id", quoted(r.conditions[i].id) + " differs from " + quoted(f.conditions[i].id) + " in " +
+                                    f.file);
+      if (r.conditions[i].role != f.conditions[i].role)
+        fail(r.file, p + ".role", quoted(r.conditions[i].role) + " differs from " + quoted(f.conditions[i].role) +
+                                      " in " + f.file);
+    }
+    std::map<std::pair<std::string, std::string>, const Stimulus*> first;
+    for (const Stimulus& s : f.stimuli) first[{s.item, s.condition}] = &s;
+    std::set<std::pair<std::string, std::string>> seen;
+    for (size_t i = 0; i < r.stimuli.size(); ++i) {
+      const Stimulus& s = r.stimuli[i];
+      const std::string p = "stimuli[" + std::to_string(i) + "]";
+      auto it2 = first.find({s.item, s.condition});
+      if (it2 == first.end())
+        fail(r.file, p, "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " is not in " + f.file);
+      if (it2->second->hash != s.hash)
+        fail(r.file, p + ".hash", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " has hash " +
+                                      s.hash + " but " + f.file + " has " + it2->second->hash +
+                                      " (the participants heard different audio)");
+      seen.insert({s.item, s.condition});
+    }
+    for (const Stimulus& s : f.stimuli)
+      if (!seen.count({s.item, s.condition}))
+        fail(r.file, "stimuli", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " of " + f.file +
+                                    " is missing");
+  }
+}
+
+// ---- output helpers ----------------------------------------------------------------
+
+std::string num(double v, int decimals) { return std::isnan(v) ? "-" : format_fixed(v, decimals); }
+
+std::string csv_num(double v) {
+  if (std::isnan(v)) return "";
+  char buf[40];
+  std::snprintf(buf, sizeof buf, "%.12g", v);
+  return buf;
+}
+
+std::string csv_field(const std::string& s) {
+  if (s.find_first_of(",\"\n\r") == std::string::npos) return s;
+  std::string o = "\"";
+  for (char c : s) {
+    if (c == '"') o += '"';
+    o += c;
+  }
+  return o + "\"";
+}
+
+std::string p_text(double p) {
+  char buf[32];
+  if (p < 0.0001)
+    std::snprintf(buf, sizeof buf, "%.2e", p);
+  else
+    std::snprintf(buf, sizeof buf, "%.4f", p);
+  return buf;
+}
+
+std::string xml_escape(const std::string& s) {
+  std::string o;
+  for (char c : s) {
+    switch (c) {
+      case '&': o += "&amp;"; break;
+      case '<': o += "&lt;"; break;
+      case '>': o += "&gt;"; break;
+      case '"': o += "&quot;"; break;
+      default: o += c;
+    }
+  }
+  return o;
+}
+
+std::string svg_num(double v) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%.3f", v);
+  return buf;
+}
+
+std::string safe_name(const std::string& s) {
+  std::string o;
+  for (char c : s) o += (std::isalnum((unsigned char)c) || c == '-' || c == '_' || c == '.') ? c : '_';
+  return o;
+}
+
+void write_file(const std::string& path, const std::string& text) {
+  std::ofstream f(path, std::ios::binary | std::ios::trunc);
+  if (!f) throw InputError("cannot write '" + path + "': " + std::strerror(errno));
+  f << text;
+  f.close();
+  if (!f) throw InputError("cannot write '" + path + "'");
+}
+
+// ---- MUSHRA ----------------------------------------------------------------------------
+
+struct Screening {
+  bool excluded = false;
+  std::vector<std::string> reasons;
+};
+
+// ITU-R BS.1534-3 post-screening (§4.1.2, as quoted in docs/listening.md):
+// exclude an assessor who rates the hidden reference below 90 for more than
+// 15 % of the items, or the mid anchor above 90 for more than 15 % of the items.
+Screening screen(const Result& r, const std::string& ref_id, const std::string& mid_id) {
+  Screening s;
+  const size_t items = r.trials.size();
+  std::vector<std::string> ref_low, mid_high;
+  for (const Trial& t : r.trials)
+    for (const auto& kv : t.ratings) {
+      if (kv.first == ref_id && kv.second < 90) ref_low.push_back(t.item + " " + num(kv.second, 0));
+      if (!mid_id.empty() && kv.first == mid_id && kv.second > 90) mid_high.push_back(t.item + " " + num(kv.second, 0));
+    }
+  auto judge = [&](const std::vector<std::string>& hits, const std::string& what) {
+    const double share = double(hits.size()) / double(items);
+    if (hits.size() * 100 > items * 15) {  // more than 15 %, in exact integers
+      s.excluded = true;
+      std::string list;
+      for (const std::string& h : hits) list += (list.empty() ? "" : ", ") + h;
+      s.reasons.push_back(what + " in " + std::to_string(hits.size()) + " of " + std::to_string(items) + " items (" +
+                          format_fixed(100 * share, 0) + "% > 15%): " + list);
+    }
+  };
+  judge(ref_low, "hidden reference rated below 90");
+  judge(mid_high, "mid anchor rated above 90");
+  return s;
+}
+
+std::string box_plot_svg(const std::string& title, const std::vector<Condition>& conds,
+                         const std::vector<Summary>& sums) {
+  const double left = 110, top = 50, plot_h = 400, slot = 90, box_w = 44;
+  const double width = std::max(left + slot * double(conds.size()) + 30, 560.0), height = top + plot_h + 80;
+  auto y = [&](double v) { return top + plot_h * (1 - v / 100); };
+  std::ostringstream o;
+  o << "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" << svg_num(width) << "\" height=\"" << svg_num(height)
+    << "\" viewBox=\"0 0 " << svg_num(width) << " " << svg_num(height) << "\" font-family=\"sans-serif\""
+    << " font-size=\"12\">\n";
+  o << "<title>" << xml_escape(title) << "</title>\n";
+  o << "<rect x=\"0\" y=\"0\" width=\"" << svg_num(width) << "\" height=\"" << svg_num(height)
+    << "\" fill=\"#ffffff\"/>\n";
+  o << "<text x=\"" << svg_num(left) << "\" y=\"24\" font-size=\"15\" fill=\"#1b1b1b\">" << xml_escape(title)
+    << "</text>\n";
+  // The five labelled bands of the BS.1534 scale, lightly shaded in turn.
+  static const char* bands[] = {"Bad", "Poor", "Fair", "Good", "Excellent"};
+  for (int b = 0; b < 5; ++b) {
+    const double y0 = y(20.0 * (b + 1)), y1 = y(20.0 * b);
+    o << "<rect class=\"band\" x=\"" << svg_num(left) << "\" y=\"" << svg_num(y0) << "\" width=\""
+      << svg_num(slot * double(conds.size())) << "\" height=\"" << svg_num(y1 - y0) << "\" fill=\""
+      << (b % 2 ? "#f2f4f3" : "#fafbfa") << "\"/>\n";
+    o << "<text x=\"8\" y=\"" << svg_num((y0 + y1) / 2 + 4) << "\" fill=\"#5a5f5c\">" << bands[b] << "</text>\n";
+  }
+  for (int v = 0; v <= 100; v += 20) {
+    o << "<line x1=\"" << svg_num(left - 5) << "\" y1=\"" << svg_num(y(v)) << "\" x2=\""
+      << svg_num(left + slot * double(conds.size())) << "\" y2=\"" << svg_num(y(v))
+      << "\" stroke=\"#c9cecb\" stroke-width=\"1\"/>\n";
+    o << "<text x=\"" << svg_num(left - 9) << "\" y=\"" << svg_num(y(v) + 4) << "\" text-anchor=\"end\""
+      << " fill=\"#5a5f5c\">" << v << "</text>\n";
+  }
+  for (size_t i = 0; i < conds.size(); ++i) {
+    const Summary& s = sums[i];
+    const double cx = left + slot * (double(i) + 0.5);
+    o << "<text x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 20) << "\" text-anchor=\"middle\""
+      << " fill=\"#1b1b1b\">" << xml_escape(conds[i].id) << "</text>\n";
+    o << "<text x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 36) << "\" text-anchor=\"middle\""
+      << " fill=\"#5a5f5c\">n = " << s.n << "</text>\n";
+    if (s.n == 0) continue;
+    o << "<g class=\"box\" data-condition=\"" << xml_escape(conds[i].id) << "\" data-n=\"" << s.n
+      << "\" data-q1=\"" << csv_num(s.q1) << "\" data-median=\"" << csv_num(s.median) << "\" data-q3=\""
+      << csv_num(s.q3) << "\" data-whisker-low=\"" << csv_num(s.whisker_lo) << "\" data-whisker-high=\""
+      << csv_num(s.whisker_hi) << "\" data-mean=\"" << csv_num(s.mean) << "\">\n";
+    o << "  <line class=\"whisker\" x1=\"" << svg_num(cx) << "\" y1=\"" << svg_num(y(s.whisker_hi)) << "\" x2=\""
+      << svg_num(cx) << "\" y2=\"" << svg_num(y(s.whisker_lo)) << "\" stroke=\"#2d3a34\" stroke-width=\"1.2\"/>\n";
+    for (double w : {s.whisker_lo, s.whisker_hi})
+      o << "  <line x1=\"" << svg_num(cx - box_w / 4) << "\" y1=\"" << svg_num(y(w)) << "\" x2=\""
+        << svg_num(cx + box_w / 4) << "\" y2=\"" << svg_num(y(w)) << "\" stroke=\"#2d3a34\" stroke-width=\"1.2\"/>\n";
+    o << "  <rect class=\"iqr\" x=\"" << svg_num(cx - box_w / 2) << "\" y=\"" << svg_num(y(s.q3)) << "\" width=\""
+      << svg_num(box_w) << "\" height=\"" << svg_num(y(s.q1) - y(s.q3))
+      << "\" fill=\"#9cc7b4\" stroke=\"#2d3a34\" stroke-width=\"1.2\"/>\n";
+    o << "  <line class=\"median\" x1=\"" << svg_num(cx - box_w / 2) << "\" y1=\"" << svg_num(y(s.median))
+      << "\" x2=\"" << svg_num(cx + box_w / 2) << "\" y2=\"" << svg_num(y(s.median))
+      << "\" stroke=\"#10201a\" stroke-width=\"2.4\"/>\n";
+    const double my = y(s.mean);
+    o << "  <path class=\"mean\" d=\"M" << svg_num(cx) << " " << svg_num(my - 5) << " L" << svg_num(cx + 5) << " "
+      << svg_num(my) << " L" << svg_num(cx) << " " << svg_num(my + 5) << " L" << svg_num(cx - 5) << " "
+      << svg_num(my) << " Z\" fill=\"#ffffff\" stroke=\"#10201a\" stroke-width=\"1.2\"/>\n";
+    for (double v : s.outliers)
+      o << "  <circle class=\"outlier\" cx=\"" << svg_num(cx) << "\" cy=\"" << svg_num(y(v))
+        << "\" r=\"3\" fill=\"none\" stroke=\"#2d3a34\"/>\n";
+    o << "</g>\n";
+  }
+  o << "<text x=\"" << svg_num(left) << "\" y=\"" << svg_num(height - 12) << "\" fill=\"#5a5f5c\" font-size=\"11\">"
+    << "box: quartiles, line: median, diamond: mean, whiskers: furthest data within 1.5 IQR</text>\n";
+  o << "</svg>\n";
+  return o.str();
+}
+
+int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence) {
+  const std::vector<Condition>& conds = rs[0].conditions;
+  std::string ref_id, low_id, mid_id;
+  for (const Condition& c : conds) {
+    if (c.role == "reference") ref_id = c.id;
+    if (c.role == "anchor-low") low_id = c.id;
+    if (c.role == "anchor-mid") mid_id = c.id;
+  }
+  const bool screening = !a.has("--no-screening");
+  std::vector<const Result*> kept;
+  std::printf("MUSHRA test '%s': %zu results files\n\n", rs[0].test_id.c_str(), rs.size());
+  std::printf("post-screening (ITU-R BS.1534-3): hidden reference '%s', mid anchor %s%s\n", ref_id.c_str(),
+              mid_id.empty() ? "(none declared: that criterion is not applied)" : ("'" + mid_id + "'").c_str(),
+              screening ? "" : "; --no-screening: every assessor is kept");
+  int n_excluded = 0;
+  for (const Result& r : rs) {
+    const Screening s = screen(r, ref_id, mid_id);
+    if (s.excluded) {
+      ++n_excluded;
+      std::printf("  %s %s (%s, seed %llu):\n", screening ? "excluded" : "would exclude", r.participant.c_str(),
+                  r.file.c_str(), (unsigned long long)r.seed);
+      for (const std::string& why : s.reasons) std::printf("    %s\n", why.c_str());
+    }
+    if (!s.excluded || !screening) kept.push_back(&r);
+  }
+  if (n_excluded == 0) std::printf("  no assessor excluded\n");
+  std::printf("  %zu of %zu assessors kept\n\n", kept.size(), rs.size());
+
+  // Items in the order of the first file's stimuli.
+  std::vector<std::string> items;
+  for (const Stimulus& s : rs[0].stimuli)
+    if (std::find(items.begin(), items.end(), s.item) == items.end()) items.push_back(s.item);
+
+  struct Row {
+    std::string scope;  // "all" or an item
+    std::vector<Summary> sums;
+  };
+  std::vector<Row> rows;
+  auto gather = [&](const std::string* item) {
+    Row row;
+    row.scope = item ? *item : "all";
+    for (const Condition& c : conds) {
+      std::vector<double> v;
+      for (const Result* r : kept)
+        for (const Trial& t : r->trials)
+          if (!item || t.item == *item)
+            for (const auto& kv : t.ratings)
+              if (kv.first == c.id) v.push_back(kv.second);
+      row.sums.push_back(summarize(v, confidence));
+    }
+    rows.push_back(row);
+  };
+  gather(nullptr);
+  for (const std::string& it : items) gather(&it);
+
+  const std::string ci_head = format_fixed(100 * confidence, 0) + "% CI (t)";
+  for (const Row& row : rows) {
+    std::printf("%s\n", row.scope == "all" ? "all items" : ("item " + row.scope).c_str());
+    std::printf("  %-16s %-10s %5s %7s %17s %6s %7s %16s %12s\n", "condition", "role", "n", "mean", ci_head.c_str(),
+                "sd", "median", "IQR (Q1 .. Q3)", "range");
+    for (size_t i = 0; i < conds.size(); ++i) {
+      const Summary& s = row.sums[i];
+      if (s.n == 0) continue;
+      const std::string ci = std::isnan(s.ci_lo) ? "-" : num(s.ci_lo, 1) + " .. " + num(s.ci_hi, 1);
+      const std::string iqr = num(s.q1, 1) + " .. " + num(s.q3, 1);
+      const std::string range = num(s.min, 0) + " .. " + num(s.max, 0);
+      std::printf("  %-16s %-10s %5zu %7s %17s %6s %7s %16s %12s\n", conds[i].id.c_str(), conds[i].role.c_str(), s.n,
+                  num(s.mean, 1).c_str(), ci.c_str(), num(s.sd, 1).c_str(), num(s.median, 1).c_str(), iqr.c_str(),
+                  range.c_str());
+    }
+    std::printf("\n");
+  }
+  if (kept.empty()) std::printf("no assessor is left after the post-screening: there are no statistics\n");
+
+  if (const std::string* csv = a.last("--csv")) {
+    std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max\n";
+    for (const Row& row : rows)
+      for (size_t i = 0; i < conds.size(); ++i) {
+        const Summary& s = row.sums[i];
+        if (s.n == 0) continue;
+        o += csv_field(row.scope) + "," + csv_field(conds[i].id) + "," + conds[i].role + "," + std::to_string(s.n) +
+             "," + csv_num(s.mean) + "," + csv_num(s.sd) + "," + csv_num(s.ci_lo) + "," + csv_num(s.ci_hi) + "," +
+             csv_num(confidence) + "," + csv_num(s.median) + "," + csv_num(s.q1) + "," + csv_num(s.q3) + "," +
+             csv_num(s.min) + "," + csv_num(s.max) + "\n";
+      }
+    write_file(*csv, o);
+  }
+  if (const std::string* dir = a.last("--svg")) {
+    std::set<std::string> names;
+    for (const Row& row : rows) {
+      std::string name = row.scope == "all" ? "all" : "item-" + safe_name(row.scope);
+      while (!names.insert(name).second) name += "_";
+      const std::string title = "MUSHRA " + rs[0].test_id + ": " + (row.scope == "all" ? "all items" : "item " + row.scope) +
+                                " (" + std::to_string(kept.size()) + " assessors)";
+      write_file(*dir + "/" + name + ".svg", box_plot_svg(title, conds, row.sums));
+    }
+  }
+  return kExitOk;
+}
+
+// ---- ABX and A/B -----------------------------------------------------------------------
+
+// Pairs of conditions, unordered, keyed in the conditions' declared order.
+std::pair<std::string, std::string> pair_key(const std::vector<Condition>& conds, const std::string& a,
+                                             const std::string& b) {
+  size_t ia = 0, ib = 0;
+  for (size_t i = 0; i < conds.size(); ++i) {
+    if (conds[i].id == a) ia = i;
+    if (conds[i].id == b) ib = i;
+  }
+  return ia < ib ? std::make_pair(a, b) : std::make_pair(b, a);
+}
+
+int tally_abx(const std::vector<Result>& rs, const Args& a) {
+  const std::vector<Condition>& conds = rs[0].conditions;
+  struct Count {
+    long correct = 0, trials = 0;
+  };
+  std::map<std::pair<std::string, std::string>, Count> pooled;
+  std::map<std::pair<std::string, std::string>, std::vector<std::pair<const Result*, Count>>> per;
+  std::vector<std::pair<std::string, std::string>> order;
+  for (const Result& r : rs) {
+    std::map<std::pair<std::string, std::string>, Count> mine;
+    for (const Trial& t : r.trials) {
+      const auto k = pair_key(conds, t.a, t.b);
+      if (!pooled.count(k)) order.push_back(k);
+      Count& c = pooled[k];
+      ++c.trials;
+      ++mine[k].trials;
+      if (t.answer == t.x) {
+        ++c.correct;
+        ++mine[k].correct;
+      }
+    }
+    for (const auto& kv : mine) per[kv.first].push_back({&r, kv.second});
+  }
+  std::printf("ABX test '%s': %zu results files\n", rs[0].test_id.c_str(), rs.size());
+  std::printf("p: one-tailed exact binomial test, P(X >= correct) with X ~ Binomial(trials, 1/2)\n\n");
+  std::printf("  %-34s %-22s %8s %7s %9s\n", "pair", "participant", "correct", "trials", "p");
+  std::string csv = "pair_a,pair_b,participant,seed,correct,trials,p_one_tailed\n";
+  for (const auto& k : order) {
+    const Count& c = pooled[k];
+    const std::string pair = k.first + " vs " + k.second;
+    const double p = binom_half_upper(c.correct, c.trials);
+    std::printf("  %-34s %-22s %8ld %7ld %9s\n", pair.c_str(), "(all)", c.correct, c.trials, p_text(p).c_str());
+    csv += csv_field(k.first) + "," + csv_field(k.second) + ",," + "," + std::to_string(c.correct) + "," +
+           std::to_string(c.trials) + "," + csv_num(p) + "\n";
+    for (const auto& pr : per[k]) {
+      const double pp = binom_half_upper(pr.second.correct, pr.second.trials);
+      std::printf("  %-34s %-22s %8ld %7ld %9s\n", "", pr.first->participant.c_str(), pr.second.correct,
+                  pr.second.trials, p_text(pp).c_str());
+      csv += csv_field(k.first) + "," + csv_field(k.second) + "," + csv_field(pr.first->participant) + "," +
+             std::to_string(pr.first->seed) + "," + std::to_string(pr.second.correct) + "," +
+             std::to_string(pr.second.trials) + "," + csv_num(pp) + "\n";
+    }
+  }
+  if (const std::string* f = a.last("--csv")) write_file(*f, csv);
+  return kExitOk;
+}
+
+int tally_ab(const std::vector<Result>& rs, const Args& a) {
+  const std::vector<Condition>& conds = rs[0].conditions;
+  struct Count {
+    long first = 0, second = 0, none = 0;
+  };
+  std::map<std::pair<std::string, std::string>, Count> counts;
+  std::vector<std::pair<std::string, std::string>> order;
+  for (const Result& r : rs)
+    for (const Trial& t : r.trials) {
+      const auto k = pair_key(conds, t.a, t.b);
+      if (!counts.count(k)) order.push_back(k);
+      Count& c = counts[k];
+      if (t.answer == 'n') {
+        ++c.none;
+        continue;
+      }
+      const std::string& chosen = t.answer == 'a' ? t.a : t.b;
+      if (chosen == k.first)
+        ++c.first;
+      else
+        ++c.second;
+    }
+  std::printf("A/B preference test '%s': %zu results files\n", rs[0].test_id.c_str(), rs.size());
+  std::printf("p: two-sided exact binomial test of the preferences against 1/2; 'no preference'\n"
+              "answers are counted but left out of the test\n\n");
+  std::printf("  %-34s %10s %10s %8s %9s\n", "pair (first vs second)", "prefer 1st", "prefer 2nd", "no pref",
+              "p");
+  std::string csv = "pair_a,pair_b,prefer_a,prefer_b,no_preference,p_two_sided\n";
+  for (const auto& k : order) {
+    const Count& c = counts[k];
+    const double p = binom_half_two_sided(c.first, c.first + c.second);
+    const std::string pair = k.first + " vs " + k.second;
+    std::printf("  %-34s %10ld %10ld %8ld %9s\n", pair.c_str(), c.first, c.second, c.none, p_text(p).c_str());
+    csv += csv_field(k.first) + "," + csv_field(k.second) + "," + std::to_string(c.first) + "," +
+           std::to_string(c.second) + "," + std::to_string(c.none) + "," + csv_num(p) + "\n";
+  }
+  if (const std::string* f = a.last("--csv")) write_file(*f, csv);
+  return kExitOk;
+}
+
+int cmd_tally(const std::vector<std::string>& argv) {
+  const Args a = parse_args(argv, {{"--help", false},
+                                   {"--csv", true},
+                                   {"--svg", true},
+                                   {"--confidence", true},
+                                   {"--no-screening", false}});
+  if (a.has("--help")) {
+    std::fputs(kHelp, stdout);
+    return kExitOk;
+  }
+  if (a.positional.empty()) throw UsageError("give at least one RESULTS file");
+  double confidence = 0.95;
+  if (const std::string* c = a.last("--confidence")) confidence = parse_number("--confidence", *c, 0.5, 0.999);
+  std::vector<Result> rs;
+  for (const std::string& p : a.positional) rs.push_back(load(p));
+  check_consistent(rs);
+  if (rs[0].type != "mushra") {
+    if (a.has("--svg")) throw UsageError("--svg draws MUSHRA box plots; these are " + rs[0].type + " results");
+    if (a.has("--no-screening")) throw UsageError("--no-screening applies to MUSHRA results only");
+  }
+  if (const std::string* dir = a.last("--svg")) {
+    struct stat st;
+    if (stat(dir->c_str(), &st) == 0) {
+      if (!S_ISDIR(st.st_mode)) throw UsageError("--svg '" + *dir + "' exists and is not a folder");
+    } else if (mkdir(dir->c_str(), 0777) != 0) {
+      throw InputError("cannot create folder '" + *dir + "': " + std::strerror(errno));
+    }
+  }
+  if (rs[0].type == "mushra") return tally_mushra(rs, a, confidence);
+  if (rs[0].type == "abx") return tally_abx(rs, a);
+  return tally_ab(rs, a);
+}
+
+}  // namespace
+}  // namespace cli
+}  // namespace earshot
+
+// Entry point for dsp/cli/main.cpp; argv[0] is "tally".
+int earshot_cmd_tally(int argc, char** argv) {
+  using namespace earshot::cli;
+  const std::vector<std::string> rest(argv + (argc > 0 ? 1 : 0), argv + argc);
+  try {
+    const int rc = cmd_tally(rest);
+    if (std::fflush(stdout) != 0) {
+      std::fputs("earshot tally: cannot write to standard output\n", stderr);
+      return kExitInput;
+    }
+    return rc;
+  } catch (const UsageError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot tally: %s\nRun 'earshot tally --help' for usage.\n", e.what());
+    return kExitUsage;
+  } catch (const InputError& e) {
+    std::fflush(stdout);
+    std::fprintf(stderr, "earshot tally: %s\n", e.what());
+    return kExitInput;
+  } catch (const std::bad_alloc&) {
+    std::fputs("earshot tally: out of memory\n", stderr);
+    return kExitInput;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "earshot tally: internal error: %s\n", e.what());
+    return kExitInput;
+  }
+}
