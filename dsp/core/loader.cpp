@@ -580,10 +580,13 @@ std::shared_ptr<const Model> load_model(const unsigned char* bytes, size_t len, 
     if (total > kMaxParameters) return bad("effect file: more than " + std::to_string(kMaxParameters) + " parameters in all");
     if (!raw.emplace(key, r).second) return bad(where + ": listed twice");
   }
-  // Overlap: sort by begin and compare neighbours.
+  // Overlap: sort by begin and compare neighbours. Ties are ordered by name,
+  // not by pointer, so the message is the same on every platform.
   std::vector<std::pair<uint64_t, const std::string*>> spans;
   for (auto& kv : raw) spans.push_back({kv.second.begin, &kv.first});
-  std::sort(spans.begin(), spans.end());
+  std::sort(spans.begin(), spans.end(), [](const auto& a, const auto& b) {
+    return a.first != b.first ? a.first < b.first : *a.second < *b.second;
+  });
   for (size_t i = 1; i < spans.size(); ++i) {
     const RawTensor& prev = raw[*spans[i - 1].second];
     if (spans[i].first < prev.end && raw[*spans[i].second].end > spans[i].first)
