@@ -50,14 +50,13 @@ set(_earshot_exports ${_earshot_abi} malloc free)
 list(TRANSFORM _earshot_exports PREPEND "_" OUTPUT_VARIABLE _earshot_emcc_exports)
 list(JOIN _earshot_emcc_exports "," _earshot_emcc_exports)
 
+# The common core sources: every dsp/core/*.cpp but the per-variant one, so a
+# new core file reaches both builds without an edit here.
+file(GLOB _earshot_core CONFIGURE_DEPENDS ${CMAKE_SOURCE_DIR}/dsp/core/*.cpp)
+list(REMOVE_ITEM _earshot_core ${CMAKE_SOURCE_DIR}/dsp/core/variant.cpp)
+
 set(_earshot_name earshot-${EARSHOT_WASM_VARIANT})
-add_executable(earshot_wasm
-  dsp/core/loader.cpp
-  dsp/core/engine.cpp
-  dsp/core/variants.cpp
-  dsp/core/resampler.cpp
-  dsp/core/variant.cpp
-  dsp/wasm/standalone.cpp)
+add_executable(earshot_wasm ${_earshot_core} dsp/core/variant.cpp dsp/wasm/standalone.cpp)
 set_target_properties(earshot_wasm PROPERTIES OUTPUT_NAME ${_earshot_name} SUFFIX ".wasm")
 target_include_directories(earshot_wasm PRIVATE dsp/include dsp/core)
 target_include_directories(earshot_wasm SYSTEM PRIVATE ${_earshot_sysinc})

@@ -1,0 +1,207 @@
+// Native side of the WebAssembly parity tests and of tools/wasm-bench.mjs:
+// runs the same command script the JS side runs (tests/node/script.mjs)
+// through the C ABI of build/<dir>/libearshot.so, so native and WASM reach the
+// core through the same door. Built on demand by tests/node/native.mjs.
+//
+//   native_run script FILE       run a command script (below), print results
+//   native_run errors FILE...    try to load each effect file, print one line each
+//   native_run bench FILE RATE VARIANT SECONDS BLOCK REPEATS
+//                                time earshot_process, print the best wall time
+//
+// Script commands, one per line:
+//   create PATH RATE VARIANT      load the effect (VARIANT "-" = default)
+//   input PATH                    raw little-endian float32 input samples
+//   process N                     the next N input samples, appended to the output
+//   control INDEX VALUE | mix W | gain IN OUT | reset
+//   output PATH                   write the output so far as raw float32
+// Values are decimal; a float32 printed by JS with enough digits is parsed
+// back to the same float. Each setter prints "status LINE CODE".
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <fstream>
+#include <iostream>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "earshot/earshot.h"
+
+namespace {
+
+std::vector<unsigned char> read_file(const std::string& path) {
+  std::ifstream f(path, std::ios::binary);
+  if (!f) {
+    std::fprintf(stderr, "native_run: cannot read %s\n", path.c_str());
+    std::exit(2);
+  }
+  return std::vector<unsigned char>((std::istreambuf_iterator<char>(f)), std::istreambuf_iterator<char>());
+}
+
+earshot_stream* create(const std::vector<unsigned char>& bytes, double rate, const std::string& variant,
+                       std::string& error) {
+  char err[1024];
+  err[0] = 0;
+  earshot_stream* s = earshot_create(bytes.data(), bytes.size(), rate, variant == "-" ? nullptr : variant.c_str(),
+                                     err, sizeof err);
+  error = err;
+  return s;
+}
+
+int run_script(const std::string& path) {
+  std::ifstream f(path);
+  if (!f) {
+    std::fprintf(stderr, "native_run: cannot read script %s\n", path.c_str());
+    return 2;
+  }
+  earshot_stream* s = nullptr;
+  std::vector<float> in, out;
+  size_t pos = 0;
+  std::string line;
+  int lineno = 0;
+  while (std::getline(f, line)) {
+    ++lineno;
+    std::istringstream ls(line);
+    std::string cmd;
+    if (!(ls >> cmd)) continue;
+    if (cmd == "create") {
+      std::string p, variant;
+      double rate;
+      ls >> p >> rate >> variant;
+      std::string error;
+      s = create(read_file(p), rate, variant, error);
+      if (!s) {
+        std::printf("error %s\n", error.c_str());
+        return 0;
+      }
+      continue;
+    }
+    if (cmd == "input") {
+      std::string p;
+      ls >> p;
+      const auto b = read_file(p);
+      in.resize(b.size() / 4);
+      std::memcpy(in.data(), b.data(), in.size() * 4);
+      continue;
+    }
+    if (!s) {
+      std::fprintf(stderr, "native_run: line %d: '%s' before create\n", lineno, cmd.c_str());
+      return 2;
+    }
+    if (cmd == "process") {
+      int n;
+      ls >> n;
+      if (pos + size_t(n) > in.size()) {
+        std::fprintf(stderr, "native_run: line %d: input exhausted\n", lineno);
+        return 2;
+      }
+      out.resize(pos + size_t(n));
+      if (earshot_process(s, in.data() + pos, out.data() + pos, n) != n) {
+        std::fprintf(stderr, "native_run: line %d: earshot_process refused %d samples\n", lineno, n);
+        return 2;
+      }
+      pos += size_t(n);
+    } else if (cmd == "control") {
+      int i;
+      std::string v;
+      ls >> i >> v;
+      std::printf("status %d %d\n", lineno, earshot_set_control(s, i, float(std::strtod(v.c_str(), nullptr))));
+    } else if (cmd == "mix") {
+      std::string v;
+      ls >> v;
+      std::printf("status %d %d\n", lineno, earshot_set_mix(s, float(std::strtod(v.c_str(), nullptr))));
+    } else if (cmd == "gain") {
+      std::string a, b;
+      ls >> a >> b;
+      std::printf("status %d %d\n", lineno,
+                  earshot_set_gain(s, float(std::strtod(a.c_str(), nullptr)), float(std::strtod(b.c_str(), nullptr))));
+    } else if (cmd == "reset") {
+      earshot_reset(s);
+    } else if (cmd == "output") {
+      std::string p;
+      ls >> p;
+      std::ofstream o(p, std::ios::binary);
+      o.write(reinterpret_cast<const char*>(out.data()), std::streamsize(out.size() * 4));
+    } else {
+      std::fprintf(stderr, "native_run: line %d: unknown command '%s'\n", lineno, cmd.c_str());
+      return 2;
+    }
+  }
+  if (s) {
+    std::printf("variant %s\n", earshot_variant(s));
+    std::printf("latency %d\n", earshot_latency(s));
+    std::printf("nonfinite %u\n", earshot_nonfinite_count(s));
+    std::printf("info %s\n", earshot_info(s));
+    earshot_destroy(s);
+  }
+  return 0;
+}
+
+int run_errors(int argc, char** argv) {
+  for (int i = 0; i < argc; ++i) {
+    std::string error;
+    earshot_stream* s = create(read_file(argv[i]), 48000, "-", error);
+    if (s) {
+      std::printf("ok\n");
+      earshot_destroy(s);
+    } else {
+      std::printf("error %s\n", error.c_str());
+    }
+  }
+  return 0;
+}
+
+int run_bench(char** argv) {
+  const auto bytes = read_file(argv[0]);
+  const double rate = std::atof(argv[1]);
+  const std::string variant = argv[2];
+  const double seconds = std::atof(argv[3]);
+  const int block = std::atoi(argv[4]);
+  const int repeats = std::atoi(argv[5]);
+  const size_t n = size_t(seconds * rate);
+  // The same test signal as tools/wasm-bench.mjs: a 220 Hz sine at −12 dBFS
+  // plus a small deterministic hash noise, so no path meets only zeros.
+  std::vector<float> in(n), out(n);
+  uint32_t h = 12345;
+  for (size_t i = 0; i < n; ++i) {
+    h = h * 1664525u + 1013904223u;
+    const double phase = double(i % 48000) / 48000.0;  // exact period: no libm drift worries
+    const double tri = 4 * std::fabs(phase * 220 - std::floor(phase * 220 + 0.5)) - 1;
+    in[i] = float(0.25 * tri + 0.01 * (double(h >> 8) / 16777216.0 - 0.5));
+  }
+  std::string error;
+  earshot_stream* s = create(bytes, rate, variant, error);
+  if (!s) {
+    std::printf("error %s\n", error.c_str());
+    return 0;
+  }
+  double best = 1e30;
+  for (int r = 0; r < repeats; ++r) {
+    earshot_reset(s);
+    const auto t0 = std::chrono::steady_clock::now();
+    for (size_t off = 0; off < n; off += size_t(block)) {
+      const int k = int(std::min<size_t>(size_t(block), n - off));
+      earshot_process(s, in.data() + off, out.data() + off, k);
+    }
+    const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    if (el < best) best = el;
+  }
+  double sum = 0;
+  for (float v : out) sum += double(v);
+  std::printf("variant %s\nseconds %.9f\nchecksum %.9g\n", earshot_variant(s), best, sum);
+  earshot_destroy(s);
+  return 0;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  if (argc >= 3 && std::string(argv[1]) == "script") return run_script(argv[2]);
+  if (argc >= 3 && std::string(argv[1]) == "errors") return run_errors(argc - 2, argv + 2);
+  if (argc == 8 && std::string(argv[1]) == "bench") return run_bench(argv + 2);
+  std::fprintf(stderr,
+               "usage: native_run script FILE | errors FILE... | bench FILE RATE VARIANT SECONDS BLOCK REPEATS\n");
+  return 2;
+}

@@ -1,0 +1,396 @@
+// The WebAssembly loader shared, unchanged, by the AudioWorklet, the offline
+// Web Worker and Node: it instantiates earshot-simd.wasm or
+// earshot-scalar.wasm from bytes and wraps the C ABI
+// (dsp/include/earshot/earshot.h) in an Effect object.
+//
+// Written for the AudioWorkletGlobalScope, which has no fetch, TextDecoder,
+// TextEncoder, atob or performance.now: the module is compiled synchronously
+// from bytes the caller already holds, and strings cross the boundary through
+// the UTF-8 coder below.
+//
+//   const variant = loadVariant(wasmBytes, { name: 'simd' });
+//   const fx = createEffect(effectFileBytes, sampleRate, variant);
+//   fx.setControl('drive', 0.7);
+//   fx.process(input, output);   // Float32Arrays of any equal length
+//   fx.destroy();
+//
+// process() allocates nothing: each effect owns one scratch region of
+// CHUNK floats (256 KiB) inside wasm memory and moves audio through it.
+// Views on memory are re-derived whenever memory.buffer changes (growth
+// detaches the old buffer).
+
+export const MAX_BLOCK = 65536; // EARSHOT_MAX_BLOCK, the most one earshot_process call takes
+// Samples per core call. A process() call of up to CHUNK samples is exactly
+// one earshot_process call, as natively: that matters only for non-finite
+// output, where the core silences the whole call (for finite audio the
+// partition never changes a sample).
+export const CHUNK = MAX_BLOCK;
+
+const ERROR_CAP = 1024; // bytes for the core's creation error text
+const NAME_CAP = 256; // bytes for a control name passed to earshot_control_index
+
+// Every function of the C ABI; the builds export exactly these plus memory,
+// malloc, free and _initialize.
+export const ABI_FUNCTIONS = Object.freeze([
+  'earshot_create', 'earshot_process', 'earshot_control_count', 'earshot_control_index',
+  'earshot_set_control', 'earshot_get_control', 'earshot_set_mix', 'earshot_set_gain',
+  'earshot_reset', 'earshot_latency', 'earshot_info', 'earshot_variant',
+  'earshot_nonfinite_count', 'earshot_status_text', 'earshot_destroy',
+]);
+
+// ---------------------------------------------------------------- UTF-8
+
+// Encodes a JS string as UTF-8 into `bytes` from `at`; returns the number of
+// bytes the whole string needs (which may exceed the room; nothing is written
+// past bytes.length). Lone surrogates become U+FFFD, as in TextEncoder.
+export function utf8Encode(text, bytes, at = 0) {
+  let n = 0;
+  for (let i = 0; i < text.length; i++) {
+    let c = text.charCodeAt(i);
+    if (c >= 0xd800 && c <= 0xdfff) {
+      const d = i + 1 < text.length ? text.charCodeAt(i + 1) : 0;
+      if (c <= 0xdbff && d >= 0xdc00 && d <= 0xdfff) {
+        c = 0x10000 + ((c - 0xd800) << 10) + (d - 0xdc00);
+        i++;
+      } else {
+        c = 0xfffd;
+      }
+    }
+    if (c < 0x80) {
+      put(c);
+    } else if (c < 0x800) {
+      put(0xc0 | (c >> 6));
+      put(0x80 | (c & 63));
+    } else if (c < 0x10000) {
+      put(0xe0 | (c >> 12));
+      put(0x80 | ((c >> 6) & 63));
+      put(0x80 | (c & 63));
+    } else {
+      put(0xf0 | (c >> 18));
+      put(0x80 | ((c >> 12) & 63));
+      put(0x80 | ((c >> 6) & 63));
+      put(0x80 | (c & 63));
+    }
+  }
+  return n;
+
+  function put(b) {
+    if (at + n < bytes.length) bytes[at + n] = b;
+    n++;
+  }
+}
+
+// Decodes UTF-8 bytes[from, to) into a JS string. Malformed sequences
+// (stray continuation bytes, overlong forms, surrogates, truncation, values
+// above U+10FFFF) each become one U+FFFD, as TextDecoder does by default.
+export function utf8Decode(bytes, from = 0, to = bytes.length) {
+  let out = '';
+  let run = [];
+  const flush = () => {
+    out += String.fromCharCode.apply(null, run);
+    run = [];
+  };
+  let i = from;
+  while (i < to) {
+    const b = bytes[i];
+    let cp = 0xfffd;
+    let len = 1;
+    if (b < 0x80) {
+      cp = b;
+    } else if (b >= 0xc2 && b <= 0xf4) {
+      const need = b < 0xe0 ? 1 : b < 0xf0 ? 2 : 3;
+      let v = b & (need === 1 ? 0x1f : need === 2 ? 0x0f : 0x07);
+      // Allowed range of the second byte (Unicode 15, table 3-7).
+      const lo = b === 0xe0 ? 0xa0 : b === 0xf0 ? 0x90 : 0x80;
+      const hi = b === 0xed ? 0x9f : b === 0xf4 ? 0x8f : 0xbf;
+      let k = 0;
+      for (; k < need && i + 1 + k < to; k++) {
+        const c = bytes[i + 1 + k];
+        if (c < (k === 0 ? lo : 0x80) || c > (k === 0 ? hi : 0xbf)) break;
+        v = (v << 6) | (c & 63);
+      }
+      len = 1 + k;
+      if (k === need) cp = v;
+    }
+    i += len;
+    if (cp >= 0x10000) {
+      cp -= 0x10000;
+      run.push(0xd800 + (cp >> 10), 0xdc00 + (cp & 0x3ff));
+    } else {
+      run.push(cp);
+    }
+    if (run.length >= 4096) flush();
+  }
+  flush();
+  return out;
+}
+
+// ---------------------------------------------------------------- variant
+
+function asBytes(x, what) {
+  if (x instanceof Uint8Array) return x;
+  if (x instanceof ArrayBuffer) return new Uint8Array(x);
+  if (ArrayBuffer.isView(x)) return new Uint8Array(x.buffer, x.byteOffset, x.byteLength);
+  throw new TypeError(`${what} must be an ArrayBuffer or a typed array of bytes, got ${describe(x)}`);
+}
+
+function describe(x) {
+  if (x === null) return 'null';
+  if (typeof x === 'object') return x.constructor ? x.constructor.name : 'object';
+  return typeof x;
+}
+
+// Imports a module might ask for if it were built differently (a debug build
+// keeps asserts); the release builds import nothing (cmake/wasm.cmake).
+function hostImports() {
+  const stop = (code) => {
+    throw new Error(`earshot core stopped (exit code ${code}): out of memory or an internal error`);
+  };
+  return {
+    env: { emscripten_notify_memory_growth() {} },
+    wasi_snapshot_preview1: { proc_exit: stop },
+  };
+}
+
+// One instantiated earshot build: its exports, its memory, and any number of
+// effects living in that memory.
+export class Variant {
+  constructor(wasm, options = {}) {
+    const module = wasm instanceof WebAssembly.Module ? wasm : new WebAssembly.Module(asBytes(wasm, 'the WebAssembly build'));
+    const instance = new WebAssembly.Instance(module, hostImports());
+    const e = instance.exports;
+    const missing = [...ABI_FUNCTIONS, 'malloc', 'free'].filter((f) => typeof e[f] !== 'function');
+    if (!(e.memory instanceof WebAssembly.Memory)) missing.push('memory');
+    if (missing.length) throw new Error(`not an earshot WebAssembly build: it lacks ${missing.join(', ')}`);
+    if (typeof e._initialize === 'function') e._initialize();
+    this.exports = e;
+    this.memory = e.memory;
+    // The build's name ("simd" or "scalar") when the caller knows it; the core
+    // then refuses to run under another name. Otherwise learnt from the first effect.
+    this.name = options.name || '';
+    this.broken = null; // the Error of a trap, after which the instance is not used again
+    this._buffer = null;
+    this.u8 = null;
+    this.f32 = null;
+    this.refresh();
+    this._name = this.malloc(NAME_CAP);
+  }
+
+  // Re-derives the views after memory growth; cheap when nothing changed.
+  refresh() {
+    const b = this.memory.buffer;
+    if (b !== this._buffer) {
+      this._buffer = b;
+      this.u8 = new Uint8Array(b);
+      this.f32 = new Float32Array(b);
+    }
+  }
+
+  get memoryBytes() {
+    return this.memory.buffer.byteLength;
+  }
+
+  malloc(n) {
+    const p = this.call('malloc', n);
+    if (!p) throw new Error(`out of WebAssembly memory (asked for ${n} bytes)`);
+    this.refresh();
+    return p;
+  }
+
+  free(p) {
+    if (p) this.call('free', p);
+  }
+
+  // Calls an export; a trap marks the instance unusable and becomes an Error.
+  call(fn, a, b, c, d, e, f) {
+    if (this.broken) throw this.broken;
+    try {
+      return this.exports[fn](a, b, c, d, e, f);
+    } catch (err) {
+      if (err instanceof WebAssembly.RuntimeError || err instanceof RangeError) {
+        this.broken = new Error(`earshot core trapped in ${fn} (${err.message}); this WebAssembly instance cannot be used again, load the build anew`);
+        throw this.broken;
+      }
+      throw err;
+    }
+  }
+
+  cString(p) {
+    if (!p) return '';
+    this.refresh();
+    const u8 = this.u8;
+    let end = p;
+    while (end < u8.length && u8[end] !== 0) end++;
+    return utf8Decode(u8, p, end);
+  }
+
+  statusText(status) {
+    return this.cString(this.call('earshot_status_text', status));
+  }
+
+  createEffect(fileBytes, hostRate) {
+    return new Effect(this, fileBytes, hostRate);
+  }
+}
+
+export function loadVariant(wasm, options) {
+  return new Variant(wasm, options);
+}
+
+// ---------------------------------------------------------------- effect
+
+export class Effect {
+  constructor(variant, fileBytes, hostRate) {
+    const bytes = asBytes(fileBytes, 'the effect file');
+    if (bytes.length === 0) throw new Error('the effect file is empty');
+    const v = variant;
+    this.variant = v;
+    this.handle = 0;
+    const file = v.malloc(bytes.length);
+    const err = v.malloc(ERROR_CAP);
+    let wanted = 0;
+    try {
+      v.refresh();
+      v.u8.set(bytes, file);
+      if (v.name) {
+        wanted = v.malloc(16);
+        utf8Encode(v.name + '\0', v.u8, wanted);
+      }
+      v.u8[err] = 0;
+      this.handle = v.call('earshot_create', file, bytes.length, Number(hostRate), wanted, err, ERROR_CAP);
+      if (!this.handle) throw new Error(v.cString(err) || 'the effect could not be loaded (no reason given)');
+    } finally {
+      // The core copies what it keeps; the file bytes are not needed again.
+      if (!v.broken) {
+        v.free(wanted);
+        v.free(err);
+        v.free(file);
+      }
+    }
+    try {
+      this.scratch = v.malloc(CHUNK * 4);
+      this.info = JSON.parse(v.cString(v.call('earshot_info', this.handle)));
+      this.variantName = v.cString(v.call('earshot_variant', this.handle));
+      if (!v.name) v.name = this.variantName;
+      this.latency = v.call('earshot_latency', this.handle);
+      const declared = (this.info.effect && this.info.effect.controls) || [];
+      this.controls = declared.map((c) => ({ ...c }));
+      this.controlIndex = new Map();
+      for (const c of this.controls) this.controlIndex.set(c.name, this.indexOf(c.name));
+    } catch (e) {
+      this.destroy();
+      throw e;
+    }
+  }
+
+  // earshot_control_index through the C ABI (names are looked up once, at creation).
+  indexOf(name) {
+    const v = this.variant;
+    v.refresh();
+    const need = utf8Encode(name, v.u8, this.variant._name);
+    if (need >= NAME_CAP) return -1;
+    v.u8[v._name + need] = 0;
+    return v.call('earshot_control_index', this.handle, v._name);
+  }
+
+  live() {
+    if (!this.handle) throw new Error('this effect has been destroyed');
+  }
+
+  // Runs input through the effect into output (Float32Arrays of equal length;
+  // they may be the same array). Any length; no allocation.
+  process(input, output) {
+    this.live();
+    const n = input.length;
+    if (output.length !== n) throw new RangeError(`process: input has ${n} samples but output has ${output.length}`);
+    const v = this.variant;
+    const p = this.scratch >> 2;
+    for (let off = 0; off < n; off += CHUNK) {
+      const k = n - off < CHUNK ? n - off : CHUNK;
+      v.refresh();
+      let heap = v.f32;
+      for (let i = 0; i < k; i++) heap[p + i] = input[off + i];
+      if (v.call('earshot_process', this.handle, this.scratch, this.scratch, k) !== k)
+        throw new Error(`earshot_process refused a block of ${k} samples`);
+      v.refresh(); // the core never allocates in process, but stay safe
+      heap = v.f32;
+      for (let i = 0; i < k; i++) output[off + i] = heap[p + i];
+    }
+    return output;
+  }
+
+  check(status, what) {
+    if (status !== 0) throw new Error(`${what}: ${this.variant.statusText(status)}`);
+  }
+
+  // Sets a control's target by name or declaration index; it ramps over the
+  // control's smoothing time. Refusals carry the core's reason.
+  setControl(nameOrIndex, value) {
+    this.live();
+    let index = nameOrIndex;
+    if (typeof nameOrIndex === 'string') {
+      index = this.controlIndex.has(nameOrIndex) ? this.controlIndex.get(nameOrIndex) : -1;
+      if (index < 0) {
+        const names = this.controls.map((c) => c.name).join(', ') || 'none';
+        throw new Error(`setControl: no control named '${nameOrIndex}' (controls: ${names})`);
+      }
+    } else if (!Number.isInteger(nameOrIndex)) {
+      throw new TypeError(`setControl: a control is named by a string or an integer index, got ${describe(nameOrIndex)}`);
+    }
+    const status = this.variant.call('earshot_set_control', this.handle, index, Number(value));
+    if (status !== 0) {
+      const c = this.controls[index];
+      const where = c ? `control '${c.name}' (${c.min} .. ${c.max})` : `control ${index}`;
+      this.check(status, `setControl ${where} = ${value}`);
+    }
+  }
+
+  getControl(nameOrIndex) {
+    this.live();
+    const index = typeof nameOrIndex === 'string' ? this.controlIndex.get(nameOrIndex) : nameOrIndex;
+    return this.variant.call('earshot_get_control', this.handle, index === undefined ? -1 : index);
+  }
+
+  // Dry/wet, 0 (dry) … 1 (wet); smoothed.
+  setMix(wet) {
+    this.live();
+    this.check(this.variant.call('earshot_set_mix', this.handle, Number(wet)), `setMix ${wet} (0 .. 1)`);
+  }
+
+  // Input and output gain in dB, each −60 … +24; smoothed.
+  setGain(inputDb, outputDb = 0) {
+    this.live();
+    this.check(this.variant.call('earshot_set_gain', this.handle, Number(inputDb), Number(outputDb)),
+      `setGain ${inputDb} dB in, ${outputDb} dB out (each -60 .. 24)`);
+  }
+
+  reset() {
+    this.live();
+    this.variant.call('earshot_reset', this.handle);
+  }
+
+  // Blocks that produced a non-finite value (each was silenced and the state reset).
+  get nonFiniteCount() {
+    this.live();
+    return this.variant.call('earshot_nonfinite_count', this.handle) >>> 0;
+  }
+
+  destroy() {
+    if (!this.handle && !this.scratch) return;
+    const v = this.variant;
+    if (!v.broken) {
+      if (this.handle) v.call('earshot_destroy', this.handle);
+      v.free(this.scratch);
+    }
+    this.handle = 0;
+    this.scratch = 0;
+  }
+}
+
+// createEffect(fileBytes, hostRate, variant): an Effect for audio at hostRate
+// Hz. variant: a Variant from loadVariant, or the build's bytes or compiled
+// WebAssembly.Module (then the effect gets an instance of its own).
+export function createEffect(fileBytes, hostRate, variant) {
+  const v = variant instanceof Variant ? variant : new Variant(variant);
+  return new Effect(v, fileBytes, hostRate);
+}
