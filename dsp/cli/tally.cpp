@@ -420,7 +420,11 @@ Result load(const std::string& path) {
           fail(path, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
         if (!m->value.IsNumber()) fail(path, f, "must be a number, not " + type_name(m->value));
         const double v = m->value.GetDouble();
-        if (!(v >= 0 && v <= 100)) fail(path, f, std::to_string(v) + " is outside the scale 0 .. 100");
+        if (!(v >= 0 && v <= 100)) {
+          char buf[40];
+          std::snprintf(buf, sizeof buf, "%.10g", v);
+          fail(path, f, std::string(buf) + " is outside the scale 0 .. 100");
+        }
         t.ratings.push_back({cid, v});
       }
       for (const Condition& c : r.conditions)

@@ -406,7 +406,7 @@ SINGLE_FILE_ERRORS = [
     ("trial-item", lambda: mutate(base_mushra(), lambda d: _set(d, "flute", "trials", 0, "item")),
      ["trials[0].item", "'flute' has no stimuli"]),
     ("rating-range", lambda: mutate(base_mushra(), lambda d: _set(d, 101, "trials", 1, "ratings", "lstm")),
-     ["trials[1].ratings.lstm", "outside the scale 0 .. 100"]),
+     ["trials[1].ratings.lstm", "101 is outside the scale 0 .. 100"]),
     ("rating-type", lambda: mutate(base_mushra(), lambda d: _set(d, "80", "trials", 0, "ratings", "gru")),
      ["trials[0].ratings.gru", "must be a number, not a string"]),
     ("rating-missing", lambda: mutate(base_mushra(), lambda d: _del(d, "trials", 2, "ratings", "gru")),
