@@ -7,6 +7,10 @@
 //   native_run errors FILE...    try to load each effect file, print one line each
 //   native_run bench FILE RATE VARIANT SECONDS BLOCK REPEATS
 //                                time earshot_process, print the best wall time
+//   native_run loudness AUDIO.f32 CHANNELS RATE
+//                                earshot_loudness (default weights): "status S lkfs L"
+//   native_run anchor AUDIO.f32 CHANNELS RATE PASSBAND_HZ OUT.f32
+//                                earshot_anchor: "status S", output written on success
 //
 // Script commands, one per line:
 //   create PATH RATE VARIANT      load the effect (VARIANT "-" = default)
@@ -195,13 +199,45 @@ int run_bench(char** argv) {
   return 0;
 }
 
+std::vector<float> read_f32(const std::string& path) {
+  const auto b = read_file(path);
+  std::vector<float> v(b.size() / 4);
+  std::memcpy(v.data(), b.data(), v.size() * 4);
+  return v;
+}
+
+int run_loudness(char** argv) {
+  const auto x = read_f32(argv[0]);
+  const int ch = std::atoi(argv[1]);
+  double lkfs = 0;
+  const int st = earshot_loudness(x.data(), x.size() / size_t(ch), ch, std::atof(argv[2]), nullptr, &lkfs);
+  std::printf("status %d lkfs %.17g\n", st, lkfs);
+  return 0;
+}
+
+int run_anchor(char** argv) {
+  auto x = read_f32(argv[0]);
+  const int ch = std::atoi(argv[1]);
+  std::vector<float> y(x.size());
+  const int st = earshot_anchor(x.data(), y.data(), x.size() / size_t(ch), ch, std::atof(argv[2]), std::atof(argv[3]));
+  std::printf("status %d\n", st);
+  if (st == EARSHOT_OK) {
+    std::ofstream o(argv[4], std::ios::binary);
+    o.write(reinterpret_cast<const char*>(y.data()), std::streamsize(y.size() * 4));
+  }
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
   if (argc >= 3 && std::string(argv[1]) == "script") return run_script(argv[2]);
   if (argc >= 3 && std::string(argv[1]) == "errors") return run_errors(argc - 2, argv + 2);
   if (argc == 8 && std::string(argv[1]) == "bench") return run_bench(argv + 2);
+  if (argc == 5 && std::string(argv[1]) == "loudness") return run_loudness(argv + 2);
+  if (argc == 7 && std::string(argv[1]) == "anchor") return run_anchor(argv + 2);
   std::fprintf(stderr,
-               "usage: native_run script FILE | errors FILE... | bench FILE RATE VARIANT SECONDS BLOCK REPEATS\n");
+               "usage: native_run script FILE | errors FILE... | bench FILE RATE VARIANT SECONDS BLOCK REPEATS |\n"
+               "       loudness AUDIO CHANNELS RATE | anchor AUDIO CHANNELS RATE PASSBAND OUT\n");
   return 2;
 }

@@ -1,0 +1,128 @@
+#!/usr/bin/env node
+// WebAssembly speed, per model, in one run: WASM simd against native sse4
+// (the same 128-bit width) and WASM simd against WASM scalar.
+//
+//   node tools/wasm-bench.mjs [--seconds 10] [--block 128] [--repeats 3] [FILE.nfx ...]
+//
+// Default models: build/bench-models/*.nfx (tools/make_bench_models.py, made
+// when missing). Each figure is the best of --repeats runs over the same
+// signal, processed in blocks of --block samples (128 = one render quantum),
+// at the model's own rate. Native timing comes from tests/node/native_run
+// (libearshot.so through the C ABI, steady_clock around earshot_process); the
+// WASM timing wraps Effect.process (worklet/loader.js), so it includes the
+// copies in and out of wasm memory that a worklet pays too.
+// Targets (docs/wasm.md): simd time ≤ 1.3 × native sse4; simd ≥ 3 × scalar on
+// convolutional models, ≥ 2.5 × on recurrent ones.
+import { execFileSync } from 'node:child_process';
+import { existsSync, readdirSync, readFileSync } from 'node:fs';
+import { join } from 'node:path';
+
+import { createEffect } from '../worklet/loader.js';
+import { ROOT, runNative, variant } from '../tests/node/env.mjs';
+
+const args = process.argv.slice(2);
+const opt = (name, def) => {
+  const i = args.indexOf(`--${name}`);
+  if (i < 0) return def;
+  const v = Number(args[i + 1]);
+  args.splice(i, 2);
+  if (!Number.isFinite(v) || v <= 0) throw new Error(`--${name} needs a positive number`);
+  return v;
+};
+const SECONDS = opt('seconds', 10);
+const BLOCK = Math.floor(opt('block', 128));
+const REPEATS = Math.floor(opt('repeats', 3));
+
+let files = args;
+if (!files.length) {
+  const dir = join(ROOT, 'build', 'bench-models');
+  if (!existsSync(dir)) execFileSync('/usr/bin/python3', [join(ROOT, 'tools', 'make_bench_models.py'), dir], { stdio: 'ignore' });
+  files = readdirSync(dir).filter((f) => f.endsWith('.nfx')).sort().map((f) => join(dir, f));
+}
+
+// The signal of native_run's bench mode, sample for sample: a 220 Hz
+// triangle at 0.25 plus 0.01 of LCG noise (same integer and double arithmetic).
+function signal(n) {
+  const x = new Float32Array(n);
+  let h = 12345;
+  for (let i = 0; i < n; i++) {
+    h = (Math.imul(h, 1664525) + 1013904223) >>> 0;
+    const phase = (i % 48000) / 48000;
+    const tri = 4 * Math.abs(phase * 220 - Math.floor(phase * 220 + 0.5)) - 1;
+    x[i] = 0.25 * tri + 0.01 * ((h >>> 8) / 16777216 - 0.5);
+  }
+  return x;
+}
+
+function timeWasm(bytes, rate, name, x) {
+  const fx = createEffect(bytes, rate, variant(name));
+  const y = new Float32Array(x.length);
+  let best = Infinity;
+  for (let r = 0; r < REPEATS; r++) {
+    fx.reset();
+    const t0 = process.hrtime.bigint();
+    for (let off = 0; off < x.length; off += BLOCK) {
+      const end = Math.min(x.length, off + BLOCK);
+      fx.process(x.subarray(off, end), y.subarray(off, end));
+    }
+    best = Math.min(best, Number(process.hrtime.bigint() - t0) / 1e9);
+  }
+  let sum = 0;
+  for (const v of y) sum += v;
+  const info = fx.info;
+  fx.destroy();
+  return { seconds: best, checksum: sum, info };
+}
+
+const rows = [];
+for (const file of files) {
+  const bytes = readFileSync(file);
+  const probe = createEffect(bytes, 48000, variant('scalar'));
+  const rate = probe.info.model_rate;
+  const recurrent = probe.info.recurrent;
+  probe.destroy();
+  const n = Math.round(SECONDS * rate);
+  const x = signal(n);
+  const out = runNative(['bench', file, String(rate), 'sse4', String(SECONDS), String(BLOCK), String(REPEATS)]);
+  const native = Object.fromEntries(out.trim().split('\n').map((l) => [l.slice(0, l.indexOf(' ')), l.slice(l.indexOf(' ') + 1)]));
+  if (native.error) throw new Error(`${file}: ${native.error}`);
+  const simd = timeWasm(bytes, rate, 'simd', x);
+  const scalar = timeWasm(bytes, rate, 'scalar', x);
+  const nat = Number(native.seconds);
+  // Same input, bit-identical outputs: the checksums agree to the printed digits.
+  const same = Number(native.checksum).toPrecision(9) === simd.checksum.toPrecision(9) &&
+    simd.checksum === scalar.checksum;
+  rows.push({
+    model: file.split('/').pop().replace(/\.nfx$/, ''),
+    kind: recurrent ? 'recurrent' : 'conv',
+    macs: simd.info.macs_per_sample,
+    nativeRt: SECONDS / nat,
+    simdRt: SECONDS / simd.seconds,
+    scalarRt: SECONDS / scalar.seconds,
+    simdVsNative: simd.seconds / nat,
+    simdVsScalar: scalar.seconds / simd.seconds,
+    same,
+  });
+}
+
+const fmt = (v, d = 1) => v.toFixed(d);
+const lines = [
+  `WASM benchmark: ${SECONDS} s of audio per model at its own rate, blocks of ${BLOCK}, best of ${REPEATS}; ` +
+  `node ${process.version}; figures are × real time (higher is faster)`,
+  '',
+  '| model | kind | MACs/sample | native sse4 | WASM simd | WASM scalar | simd time / sse4 time (≤ 1.3) | simd speed-up over scalar (target) | outputs equal |',
+  '|---|---|---:|---:|---:|---:|---:|---:|---|',
+];
+const misses = [];
+for (const r of rows) {
+  const target = r.kind === 'conv' ? 3 : 2.5;
+  const okNative = r.simdVsNative <= 1.3;
+  const okScalar = r.simdVsScalar >= target;
+  if (!okNative) misses.push(`${r.model}: simd takes ${fmt(r.simdVsNative, 2)}× the native sse4 time (target ≤ 1.3)`);
+  if (!okScalar) misses.push(`${r.model}: simd is ${fmt(r.simdVsScalar, 2)}× scalar (target ≥ ${target})`);
+  lines.push(`| ${r.model} | ${r.kind} | ${r.macs} | ${fmt(r.nativeRt)} | ${fmt(r.simdRt)} | ${fmt(r.scalarRt)} | ` +
+    `${fmt(r.simdVsNative, 2)}${okNative ? '' : ' ✗'} | ${fmt(r.simdVsScalar, 2)} (≥ ${target})${okScalar ? '' : ' ✗'} | ${r.same ? 'yes' : 'NO'} |`);
+}
+lines.push('', misses.length ? `Targets missed:\n- ${misses.join('\n- ')}` : 'All targets met.');
+console.log(lines.join('\n'));
+if (rows.some((r) => !r.same)) process.exitCode = 1;
