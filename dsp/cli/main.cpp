@@ -26,6 +26,9 @@ const char* kUsage =
     "  bench FILE           speed of every CPU variant, against its measured peak multiply-add rate\n"
     "  verify FILE          check that the CPU variants give bit-identical output on a test signal\n"
     "  site CONFIG --out DIR  build the static demo site (page, WebAssembly, effects, self-check data)\n"
+    "  loudness FILE...     integrated loudness (ITU-R BS.1770-4) of audio files; --match writes a matched copy\n"
+    "  anchors REF... --out DIR  the MUSHRA anchors (3.5 and 7 kHz low-pass) of reference clips\n"
+    "  tally RESULTS...     statistics of listening-test results files (MUSHRA, ABX, A/B)\n"
     "\n"
     "options:\n"
     "  -h, --help           this text; 'earshot COMMAND --help' describes a command\n"
@@ -37,6 +40,9 @@ const char* kUsage =
 }  // namespace
 
 int earshot_cmd_site(int argc, char** argv);  // site.cpp; argv[0] is "site"
+int earshot_cmd_loudness(int argc, char** argv);  // loudness.cpp; argv[0] is "loudness"
+int earshot_cmd_anchors(int argc, char** argv);   // loudness.cpp; argv[0] is "anchors"
+int earshot_cmd_tally(int argc, char** argv);     // tally.cpp; argv[0] is "tally"
 
 int main(int argc, char** argv) {
   using namespace earshot::cli;
@@ -70,12 +76,20 @@ int main(int argc, char** argv) {
     for (std::string& t : args) site_argv.push_back(&t[0]);
     return earshot_cmd_site(int(site_argv.size()), site_argv.data());
   }
+  if (name == "loudness" || name == "anchors" || name == "tally") {
+    std::vector<char*> cmd_argv;
+    for (std::string& t : args) cmd_argv.push_back(&t[0]);
+    const int n = int(cmd_argv.size());
+    if (name == "loudness") return earshot_cmd_loudness(n, cmd_argv.data());
+    if (name == "anchors") return earshot_cmd_anchors(n, cmd_argv.data());
+    return earshot_cmd_tally(n, cmd_argv.data());
+  }
   if (!run) {
     if (!name.empty() && name[0] == '-')
-      std::fprintf(stderr, "earshot: unknown option '%s' (a command comes first: info, render, bench, verify, site)\n",
+      std::fprintf(stderr, "earshot: unknown option '%s' (a command comes first: info, render, bench, verify, site, loudness, anchors, tally)\n",
                    name.c_str());
     else
-      std::fprintf(stderr, "earshot: unknown command '%s' (commands: info, render, bench, verify, site)\n", name.c_str());
+      std::fprintf(stderr, "earshot: unknown command '%s' (commands: info, render, bench, verify, site, loudness, anchors, tally)\n", name.c_str());
     std::fputs("Run 'earshot --help' for usage.\n", stderr);
     return kExitUsage;
   }
