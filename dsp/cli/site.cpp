@@ -524,7 +524,7 @@ int cmd_site(const std::vector<std::string>& argv) {
   std::vector<Loaded> loaded(cfg.effects.size());
   for (size_t i = 0; i < cfg.effects.size(); ++i) {
     EffectEntry& fx = cfg.effects[i];
-    const fs::path file = config_dir / fx.file;
+    const fs::path file = (config_dir / fx.file).lexically_normal();
     Loaded& L = loaded[i];
     try {
       L.bytes = read_effect_file(file.string());
@@ -575,7 +575,7 @@ int cmd_site(const std::vector<std::string>& argv) {
   std::vector<ClipInfo> clip_info(cfg.clips.size());
   for (size_t i = 0; i < cfg.clips.size(); ++i) {
     const ClipEntry& cl = cfg.clips[i];
-    const fs::path file = config_dir / cl.file;
+    const fs::path file = (config_dir / cl.file).lexically_normal();
     std::string ext = file.extension().string();
     for (char& ch : ext) ch = char(std::tolower((unsigned char)ch));
     if (ext != ".wav" && ext != ".flac")
@@ -698,7 +698,7 @@ int cmd_site(const std::vector<std::string>& argv) {
     const ClipEntry& cl = cfg.clips[i];
     const ClipInfo& ci = clip_info[i];
     const std::string site_file = "clips/" + cl.id + ci.ext;
-    copy_into(config_dir / cl.file, out / site_file, "clip");
+    copy_into((config_dir / cl.file).lexically_normal(), out / site_file, "clip");
     w.StartObject();
     write_string(w, "id", cl.id);
     write_string(w, "name", cl.name);

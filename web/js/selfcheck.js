@@ -21,6 +21,7 @@ export class SelfCheck {
     facts.hidden = true;
     status(line, 'busy', `Checking ${fx.name}: rendering the test signal in this browser…`);
     line.dataset.state = 'running';
+    line.dataset.effect = fx.key;
     const w = this.engine.worker();
     this.worker = w;
     const ref = fx.entry ? fx.entry.reference : null;

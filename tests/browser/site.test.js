@@ -1,0 +1,226 @@
+// The built site in headless Chromium: loads cleanly, the self-check passes
+// with both builds, an offline render is bit-identical to `earshot render`,
+// bad files get clear errors and leave the page working, text from files
+// stays text. Screenshots go to build/browser-tests/artifacts/.
+import { test, before, after } from 'node:test';
+import assert from 'node:assert/strict';
+import { mkdirSync } from 'node:fs';
+import { join } from 'node:path';
+import {
+  ARTIFACTS, MARKUP_NAME, buildSite, serve, launch, openPage, waitForCheck, download, compareWavBits,
+  earshotBin, mustRun, fixture, tmpFile,
+} from './helpers.js';
+
+let built;
+let server;
+let browser;
+
+before(async () => {
+  built = buildSite('site-test');
+  server = await serve(built.out);
+  browser = await launch();
+});
+
+after(async () => {
+  if (browser) await browser.close();
+  if (server) server.stop();
+});
+
+async function selectEffect(page, id) {
+  await page.selectOption('#effect-select', `site:${id}`);
+  return waitForCheck(page, `site:${id}`);
+}
+
+test('the page loads with no console errors, shows the config as text, and its screenshots are saved', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  const check = await waitForCheck(page);
+  assert.equal(check.state, 'pass', check.text);
+  // Config text with markup is shown literally (no element made from it).
+  assert.equal(await page.textContent('#site-title'), built.config.title);
+  assert.equal(await page.title(), built.config.title);
+  assert.equal(await page.locator('#site-title em').count(), 0);
+  assert.equal(await page.textContent('#site-credits li'), built.config.credits[0]);
+  assert.equal(await page.locator('#site-credits u').count(), 0);
+  assert.match(await page.textContent('#variant-line'), /simd build/);
+  mkdirSync(ARTIFACTS, { recursive: true });
+  await page.screenshot({ path: join(ARTIFACTS, 'page-desktop.png'), fullPage: true });
+  const phone = await browser.context.newPage();
+  await phone.setViewportSize({ width: 390, height: 844 });
+  await phone.goto(server.url);
+  await waitForCheck(phone);
+  // Usable on a phone: nothing wider than the screen.
+  const overflow = await phone.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+  assert.ok(overflow <= 0, `the page is ${overflow} px wider than a 390 px screen`);
+  await phone.screenshot({ path: join(ARTIFACTS, 'page-phone.png'), fullPage: true });
+  await phone.close();
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+for (const variant of ['simd', 'scalar']) {
+  test(`self-check passes for every bundled effect with the ${variant} build`, async () => {
+    const { page, problems } = await openPage(browser.context, `${server.url}?variant=${variant}`);
+    await waitForCheck(page);
+    assert.match(await page.textContent('#variant-line'), new RegExp(`Running the ${variant} build`));
+    for (const fx of built.site.effects) {
+      const r = await selectEffect(page, fx.id);
+      assert.equal(r.state, 'pass', `${fx.id}: ${r.text}`);
+      const facts = await page.textContent('#check-facts');
+      // The hash shown is the builder's, which is the native scalar variant's
+      // output (checked against `earshot verify` in builder.test.js).
+      assert.ok(facts.includes(fx.reference.output_hash), facts);
+      assert.ok(facts.includes(`Build in this browser${variant}`), facts);
+    }
+    await page.close();
+    assert.deepEqual(problems, []);
+  });
+}
+
+test('the self-check reports the first differing sample when the native reference disagrees', async () => {
+  // A page whose reference for 'lstm' is altered at sample 1000 (served from
+  // a copy of the site): the check must fail and name that sample.
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  const ctx = browser.context;
+  await ctx.route('**/site.json', async (route) => {
+    const res = await route.fetch();
+    const site = await res.json();
+    site.effects[0].reference.output_hash = '0123456789abcdef';
+    site.effects[0].reference.data = 'reference/altered.f32';
+    await route.fulfill({ response: res, json: site });
+  });
+  await ctx.route('**/reference/altered.f32', async (route) => {
+    const res = await route.fetch({ url: new URL('reference/lstm.f32', server.url).href });
+    const buf = Buffer.from(await res.body());
+    const f = new Float32Array(buf.buffer, buf.byteOffset, buf.length / 4);
+    f[1000] = f[1000] + 0.25;
+    await route.fulfill({ status: 200, body: buf, contentType: 'application/octet-stream' });
+  });
+  await page.reload();
+  const r = await waitForCheck(page);
+  assert.equal(r.state, 'fail');
+  assert.match(r.text, /first at sample 1\u202f000: this browser gives/);
+  await ctx.unrouteAll();
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+// Moves a slider as a user would (value, then an input event).
+async function setRange(page, selector, value) {
+  await page.$eval(selector, (el, v) => {
+    el.value = v;
+    el.dispatchEvent(new Event('input', { bubbles: true }));
+  }, value);
+}
+
+async function renderUpload(page, file) {
+  await page.setInputFiles('#offline-file', file);
+  await page.click('#render');
+  await page.waitForSelector('#offline-status[data-kind=ok], #offline-status[data-kind=error]', { timeout: 120000 });
+  return { kind: await page.getAttribute('#offline-status', 'data-kind'), text: await page.textContent('#offline-status') };
+}
+
+test('an uploaded WAV rendered offline and downloaded is bit-identical to earshot render', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  await selectEffect(page, 'tcn');
+  // Controls typed into the number boxes (config defaults were drive 0.7, tone -3).
+  await page.fill('#control-0-value', '0.35');
+  await page.press('#control-0-value', 'Enter');
+  await page.fill('#control-1-value', '4.5');
+  await page.press('#control-1-value', 'Enter');
+  const cases = [
+    // float32 stereo at 44.1 kHz: the core resamples to 48 kHz and back.
+    { file: fixture('stereo-44k-f32.wav'), args: [] },
+    // 16-bit mono at the model rate, with dry/wet and output gain moved.
+    { file: fixture('mono-48k-i16.wav'), args: ['--mix', '0.6', '--output-gain', '-6'], mix: '60', out: '-6' },
+  ];
+  for (const [i, c] of cases.entries()) {
+    if (c.mix) {
+      await setRange(page, '#mix', c.mix);
+      await setRange(page, '#output-gain', c.out);
+    }
+    const r = await renderUpload(page, c.file);
+    assert.equal(r.kind, 'ok', r.text);
+    const pagePath = await download(page, '#download', `offline-page-${i}.wav`);
+    const cliPath = tmpFile(`offline-cli-${i}.wav`);
+    mustRun(earshotBin(), ['render', join(built.out, built.site.effects[1].file), c.file, cliPath,
+      '--control', 'drive=0.35', '--control', 'tone=4.5', '--quiet', ...c.args]);
+    const cmp = compareWavBits(pagePath, cliPath);
+    assert.equal(cmp.same, true, `page vs earshot render for ${c.file}: ${JSON.stringify(cmp)}`);
+    assert.equal(cmp.dtypes[0], 'float32');
+  }
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a bundled clip renders and plays with lockstep A/B switching and loudness matching', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  await page.click('#clip-use');
+  await page.waitForSelector('#offline-source:not([hidden])');
+  await page.click('#render');
+  await page.waitForSelector('#offline-status[data-kind=ok]', { timeout: 60000 });
+  const loud = await page.textContent('#loudness-line');
+  assert.match(loud, /original -?\d+\.\d LUFS, processed -?\d+\.\d LUFS/);
+  await page.check('#match');
+  assert.match(await page.textContent('#loudness-line'), /While matching, the processed side plays [+−]\d/);
+  await page.click('#play');
+  await page.waitForFunction(() => document.getElementById('play').textContent === 'Pause');
+  await page.keyboard.press('t');
+  assert.equal(await page.isChecked('#ab-original'), true);
+  await page.keyboard.press('t');
+  assert.equal(await page.isChecked('#ab-processed'), true);
+  await page.click('#play');
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a corrupt effect file and a non-audio upload each give a clear error and leave the page working', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  await page.setInputFiles('#effect-file', fixture('corrupt.nfx'));
+  await page.waitForSelector('#effect-status[data-kind=error]');
+  const err = await page.textContent('#effect-status');
+  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: invalid JSON/);
+  assert.equal(await page.inputValue('#effect-select'), 'site:lstm');
+
+  const bad = await renderUpload(page, fixture('notes.txt'));
+  assert.equal(bad.kind, 'error');
+  assert.match(bad.text, /'notes\.txt' could not be read as audio/);
+  const three = await renderUpload(page, fixture('three-channels.wav'));
+  assert.equal(three.kind, 'error');
+  assert.match(three.text, /has 3 channels; the page renders mono or stereo files only/);
+
+  // Still working: another effect passes its self-check and a real file renders.
+  const r = await selectEffect(page, 'tcn');
+  assert.equal(r.state, 'pass', r.text);
+  const good = await renderUpload(page, fixture('mono-48k-i16.wav'));
+  assert.equal(good.kind, 'ok', good.text);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('an effect whose title and name contain markup shows them as text', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  const r = await selectEffect(page, 'markup');
+  assert.equal(r.state, 'pass', r.text);
+  const title = '<img src=x onerror="window.__markup=1"><b>Bold</b> & <i>co</i>';
+  assert.equal(await page.textContent('#card-title'), MARKUP_NAME);
+  assert.ok((await page.textContent('#card-facts')).includes(title));
+  assert.equal(await page.locator('#effect-card img, #effect-card b, #effect-card i, #effect-card script').count(), 0);
+  // Its code link is javascript:: shown as text, never a link.
+  assert.equal(await page.locator('#card-links a').count(), 0);
+  assert.match(await page.textContent('#card-links'), /Code: javascript:alert\(1\)/);
+  // The same file opened by the visitor.
+  await page.setInputFiles('#effect-file', fixture('markup.nfx'));
+  await page.waitForSelector('#check-status[data-state=none]');
+  const r2 = await waitForCheck(page);
+  assert.equal(r2.state, 'none', r2.text);
+  assert.equal(await page.textContent('#card-title'), title);
+  assert.equal(await page.locator('#effect-card img, #effect-card b, #effect-card i').count(), 0);
+  assert.equal(await page.evaluate(() => window.__markup), undefined);
+  await page.close();
+  assert.deepEqual(problems, []);
+});

@@ -1,0 +1,136 @@
+// The page's pure modules in Node, against outside references: the test
+// signal against the native one, K-weighting and integrated loudness against
+// ITU-R BS.1770-4 and EBU Tech 3341, the WAV reader and writer against SciPy.
+import { test } from 'node:test';
+import assert from 'node:assert/strict';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { testSignal, fnv1a64 } from '../../web/js/test-signal.js';
+import { kWeighting, integratedLoudness } from '../../web/js/loudness.js';
+import { parseWav, encodeFloatWav, readWavHeader } from '../../web/js/wav.js';
+import { earshotBin, ensureFixtures, fixture, mustRun, tmpFile, PYTHON } from './helpers.js';
+
+test('the page builds the same test signal as the native tool, at every rate tried', () => {
+  ensureFixtures();
+  for (const rate of [8000, 22050, 44100, 48000, 96000, 192000]) {
+    const r = mustRun(earshotBin(), ['verify', fixture('lstm-12.nfx'), '--json', '--rate', String(rate)]);
+    const native = JSON.parse(r.stdout).signal;
+    const x = testSignal(rate, 3);
+    assert.equal(x.length, native.samples, `${rate} Hz: length`);
+    assert.equal(fnv1a64(x), native.hash, `${rate} Hz: hash`);
+  }
+});
+
+test('FNV-1a 64 matches the published test vectors', () => {
+  // Fowler/Noll/Vo test vectors (isthe.com/chongo/tech/comp/fnv, recalled from
+  // memory): "" → cbf29ce484222325, "a" → af63dc4c8601ec8c, "foobar" → 85944171f73967e8.
+  const bytes = (s) => {
+    const b = new Uint8Array(Math.ceil(s.length / 4) * 4);
+    for (let i = 0; i < s.length; i++) b[i] = s.charCodeAt(i);
+    return b;
+  };
+  // fnv1a64 hashes whole float32 samples; "a" and "foobar" are not whole, so
+  // hash them through a view of the exact bytes.
+  const hashBytes = (s) => fnv1a64({ buffer: bytes(s).buffer, byteOffset: 0, byteLength: s.length });
+  assert.equal(hashBytes(''), 'cbf29ce484222325');
+  assert.equal(hashBytes('a'), 'af63dc4c8601ec8c');
+  assert.equal(hashBytes('foobar'), '85944171f73967e8');
+});
+
+test('K-weighting at 48 kHz reproduces the coefficients of ITU-R BS.1770-4, tables 1 and 2', () => {
+  const { shelf, highpass } = kWeighting(48000);
+  // BS.1770-4 Table 1 (pre-filter) and Table 2 (RLB high-pass), 14 decimals.
+  const close = (a, b, what) => assert.ok(Math.abs(a - b) < 1e-12, `${what}: ${a} vs ${b}`);
+  close(shelf.b0, 1.53512485958697, 'shelf b0');
+  close(shelf.b1, -2.69169618940638, 'shelf b1');
+  close(shelf.b2, 1.19839281085285, 'shelf b2');
+  close(shelf.a1, -1.69065929318241, 'shelf a1');
+  close(shelf.a2, 0.73248077421585, 'shelf a2');
+  assert.deepEqual([highpass.b0, highpass.b1, highpass.b2], [1, -2, 1]);
+  close(highpass.a1, -1.99004745483398, 'high-pass a1');
+  close(highpass.a2, 0.99007225036621, 'high-pass a2');
+});
+
+function sine(rate, seconds, freq, dbfs) {
+  const a = Math.pow(10, dbfs / 20);
+  const x = new Float32Array(Math.round(rate * seconds));
+  for (let i = 0; i < x.length; i++) x[i] = a * Math.sin((2 * Math.PI * freq * i) / rate);
+  return x;
+}
+
+test('integrated loudness meets EBU Tech 3341 cases 1, 2 and 3 and the BS.1770 sine figure', () => {
+  // EBU Tech 3341 (2016) table 1, tolerance ±0.1 LU (recalled from memory):
+  // case 1: stereo 1 kHz sine at −23 dBFS, 20 s → −23.0 LUFS;
+  // case 2: the same at −33 dBFS → −33.0 LUFS;
+  // case 3: −36, −23, −36 dBFS for 10, 60, 10 s → −23.0 LUFS (relative gate).
+  for (const rate of [44100, 48000]) {
+    const s23 = sine(rate, 20, 1000, -23);
+    assert.ok(Math.abs(integratedLoudness([s23, s23], rate) + 23) <= 0.1, `case 1 at ${rate}`);
+    const s33 = sine(rate, 20, 1000, -33);
+    assert.ok(Math.abs(integratedLoudness([s33, s33], rate) + 33) <= 0.1, `case 2 at ${rate}`);
+    const parts = [sine(rate, 10, 1000, -36), sine(rate, 60, 1000, -23), sine(rate, 10, 1000, -36)];
+    const c3 = new Float32Array(parts.reduce((n, p) => n + p.length, 0));
+    let at = 0;
+    for (const p of parts) {
+      c3.set(p, at);
+      at += p.length;
+    }
+    assert.ok(Math.abs(integratedLoudness([c3, c3], rate) + 23) <= 0.1, `case 3 at ${rate}`);
+    // BS.1770-4 §2: a 0 dBFS 1 kHz sine in one channel reads −3.01 LKFS.
+    assert.ok(Math.abs(integratedLoudness([sine(rate, 10, 1000, 0)], rate) + 3.01) <= 0.1, `sine at ${rate}`);
+  }
+  // Silence and a signal below the absolute gate have no loudness.
+  assert.equal(integratedLoudness([new Float32Array(48000)], 48000), -Infinity);
+  assert.equal(integratedLoudness([sine(48000, 2, 1000, -80)], 48000), -Infinity);
+});
+
+test('the WAV reader gives the samples SciPy reads, scaled as libsndfile scales integers', async () => {
+  const path = tmpFile('units-formats');
+  // SciPy writes each encoding; int data divided by 2^(bits-1) is the float libsndfile gives.
+  const code = `
+import sys, json, numpy as np, scipy.io.wavfile as w
+rng = np.random.default_rng(3)
+x = rng.uniform(-1, 1, (500, 2))
+out = {}
+for name, data in [("i16", np.round(x * 32767).astype(np.int16)), ("i32", np.round(x * 2147483000).astype(np.int32)),
+                   ("u8", np.round(x * 127 + 128).astype(np.uint8)), ("f32", x.astype(np.float32)), ("f64", x)]:
+    w.write(sys.argv[1] + name + ".wav", 22050, data)
+    scale = {"i16": 32768.0, "i32": 2147483648.0, "u8": 128.0}.get(name)
+    ref = (data.astype(np.float64) - (128 if name == "u8" else 0)) / scale if scale else data.astype(np.float64)
+    out[name] = ref.astype(np.float32).tolist()
+print(json.dumps(out))
+`;
+  const ref = JSON.parse(mustRun(PYTHON, ['-c', code, path]).stdout);
+  for (const [name, frames] of Object.entries(ref)) {
+    const buf = readFileSync(`${path}${name}.wav`);
+    const wav = await parseWav(buf.buffer.slice(buf.byteOffset, buf.byteOffset + buf.length), name);
+    assert.equal(wav.rate, 22050);
+    assert.equal(wav.channels.length, 2);
+    for (let t = 0; t < frames.length; t++)
+      for (let c = 0; c < 2; c++)
+        assert.equal(wav.channels[c][t], Math.fround(frames[t][c]), `${name} frame ${t} channel ${c}`);
+  }
+});
+
+test('the float32 WAV writer gives files SciPy reads back unchanged, and bad WAVs are named', async () => {
+  const left = new Float32Array([0, 0.5, -0.25, 1.5, -1e-30]);
+  const right = new Float32Array([1, -1, 0.125, 3e-8, 0.75]);
+  const blob = encodeFloatWav([left, right], 44100);
+  const path = tmpFile('units-written.wav');
+  writeFileSync(path, Buffer.from(await blob.arrayBuffer()));
+  const r = mustRun(PYTHON, ['-c', `
+import sys, json, numpy as np, scipy.io.wavfile as w
+rate, x = w.read(sys.argv[1])
+print(json.dumps({"rate": rate, "dtype": str(x.dtype), "bits": x.view(np.uint32).tolist()}))`, path]);
+  const got = JSON.parse(r.stdout);
+  assert.equal(got.rate, 44100);
+  assert.equal(got.dtype, 'float32');
+  const bits = (a) => Array.from(new Uint32Array(a.buffer));
+  assert.deepEqual(got.bits.map((row) => row[0]), bits(left));
+  assert.deepEqual(got.bits.map((row) => row[1]), bits(right));
+
+  const read = (buf) => async (o, n) => buf.slice(o, o + n);
+  const notWav = new TextEncoder().encode('hello, not a wav file at all').buffer;
+  await assert.rejects(readWavHeader(read(notWav), notWav.byteLength, "'x.txt'"), /'x\.txt' is not a WAV file/);
+  const noData = new Uint8Array(await blob.arrayBuffer()).slice(0, 38).buffer;
+  await assert.rejects(readWavHeader(read(noData), noData.byteLength, "'cut.wav'"), /'cut\.wav': no data chunk/);
+});
