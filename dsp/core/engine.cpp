@@ -6,8 +6,10 @@
 // Signal path per host sample block (split internally into sub-blocks of at
 // most kSub host samples; the result never depends on the split):
 //   x = in · g_in
-//   dry = x delayed by the stream latency
 //   wet = down(runner(up(x)))          (up/down only when the rates differ)
+//   dry = down(up(x))                  the same round trip without the model,
+//                                      so dry and wet line up to the sample
+//                                      fraction; dry = x when the rates agree
 //   out = (dry · (1 − w) + wet · w) · g_out
 #include <algorithm>
 #include <cmath>
@@ -90,6 +92,77 @@ bool finite_all(const float* x, int n) {
   return acc == 0;
 }
 
+// Host-rate FIFO behind a down-resampler, pre-filled with `prefill` zeros so
+// it never runs dry (the two resamplers' output counts can lag the input
+// count by a few samples).
+struct Fifo {
+  std::vector<float> buf;
+  int read = 0, count = 0, prefill = 0;
+
+  void init(int pre, int capacity) {
+    prefill = pre;
+    buf.assign(size_t(pre + capacity), 0.0f);
+    reset();
+  }
+  void reset() {
+    std::fill(buf.begin(), buf.end(), 0.0f);
+    read = 0;
+    count = prefill;
+  }
+  void push(const float* v, int n) {
+    const int cap = int(buf.size());
+    int w = (read + count) % cap;
+    for (int i = 0; i < n; ++i) {
+      buf[size_t(w)] = v[i];
+      if (++w == cap) w = 0;
+    }
+    count += n;
+  }
+  void pop(float* v, int n) {
+    const int cap = int(buf.size());
+    const int have = std::min(n, count);
+    for (int i = 0; i < have; ++i) {
+      v[i] = buf[size_t(read)];
+      if (++read == cap) read = 0;
+    }
+    count -= have;
+    for (int i = have; i < n; ++i) v[i] = 0;  // never reached when prefill is right
+  }
+};
+
+// host rate → model rate → host rate, for a signal that needs the same delay
+// and band limit as the wet path.
+struct RoundTrip {
+  Resampler up, down;
+  Fifo fifo;
+  std::vector<float> mid, back;
+
+  bool init(int host, int model, int max_in, std::string& err) {
+    if (!up.init(host, model, err) || !down.init(model, host, err)) return false;
+    const int max_mid = up.max_output(max_in);
+    const int max_back = down.max_output(max_mid);
+    fifo.init(2 + (host + model - 1) / model, max_back + 2 * max_in);
+    mid.assign(size_t(max_mid), 0.0f);
+    back.assign(size_t(std::max(max_back, max_in)), 0.0f);
+    return true;
+  }
+  void reset() {
+    up.reset();
+    down.reset();
+    fifo.reset();
+  }
+  // Delay from host input to host output, in host samples (not a whole number in general).
+  double delay(int host, int model) const {
+    return up.delay_in_input_samples() + down.delay_in_input_samples() * host / model + fifo.prefill;
+  }
+  // Back at the host rate from `m` model-rate samples; writes k host samples to out.
+  void finish(const float* model_rate, int m, float* out, int k) {
+    const int produced = down.process(model_rate, m, back.data());
+    fifo.push(back.data(), produced);
+    fifo.pop(out, k);
+  }
+};
+
 }  // namespace
 }  // namespace earshot
 
@@ -100,58 +173,24 @@ struct earshot_stream {
   std::unique_ptr<Runner> runner;
   int host_rate = 48000;
   bool resampling = false;
-  Resampler up, down;
-
-  // Host-rate FIFO after the down-resampler, pre-filled with `prefill` zeros
-  // so it never runs dry (the two resamplers' output counts can lag the input
-  // count by a few samples).
-  std::vector<float> fifo;
-  int fifo_read = 0, fifo_count = 0, prefill = 0;
+  RoundTrip wet_trip;  // host → model (into the runner), runner output → host
+  RoundTrip dry_trip;  // the dry signal takes the same round trip, so dry and wet line up exactly
 
   std::vector<Ramp> controls;
   std::vector<float> ctl;  // [n_controls][kChunk]
   Ramp mix, gain_in, gain_out;
-  float mix_target = 1, in_db = 0, out_db = 0;
-
-  std::vector<float> dry_line;  // latency + 1 samples
-  int dry_pos = 0;
   int latency = 0;
 
-  std::vector<float> x, dry, model_in, model_out, resampled;
+  std::vector<float> x, dry, model_in, model_out, wet;
   unsigned nonfinite = 0;
   std::string info;
-
-  void fifo_push(const float* v, int n) {
-    const int cap = int(fifo.size());
-    int w = (fifo_read + fifo_count) % cap;
-    for (int i = 0; i < n; ++i) {
-      fifo[size_t(w)] = v[i];
-      if (++w == cap) w = 0;
-    }
-    fifo_count += n;
-  }
-  void fifo_pop(float* v, int n) {
-    const int cap = int(fifo.size());
-    const int have = std::min(n, fifo_count);
-    for (int i = 0; i < have; ++i) {
-      v[i] = fifo[size_t(fifo_read)];
-      if (++fifo_read == cap) fifo_read = 0;
-    }
-    fifo_count -= have;
-    for (int i = have; i < n; ++i) v[i] = 0;  // never reached when prefill is right
-  }
 
   void reset_state() {
     runner->reset();
     if (resampling) {
-      up.reset();
-      down.reset();
+      wet_trip.reset();
+      dry_trip.reset();
     }
-    std::fill(fifo.begin(), fifo.end(), 0.0f);
-    fifo_read = 0;
-    fifo_count = resampling ? prefill : 0;
-    std::fill(dry_line.begin(), dry_line.end(), 0.0f);
-    dry_pos = 0;
     for (auto& r : controls) r.jump();
     mix.jump();
     gain_in.jump();
@@ -176,30 +215,25 @@ struct earshot_stream {
     for (int off = 0; off < n; off += kSub) {
       const int k = std::min(kSub, n - off);
       for (int t = 0; t < k; ++t) x[size_t(t)] = in[off + t] * gain_in.next();
-      const int L = int(dry_line.size());
-      for (int t = 0; t < k; ++t) {
-        dry_line[size_t(dry_pos)] = x[size_t(t)];
-        int r = dry_pos + 1;
-        if (r == L) r = 0;
-        dry[size_t(t)] = dry_line[size_t(r)];  // written `latency` samples ago
-        dry_pos = r;
-      }
-      const float* wet;
+      const float* wet_p;
+      const float* dry_p;
       if (resampling) {
-        const int m = up.process(x.data(), k, model_in.data());
+        const int m = wet_trip.up.process(x.data(), k, model_in.data());
         run_model(m, bad);
-        const int produced = down.process(model_out.data(), m, resampled.data());
-        fifo_push(resampled.data(), produced);
-        fifo_pop(resampled.data(), k);
-        wet = resampled.data();
+        wet_trip.finish(model_out.data(), m, wet.data(), k);
+        const int md = dry_trip.up.process(x.data(), k, dry_trip.mid.data());
+        dry_trip.finish(dry_trip.mid.data(), md, dry.data(), k);
+        wet_p = wet.data();
+        dry_p = dry.data();
       } else {
         std::copy(x.begin(), x.begin() + k, model_in.begin());
         run_model(k, bad);
-        wet = model_out.data();
+        wet_p = model_out.data();
+        dry_p = x.data();
       }
       for (int t = 0; t < k; ++t) {
         const float w = mix.next();
-        const float y = dry[size_t(t)] * (1.0f - w) + wet[t] * w;
+        const float y = dry_p[t] * (1.0f - w) + wet_p[t] * w;
         out[off + t] = y * gain_out.next();
       }
     }
@@ -322,26 +356,18 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
   s->host_rate = int(host_rate);
   const int model_rate = int(model->sample_rate);
   s->resampling = s->host_rate != model_rate;
-  double latency = 0;
   int max_model = kSub;
   if (s->resampling) {
-    if (!s->up.init(s->host_rate, model_rate, err) || !s->down.init(model_rate, s->host_rate, err)) {
+    if (!s->wet_trip.init(s->host_rate, model_rate, kSub, err) || !s->dry_trip.init(s->host_rate, model_rate, kSub, err)) {
       write_error(error, error_cap, err);
       return nullptr;
     }
-    max_model = s->up.max_output(kSub);
-    const int max_back = s->down.max_output(max_model);
-    s->prefill = 2 + (s->host_rate + model_rate - 1) / model_rate;
-    s->fifo.assign(size_t(s->prefill + max_back + 2 * kSub), 0.0f);
-    s->fifo_count = s->prefill;
-    latency = s->up.delay_in_input_samples() + s->down.delay_in_input_samples() * s->host_rate / model_rate +
-              s->prefill;
-    s->resampled.assign(size_t(std::max(max_back, kSub)), 0.0f);
+    max_model = s->wet_trip.up.max_output(kSub);
+    s->latency = int(s->wet_trip.delay(s->host_rate, model_rate) + 0.5);
   }
-  s->latency = int(latency + 0.5);
-  s->dry_line.assign(size_t(s->latency + 1), 0.0f);
   s->x.assign(kSub, 0.0f);
   s->dry.assign(kSub, 0.0f);
+  s->wet.assign(kSub, 0.0f);
   s->model_in.assign(size_t(max_model), 0.0f);
   s->model_out.assign(size_t(max_model), 0.0f);
   s->ctl.assign(size_t(std::max<size_t>(1, model->controls.size())) * kChunk, 0.0f);
@@ -412,7 +438,6 @@ int earshot_set_mix(earshot_stream* s, float wet) {
   if (!s) return EARSHOT_ERR_ARGUMENT;
   if (!std::isfinite(wet)) return EARSHOT_ERR_NOT_FINITE;
   if (wet < 0 || wet > 1) return EARSHOT_ERR_RANGE;
-  s->mix_target = wet;
   s->mix.set(wet);
   return EARSHOT_OK;
 }
@@ -421,8 +446,6 @@ int earshot_set_gain(earshot_stream* s, float input_db, float output_db) {
   if (!s) return EARSHOT_ERR_ARGUMENT;
   if (!std::isfinite(input_db) || !std::isfinite(output_db)) return EARSHOT_ERR_NOT_FINITE;
   if (input_db < -60 || input_db > 24 || output_db < -60 || output_db > 24) return EARSHOT_ERR_RANGE;
-  s->in_db = input_db;
-  s->out_db = output_db;
   s->gain_in.set(db_to_gain(input_db));
   s->gain_out.set(db_to_gain(output_db));
   return EARSHOT_OK;

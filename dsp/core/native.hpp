@@ -2,6 +2,7 @@
 // machine can run, and the measured peak multiply-add rate of each (the
 // yardstick `earshot bench` reports against). Not part of the WebAssembly builds.
 #pragma once
+#include <ctime>
 #include <string>
 #include <vector>
 
@@ -22,5 +23,13 @@ std::string best_variant();
 // (independent accumulator chains, no memory traffic) run for about `seconds`.
 // The variant's own arithmetic: a multiply and an add, fused only in avx2fma.
 double measure_peak_madd_rate(const std::string& name, double seconds);
+
+// CPU time of the calling thread, in seconds. Benchmarks time with it so that
+// other processes on a shared machine do not count against the figures.
+inline double thread_seconds() {
+  timespec t;
+  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t);
+  return double(t.tv_sec) + 1e-9 * double(t.tv_nsec);
+}
 
 }  // namespace earshot
