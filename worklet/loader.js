@@ -165,6 +165,7 @@ export class Variant {
     if (typeof e._initialize === 'function') e._initialize();
     this.exports = e;
     this.memory = e.memory;
+    this._process = e.earshot_process;
     // The build's name ("simd" or "scalar") when the caller knows it; the core
     // then refuses to run under another name. Otherwise learnt from the first effect.
     this.name = options.name || '';
@@ -207,12 +208,27 @@ export class Variant {
     try {
       return this.exports[fn](a, b, c, d, e, f);
     } catch (err) {
-      if (err instanceof WebAssembly.RuntimeError || err instanceof RangeError) {
-        this.broken = new Error(`earshot core trapped in ${fn} (${err.message}); this WebAssembly instance cannot be used again, load the build anew`);
-        throw this.broken;
-      }
-      throw err;
+      return this.trapped(fn, err);
     }
+  }
+
+  // earshot_process in place on one scratch region: the hot call, without the
+  // name lookup of call().
+  callProcess(handle, ptr, n) {
+    if (this.broken) throw this.broken;
+    try {
+      return this._process(handle, ptr, ptr, n);
+    } catch (err) {
+      return this.trapped('earshot_process', err);
+    }
+  }
+
+  trapped(fn, err) {
+    if (err instanceof WebAssembly.RuntimeError || err instanceof RangeError) {
+      this.broken = new Error(`earshot core trapped in ${fn} (${err.message}); this WebAssembly instance cannot be used again, load the build anew`);
+      throw this.broken;
+    }
+    throw err;
   }
 
   cString(p) {
@@ -310,7 +326,7 @@ export class Effect {
       v.refresh();
       let heap = v.f32;
       for (let i = 0; i < k; i++) heap[p + i] = input[off + i];
-      if (v.call('earshot_process', this.handle, this.scratch, this.scratch, k) !== k)
+      if (v.callProcess(this.handle, this.scratch, k) !== k)
         throw new Error(`earshot_process refused a block of ${k} samples`);
       v.refresh(); // the core never allocates in process, but stay safe
       heap = v.f32;

@@ -27,9 +27,29 @@ export function wasmPath(variant) {
   return env || join(ROOT, 'build', `wasm-${variant}`, `earshot-${variant}.wasm`);
 }
 
+// Newest modification time of the core's sources: a build older than that
+// would compare yesterday's code with today's.
+function newestSource() {
+  let t = 0;
+  for (const d of ['dsp/core', 'dsp/layers', 'dsp/include/earshot', 'dsp/wasm']) {
+    const dir = join(ROOT, d);
+    if (!existsSync(dir)) continue;
+    for (const f of readdirSync(dir)) if (/\.(cpp|hpp|h)$/.test(f)) t = Math.max(t, statSync(join(dir, f)).mtimeMs);
+  }
+  return t;
+}
+
+function checkFresh(path, hint) {
+  if (process.env.EARSHOT_ALLOW_STALE) return;
+  if (statSync(path).mtimeMs < newestSource())
+    throw new Error(`${path} is older than the core sources: rebuild it (${hint}), or set EARSHOT_ALLOW_STALE=1`);
+}
+
 export function wasmBytes(variant) {
   const p = wasmPath(variant);
-  if (!existsSync(p)) throw new Error(`${p} is missing: ${BUILD_HINT.replace(/VARIANT/g, variant)}`);
+  const hint = BUILD_HINT.replace(/VARIANT/g, variant);
+  if (!existsSync(p)) throw new Error(`${p} is missing: ${hint}`);
+  checkFresh(p, hint.replace('build it first (docs/wasm.md): ', ''));
   return readFileSync(p);
 }
 
@@ -48,7 +68,12 @@ export const NATIVE_PARITY_VARIANTS = ['scalar', 'sse4', 'avx2'];
 function nativeLibDir() {
   const cands = process.env.EARSHOT_NATIVE_LIB ? [process.env.EARSHOT_NATIVE_LIB]
     : [join(ROOT, 'build', 'wasmcmp'), join(ROOT, 'build', 'native')];
-  for (const d of cands) if (existsSync(join(d, 'libearshot.so'))) return d;
+  for (const d of cands) {
+    if (existsSync(join(d, 'libearshot.so'))) {
+      checkFresh(join(d, 'libearshot.so'), `cmake --build ${d} -j2 --target earshot_shared`);
+      return d;
+    }
+  }
   throw new Error(`libearshot.so not found in ${cands.join(' or ')}: build it first: ` +
     'cmake --preset native -B build/wasmcmp && cmake --build build/wasmcmp -j2 --target earshot_shared');
 }
