@@ -85,7 +85,7 @@ export class OfflinePanel {
   }
 
   updateButtons() {
-    $('render').disabled = !(this.effect && this.source) || !!this.worker;
+    $('render').disabled = !(this.effect && this.source) || !!this.worker || !!this.preparing;
   }
 
   cancel(message) {
@@ -180,15 +180,24 @@ export class OfflinePanel {
     status(this.status, 'error', `Rendering failed: ${message}`);
   }
 
-  done(fx, settings, r) {
+  async done(fx, settings, r) {
+    const id = this.job;
     $('render-cancel').hidden = true;
+    setText($('render-progress-text'), 'preparing playback…');
+    const audioSeconds = r.frames / r.rate;
+    this.result = null;
+    $('result').hidden = true;
+    this.preparing = true;
+    this.updateButtons();
+    const loaded = await this.player.load(r, (f) => {
+      $('render-progress').value = f;
+      setText($('render-progress-text'), `preparing playback… ${Math.round(100 * f)} %`);
+    });
+    this.preparing = false;
+    if (!loaded || id !== this.job) return;
     $('render-progress-row').hidden = true;
     this.updateButtons();
-    const audioSeconds = r.frames / r.rate;
     this.result = { ...r, effectName: fx.name, effectId: fx.id, settings, input: null, output: null };
-    this.player.load(r);
-    r.input = null;
-    r.output = null;
     $('result').hidden = false;
     this.redraw();
     const facts = clear($('result-facts'));

@@ -6,6 +6,7 @@
 // (BS.1770) to the original's.
 
 const SWITCH_S = 0.005;
+const COPY_SLICE = 1 << 20; // samples copied per task while loading
 
 export class Player {
   constructor(onEnd) {
@@ -26,17 +27,40 @@ export class Player {
     return this.original ? this.original.duration : 0;
   }
 
-  // result: the Worker's 'rendered' result (channels are consumed).
-  load(result) {
+  // result: the Worker's 'rendered' result; its channel arrays are copied
+  // into AudioBuffers a slice at a time (the page stays responsive with a
+  // long file) and released. onProgress(fraction) reports the copying.
+  async load(result, onProgress) {
+    const token = (this.loadToken = {});
     this.stop();
-    const make = (chs) => {
+    this.original = null;
+    this.processed = null;
+    const total = 2 * result.channels * result.frames;
+    let done = 0;
+    const make = async (chs) => {
       const b = new AudioBuffer({ length: chs[0].length, numberOfChannels: chs.length, sampleRate: result.rate });
-      chs.forEach((ch, c) => b.copyToChannel(ch, c));
+      for (let c = 0; c < chs.length; c++) {
+        const dst = b.getChannelData(c);
+        const src = chs[c];
+        for (let off = 0; off < src.length; off += COPY_SLICE) {
+          dst.set(src.subarray(off, Math.min(src.length, off + COPY_SLICE)), off);
+          done += Math.min(COPY_SLICE, src.length - off);
+          if (src.length > COPY_SLICE) {
+            if (onProgress) onProgress(done / total);
+            await new Promise((res) => setTimeout(res, 0));
+          }
+        }
+        chs[c] = null;
+      }
       return b;
     };
-    this.original = make(result.input);
-    this.processed = make(result.output);
+    const original = await make(result.input);
+    const processed = await make(result.output);
+    if (token !== this.loadToken) return false; // a newer load took over
+    this.original = original;
+    this.processed = processed;
     this.offset = 0;
+    return true;
   }
 
   gains() {
