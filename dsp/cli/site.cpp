@@ -311,32 +311,40 @@ std::vector<unsigned char> read_binary(const fs::path& p, const std::string& wha
   return b;
 }
 
-// Every file this run writes, relative to DIR, for the marker file.
-std::vector<std::string> g_written;
-fs::path g_out;
+// The output folder: every file written goes through here, so the marker
+// file can list them for the next rebuild.
+class SiteFiles {
+ public:
+  explicit SiteFiles(fs::path root) : root_(std::move(root)) {}
+  const fs::path& root() const { return root_; }
+  const std::vector<std::string>& written() const { return written_; }
 
-void note_written(const fs::path& p) {
-  std::error_code ec;
-  const fs::path rel = fs::relative(p, g_out, ec);
-  if (!ec && !rel.empty()) g_written.push_back(rel.generic_string());
-}
+  // Writes DIR/rel.
+  void write(const std::string& rel, const void* data, size_t n) {
+    const fs::path p = root_ / rel;
+    written_.push_back(fs::path(rel).generic_string());
+    std::ofstream f(p, std::ios::binary | std::ios::trunc);
+    if (!f) throw InputError("cannot write '" + p.string() + "': " + std::strerror(errno));
+    f.write(static_cast<const char*>(data), std::streamsize(n));
+    f.close();
+    if (!f) throw InputError("cannot write '" + p.string() + "'");
+  }
 
-void write_binary(const fs::path& p, const void* data, size_t n) {
-  note_written(p);
-  std::ofstream f(p, std::ios::binary | std::ios::trunc);
-  if (!f) throw InputError("cannot write '" + p.string() + "': " + std::strerror(errno));
-  f.write(static_cast<const char*>(data), std::streamsize(n));
-  f.close();
-  if (!f) throw InputError("cannot write '" + p.string() + "'");
-}
+  // Copies the file `from` to DIR/rel.
+  void copy(const fs::path& from, const std::string& rel, const std::string& what) {
+    std::error_code ec;
+    if (!fs::is_regular_file(from, ec)) throw InputError("cannot read " + what + " '" + from.string() + "': not a file");
+    const fs::path to = root_ / rel;
+    fs::create_directories(to.parent_path(), ec);
+    written_.push_back(fs::path(rel).generic_string());
+    fs::copy_file(from, to, fs::copy_options::overwrite_existing, ec);
+    if (ec) throw InputError("cannot copy " + what + " '" + from.string() + "' to '" + to.string() + "': " + ec.message());
+  }
 
-void copy_into(const fs::path& from, const fs::path& to, const std::string& what) {
-  std::error_code ec;
-  if (!fs::is_regular_file(from, ec)) throw InputError("cannot read " + what + " '" + from.string() + "': not a file");
-  note_written(to);
-  fs::copy_file(from, to, fs::copy_options::overwrite_existing, ec);
-  if (ec) throw InputError("cannot copy " + what + " '" + from.string() + "' to '" + to.string() + "': " + ec.message());
-}
+ private:
+  fs::path root_;
+  std::vector<std::string> written_;  // relative to root_, in writing order
+};
 
 bool is_assets_root(const fs::path& p) {
   std::error_code ec;
@@ -405,19 +413,15 @@ void prepare_out(const fs::path& out) {
   }
 }
 
-// Copies web/ (recursively) into out: index.html, style.css, js/.
-size_t copy_page(const fs::path& web, const fs::path& out) {
+// Copies web/ (recursively) into the site: index.html, style.css, js/, ...
+size_t copy_page(const fs::path& web, SiteFiles& out) {
   size_t n = 0;
   std::error_code ec;
   for (auto it = fs::recursive_directory_iterator(web, ec); !ec && it != fs::recursive_directory_iterator();
        it.increment(ec)) {
-    const fs::path rel = fs::relative(it->path(), web);
-    if (it->is_directory()) {
-      fs::create_directories(out / rel);
-    } else if (it->is_regular_file()) {
-      copy_into(it->path(), out / rel, "page file");
-      ++n;
-    }
+    if (!it->is_regular_file()) continue;
+    out.copy(it->path(), fs::relative(it->path(), web).generic_string(), "page file");
+    ++n;
   }
   if (ec) throw InputError("cannot list '" + web.string() + "': " + ec.message());
   return n;
@@ -596,13 +600,12 @@ int cmd_site(const std::vector<std::string>& argv) {
   // Write.
   const fs::path out = *out_opt;
   prepare_out(out);
-  g_out = out;
-  g_written.clear();
-  const size_t page_files = copy_page(assets / "web", out);
+  SiteFiles files(out);
+  const size_t page_files = copy_page(assets / "web", files);
   for (const char* f : {"loader.js", "capabilities.js", "processor.js"})
-    copy_into(assets / "worklet" / f, out / "worklet" / f, "worklet file");
-  write_binary(out / "wasm" / "earshot-simd.wasm", wasm_simd.data(), wasm_simd.size());
-  write_binary(out / "wasm" / "earshot-scalar.wasm", wasm_scalar.data(), wasm_scalar.size());
+    files.copy(assets / "worklet" / f, std::string("worklet/") + f, "worklet file");
+  files.write("wasm/earshot-simd.wasm", wasm_simd.data(), wasm_simd.size());
+  files.write("wasm/earshot-scalar.wasm", wasm_scalar.data(), wasm_scalar.size());
 
   rapidjson::StringBuffer sb;
   Writer w(sb);
@@ -640,10 +643,10 @@ int cmd_site(const std::vector<std::string>& argv) {
     const Loaded& L = loaded[i];
     const std::string site_file = "effects/" + fx.id + ".nfx";
     const std::string ref_file = "reference/" + fx.id + ".f32";
-    write_binary(out / site_file, L.bytes.data(), L.bytes.size());
+    files.write(site_file, L.bytes.data(), L.bytes.size());
     // reference/<id>.f32: the native output, float32 little-endian (x86 and
     // every WebAssembly engine are little-endian).
-    write_binary(out / ref_file, L.ref.out.data(), L.ref.out.size() * 4);
+    files.write(ref_file, L.ref.out.data(), L.ref.out.size() * 4);
 
     w.StartObject();
     write_string(w, "id", fx.id);
@@ -698,7 +701,7 @@ int cmd_site(const std::vector<std::string>& argv) {
     const ClipEntry& cl = cfg.clips[i];
     const ClipInfo& ci = clip_info[i];
     const std::string site_file = "clips/" + cl.id + ci.ext;
-    copy_into((config_dir / cl.file).lexically_normal(), out / site_file, "clip");
+    files.copy((config_dir / cl.file).lexically_normal(), site_file, "clip");
     w.StartObject();
     write_string(w, "id", cl.id);
     write_string(w, "name", cl.name);
@@ -725,10 +728,10 @@ int cmd_site(const std::vector<std::string>& argv) {
 
   std::string json = sb.GetString();
   json += '\n';
-  write_binary(out / "site.json", json.data(), json.size());
+  files.write("site.json", json.data(), json.size());
   std::string marker = "# made by 'earshot site'; the next run removes these files and rebuilds\n";
-  for (const std::string& f : g_written) marker += f + "\n";
-  write_binary(out / kMarker, marker.data(), marker.size());
+  for (const std::string& f : files.written()) marker += f + "\n";
+  files.write(kMarker, marker.data(), marker.size());
 
   if (!a.has("--quiet")) {
     std::error_code ec;
