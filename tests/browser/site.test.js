@@ -42,6 +42,18 @@ test('the page loads with no console errors, shows the config as text, and its s
   assert.equal(await page.textContent('#site-credits li'), built.config.credits[0]);
   assert.equal(await page.locator('#site-credits u').count(), 0);
   assert.match(await page.textContent('#variant-line'), /simd build/);
+  // A Content-Security-Policy allowing only what the page uses, and no inline script or handler.
+  const csp = await page.getAttribute('meta[http-equiv="Content-Security-Policy"]', 'content');
+  assert.match(csp, /default-src 'none'/);
+  assert.match(csp, /script-src 'self' 'wasm-unsafe-eval';/);
+  assert.equal(await page.locator('script:not([src])').count(), 0);
+  assert.equal(await page.evaluate(() => [...document.querySelectorAll('*')].filter((e) => [...e.attributes].some((a) => a.name.startsWith('on'))).length), 0);
+  // Every control has a label (or aria-label) and is reachable by the keyboard.
+  const unlabelled = await page.evaluate(() => [...document.querySelectorAll('input, select, button')]
+    .filter((e) => !(e.labels && e.labels.length) && !e.getAttribute('aria-label') && !(e.tagName === 'BUTTON' && e.textContent.trim()))
+    .map((e) => e.id || e.outerHTML.slice(0, 60)));
+  assert.deepEqual(unlabelled, []);
+  assert.equal(await page.evaluate(() => [...document.querySelectorAll('input, select, button')].filter((e) => e.tabIndex < 0).length), 0);
   mkdirSync(ARTIFACTS, { recursive: true });
   await page.screenshot({ path: join(ARTIFACTS, 'page-desktop.png'), fullPage: true });
   const phone = await browser.context.newPage();
@@ -221,6 +233,38 @@ test('an effect whose title and name contain markup shows them as text', async (
   assert.equal(await page.textContent('#card-title'), title);
   assert.equal(await page.locator('#effect-card img, #effect-card b, #effect-card i').count(), 0);
   assert.equal(await page.evaluate(() => window.__markup), undefined);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('the live processor starts at the low listening level and its limiter holds the output under -1 dBFS', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  // The processor in an OfflineAudioContext at 48 kHz, fed a 0.5-peak sine
+  // through the 'lstm' effect: once at the page's default level (−30 dB, the
+  // processor's own default), once at 0 dB with +24 dB of input gain.
+  const run = (levelDb, inputDb) => page.evaluate(async ({ levelDb, inputDb }) => {
+    const [wasm, effect] = await Promise.all(['wasm/earshot-simd.wasm', 'effects/lstm.nfx'].map((u) => fetch(u).then((r) => r.arrayBuffer())));
+    const ctx = new OfflineAudioContext(2, 48000, 48000);
+    await ctx.audioWorklet.addModule('worklet/processor.js');
+    const osc = new OscillatorNode(ctx, { frequency: 440 });
+    const amp = new GainNode(ctx, { gain: 0.5 });
+    const opts = { wasm, variant: 'simd', effect, settings: { controls: {}, mix: 1, inputDb, outputDb: 0, bypass: false } };
+    if (levelDb !== null) opts.levelDb = levelDb;
+    const node = new AudioWorkletNode(ctx, 'earshot-live', { outputChannelCount: [2], channelCount: 1, channelCountMode: 'explicit', processorOptions: opts });
+    osc.connect(amp).connect(node).connect(ctx.destination);
+    osc.start();
+    const out = await ctx.startRendering();
+    let peak = 0;
+    for (let c = 0; c < 2; c++) for (const v of out.getChannelData(c)) peak = Math.max(peak, Math.abs(v));
+    return peak;
+  }, { levelDb, inputDb });
+  const quiet = await run(null, 0);
+  const loud = await run(0, 24);
+  const ceiling = Math.pow(10, -1 / 20); // the limiter's ceiling, −1 dBFS (our choice; common practice, no source)
+  assert.ok(quiet < 0.1, `at the default level the output peaks at ${quiet}`);
+  assert.ok(loud <= ceiling * (1 + 1e-6), `with +24 dB in, the output peaks at ${loud} > ${ceiling}`);
+  assert.ok(loud > 0.5 * ceiling, `the limiter should let a loud signal through near its ceiling, got ${loud}`);
   await page.close();
   assert.deepEqual(problems, []);
 });
