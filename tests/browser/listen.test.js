@@ -1,0 +1,204 @@
+// The listening page in headless Chromium: a MUSHRA set and an ABX set run
+// start to finish (familiarisation, trials, a reload that resumes), the
+// results are downloaded and tallied by `earshot tally`; the stimulus hashes
+// are checked against the native tool's loudness matching and anchors,
+// hashed by a separate FNV-1a implementation in Python.
+import { test, before, after } from 'node:test';
+import assert from 'node:assert/strict';
+import { copyFileSync, existsSync, readFileSync, readdirSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
+import { join } from 'node:path';
+import { REPO, PYTHON, WORK, buildSite, serve, launch, openPage, download, earshotBin, mustRun, run } from './helpers.js';
+import { parseConfig } from '../../web/js/listen-config.js';
+import { plan } from '../../web/js/listen-order.js';
+
+const TARGET = -23;
+let built;
+let server;
+let browser;
+let bin;
+let config;
+
+// The site folder as the builder should make it: `earshot site` output plus
+// the listening page, its modules, listening.json and its clips.
+function assembleListeningSite(out) {
+  copyFileSync(join(REPO, 'web/listen.html'), join(out, 'listen.html'));
+  copyFileSync(join(REPO, 'web/listen.css'), join(out, 'listen.css'));
+  for (const f of readdirSync(join(REPO, 'web/js')).filter((f) => /^listen-.*\.js$/.test(f)))
+    copyFileSync(join(REPO, 'web/js', f), join(out, 'js', f));
+  mkdirSync(join(out, 'listen-clips'), { recursive: true });
+  // A 1.5 s plucked-like tone with harmonics, 48 kHz mono float32 (our own signal).
+  mustRun(PYTHON, ['-c', `
+import numpy as np, scipy.io.wavfile as w, sys
+r = 48000; t = np.arange(int(1.5 * r)) / r
+x = sum(np.sin(2 * np.pi * 196 * k * t) / k for k in range(1, 30)) * np.exp(-2 * t) * 0.3
+w.write(sys.argv[1], r, x.astype(np.float32))
+`, join(out, 'listen-clips', 'tone.wav')]);
+  const config = {
+    format: 'earshot-listening-tests',
+    version: 1,
+    title: 'Browser test',
+    tests: [
+      {
+        id: 'm-test', type: 'mushra', title: 'MUSHRA <b>test</b>', target_lufs: TARGET,
+        conditions: [{ id: 'reference', role: 'reference' }, { id: 'lstm' }],
+        items: [{ id: 'tone', stimuli: { reference: { file: 'listen-clips/tone.wav' }, lstm: { effect: 'lstm', clip: 'listen-clips/tone.wav' } } }],
+      },
+      {
+        id: 'x-test', type: 'abx', target_lufs: TARGET, trials: 2, familiarisation: false,
+        conditions: [{ id: 'reference', role: 'reference' }, { id: 'lstm' }],
+        pairs: [['reference', 'lstm']],
+        items: [{ id: 'tone', stimuli: { reference: { file: 'listen-clips/tone.wav' }, lstm: { effect: 'lstm', clip: 'listen-clips/tone.wav' } } }],
+      },
+    ],
+  };
+  writeFileSync(join(out, 'listening.json'), JSON.stringify(config, null, 1));
+  return config;
+}
+
+before(async () => {
+  const p = join(REPO, 'build/native/earshot');
+  // The tally must run: a missing binary is a failure, not a skip.
+  assert.ok(existsSync(p) || process.env.EARSHOT_BIN, `no ${p}: build it first (cmake --preset native && cmake --build --preset native --target earshot)`);
+  bin = earshotBin();
+  built = buildSite('listen-test');
+  config = parseConfig(assembleListeningSite(built.out));
+  server = await serve(built.out);
+  browser = await launch({ extraArgs: ['--autoplay-policy=no-user-gesture-required'] });
+});
+
+after(async () => {
+  if (browser) await browser.close();
+  if (server) server.stop();
+});
+
+async function step(page, name) {
+  await page.waitForSelector(`body[data-step="${name}"]`, { timeout: 90000 });
+}
+
+async function rateAll(page, score) {
+  const n = await page.locator('#trial-body input[type=range]').count();
+  for (let i = 0; i < n; i++) {
+    await page.locator(`#score-${i}`).evaluate((s, v) => {
+      s.value = String(v);
+      s.dispatchEvent(new Event('input', { bubbles: true }));
+    }, score(i));
+  }
+  return n;
+}
+
+// FNV-1a 64 over float32 little-endian bytes (offset basis and prime from the
+// FNV reference, draft-eastlake-fnv; recalled from memory), in Python.
+function pyHash(wav) {
+  const r = mustRun(PYTHON, ['-c', `
+import sys, numpy as np, scipy.io.wavfile as w
+_, x = w.read(sys.argv[1]); h = 0xcbf29ce484222325
+for b in np.ascontiguousarray(x, dtype='<f4').tobytes():
+    h = ((h ^ b) * 0x100000001b3) & 0xffffffffffffffff
+print("fnv1a64-float32le:%016x" % h)
+`, wav]);
+  return r.stdout.trim();
+}
+
+function tallyCsv(file, tag) {
+  const csv = join(WORK, 'listen-test', `${tag}.csv`);
+  const r = run(bin, ['tally', file, '--csv', csv]);
+  assert.equal(r.status, 0, `earshot tally failed:\n${r.stdout}\n${r.stderr}`);
+  const [head, ...rows] = readFileSync(csv, 'utf8').trim().split('\n').map((l) => l.split(','));
+  return { text: r.stdout, rows: rows.map((r) => Object.fromEntries(head.map((h, i) => [h, r[i]]))) };
+}
+
+test('a MUSHRA set runs through, resumes after a reload, and its results tally', async () => {
+  const { page, problems } = await openPage(browser.context, `${server.url}listen.html?test=m-test`);
+  await step(page, 'intro');
+  // Config text is text; the CSP has no inline script.
+  assert.equal(await page.textContent('#listen-title'), 'MUSHRA <b>test</b>');
+  assert.equal(await page.locator('script:not([src])').count(), 0);
+  assert.equal(await page.getAttribute('body', 'data-stimuli'), '4'); // reference, lstm, two anchors
+  await page.click('#start');
+  await step(page, 'familiar');
+  await page.click('#familiar-list .cue >> nth=0');
+  await page.click('#familiar-done');
+  await step(page, 'trial');
+  // Reloading in the trial comes back to the same trial with the same seed.
+  const seed = await page.getAttribute('body', 'data-seed');
+  await page.reload();
+  await step(page, 'trial');
+  assert.equal(await page.getAttribute('body', 'data-seed'), seed);
+  // Four stimuli (BS.1534-3: at most 12) and the five scale words.
+  assert.equal(await page.textContent('.bands'), 'BadPoorFairGoodExcellent');
+  await page.click('#trial-body .cue >> nth=0');
+  await page.click('#trial-body .cue >> nth=2');
+  assert.equal(await page.isDisabled('#trial-next'), true);
+  // The order the page shows follows from the seed alone: the hidden
+  // reference gets 100, the mid anchor 60, the others 20 and 35, so the
+  // BS.1534-3 post-screening keeps this assessor.
+  const order = plan(config.tests[0], Number(seed))[0].order;
+  const want = { reference: 100, lp7000: 60, lp3500: 20, lstm: 35 };
+  const n = await rateAll(page, (i) => want[order[i]]);
+  assert.equal(n, 4);
+  assert.equal(await page.isDisabled('#trial-next'), false);
+  await page.click('#trial-next');
+  await step(page, 'done');
+  const file = await download(page, '#download', 'listen-mushra.json');
+  const res = JSON.parse(readFileSync(file, 'utf8'));
+  assert.equal(res.format, 'earshot-listening-results');
+  assert.equal(res.participant.seed, Number(seed));
+  assert.deepEqual(res.conditions.map((c) => c.role), ['reference', 'test', 'anchor-low', 'anchor-mid']);
+  assert.deepEqual(res.trials[0].order, order);
+  assert.deepEqual(res.trials[0].ratings, want);
+
+  // The reference and low anchor as played equal the native tool's matching
+  // (earshot anchors, earshot loudness --match), hashed in Python.
+  const dir = join(WORK, 'listen-test', 'native');
+  rmSync(dir, { recursive: true, force: true });
+  mkdirSync(dir, { recursive: true });
+  const clip = join(built.out, 'listen-clips', 'tone.wav');
+  mustRun(bin, ['anchors', clip, '--out', dir]);
+  mustRun(bin, ['loudness', clip, '--match', String(TARGET), '--out', join(dir, 'ref.wav')]);
+  mustRun(bin, ['loudness', join(dir, 'tone-lp3500.wav'), '--match', String(TARGET), '--out', join(dir, 'lp.wav')]);
+  const hash = (c) => res.stimuli.find((s) => s.condition === c).hash;
+  assert.equal(hash('reference'), pyHash(join(dir, 'ref.wav')));
+  assert.equal(hash('lp3500'), pyHash(join(dir, 'lp.wav')));
+
+  const t = tallyCsv(file, 'mushra');
+  assert.match(t.text, /1 of 1 assessors kept/);
+  const all = t.rows.filter((r) => r.scope === 'all');
+  assert.deepEqual(all.map((r) => r.condition), ['reference', 'lstm', 'lp3500', 'lp7000']);
+  for (const r of all) {
+    assert.equal(r.n, '1');
+    assert.equal(Number(r.mean), want[r.condition]);
+  }
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('an ABX set runs through, resumes after a reload, and its results tally', async () => {
+  const { page, problems } = await openPage(browser.context, `${server.url}listen.html?test=x-test`);
+  await step(page, 'intro');
+  await page.click('#start');
+  await step(page, 'trial');
+  assert.equal(await page.textContent('#trial-count'), 'Trial 1 of 2');
+  await page.click('#trial-body .cue >> nth=2'); // X
+  await page.check('#answer-a');
+  await page.click('#trial-next');
+  await page.waitForSelector('body[data-trial="1"]');
+  await page.reload();
+  await step(page, 'trial');
+  assert.equal(await page.textContent('#trial-count'), 'Trial 2 of 2');
+  await page.check('#answer-b');
+  await page.click('#trial-next');
+  await step(page, 'done');
+  const file = await download(page, '#download', 'listen-abx.json');
+  const res = JSON.parse(readFileSync(file, 'utf8'));
+  assert.equal(res.trials.length, 2);
+  assert.deepEqual(res.trials.map((x) => x.answer), ['a', 'b']);
+  const correct = res.trials.filter((x) => x.answer === x.x).length;
+  const t = tallyCsv(file, 'abx');
+  const pooled = t.rows.find((r) => r.participant === '');
+  assert.equal(pooled.trials, '2');
+  assert.equal(Number(pooled.correct), correct);
+  // One-tailed exact binomial P(X >= correct), X ~ Binomial(2, 1/2): 1, 3/4, 1/4.
+  assert.ok(Math.abs(Number(pooled.p_one_tailed) - [1, 0.75, 0.25][correct]) < 1e-9);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
