@@ -49,6 +49,12 @@ w.write(sys.argv[1], r, x.astype(np.float32))
         pairs: [['reference', 'lstm']],
         items: [{ id: 'tone', stimuli: { reference: { file: 'listen-clips/tone.wav' }, lstm: { effect: 'lstm', clip: 'listen-clips/tone.wav' } } }],
       },
+      {
+        id: 'p-test', type: 'ab', target_lufs: TARGET, repeats: 3, no_preference: true, familiarisation: false,
+        conditions: [{ id: 'reference', role: 'reference' }, { id: 'lstm' }],
+        pairs: [['reference', 'lstm']],
+        items: [{ id: 'tone', stimuli: { reference: { file: 'listen-clips/tone.wav' }, lstm: { effect: 'lstm', clip: 'listen-clips/tone.wav' } } }],
+      },
     ],
   };
   writeFileSync(join(out, 'listening.json'), JSON.stringify(config, null, 1));
@@ -70,6 +76,13 @@ after(async () => {
   if (browser) await browser.close();
   if (server) server.stop();
 });
+
+// Every request the page makes goes to the test server: nothing else leaves the browser.
+function outsideRequests(page) {
+  const urls = [];
+  page.on('request', (r) => { if (!r.url().startsWith(server.url) && !r.url().startsWith('blob:')) urls.push(r.url()); });
+  return urls;
+}
 
 async function step(page, name) {
   await page.waitForSelector(`body[data-step="${name}"]`, { timeout: 90000 });
@@ -109,6 +122,7 @@ function tallyCsv(file, tag) {
 
 test('a MUSHRA set runs through, resumes after a reload, and its results tally', async () => {
   const { page, problems } = await openPage(browser.context, `${server.url}listen.html?test=m-test`);
+  const outside = outsideRequests(page);
   await step(page, 'intro');
   // Config text is text; the CSP has no inline script.
   assert.equal(await page.textContent('#listen-title'), 'MUSHRA <b>test</b>');
@@ -164,6 +178,7 @@ test('a MUSHRA set runs through, resumes after a reload, and its results tally',
   assert.match(t.text, /1 of 1 assessors kept/);
   const all = t.rows.filter((r) => r.scope === 'all');
   assert.deepEqual(all.map((r) => r.condition), ['reference', 'lstm', 'lp3500', 'lp7000']);
+  assert.deepEqual(outside, []);
   for (const r of all) {
     assert.equal(r.n, '1');
     assert.equal(Number(r.mean), want[r.condition]);
@@ -201,4 +216,49 @@ test('an ABX set runs through, resumes after a reload, and its results tally', a
   assert.ok(Math.abs(Number(pooled.p_one_tailed) - [1, 0.75, 0.25][correct]) < 1e-9);
   await page.close();
   assert.deepEqual(problems, []);
+});
+
+test('an A/B preference set with "no preference" runs through and its counts tally', async () => {
+  const { page, problems } = await openPage(browser.context, `${server.url}listen.html?test=p-test`);
+  await step(page, 'intro');
+  await page.click('#start');
+  const given = ['a', 'none', 'b'];
+  for (let k = 0; k < 3; k++) {
+    await page.waitForSelector(`body[data-step="trial"][data-trial="${k}"]`);
+    await page.click('#trial-body .cue >> nth=1');
+    await page.check(`#answer-${given[k]}`);
+    await page.click('#trial-next');
+  }
+  await step(page, 'done');
+  const file = await download(page, '#download', 'listen-ab.json');
+  const res = JSON.parse(readFileSync(file, 'utf8'));
+  assert.deepEqual(res.trials.map((x) => x.answer), given);
+  // Preferences per condition, from the answers as presented (a/b swap per trial).
+  const prefer = { reference: 0, lstm: 0 };
+  for (const x of res.trials) if (x.answer !== 'none') prefer[x[x.answer]]++;
+  const row = tallyCsv(file, 'ab').rows[0];
+  assert.deepEqual([row.pair_a, row.pair_b], ['reference', 'lstm']);
+  assert.equal(Number(row.prefer_a), prefer.reference);
+  assert.equal(Number(row.prefer_b), prefer.lstm);
+  assert.equal(row.no_preference, '1');
+  // Two preferences split 1:1 or 2:0; two-sided exact binomial p = 1 or 0.5 (2 * (1/2)^2).
+  assert.equal(Number(row.p_two_sided), prefer.reference === 1 ? 1 : 0.5);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a bad listening.json is refused with a message naming the field', async () => {
+  const page = await browser.context.newPage();
+  const bad = structuredClone(JSON.parse(readFileSync(join(built.out, 'listening.json'), 'utf8')));
+  bad.tests[0].target_lufs = 3;
+  await page.route('**/listening.json', (r) => r.fulfill({ contentType: 'application/json', body: JSON.stringify(bad) }));
+  await page.goto(`${server.url}listen.html`);
+  await step(page, 'error');
+  assert.equal(await page.textContent('#listen-error'), 'listening.json: tests[0].target_lufs: must be a number from -70 to 0 (LKFS), got 3');
+  bad.tests[0].target_lufs = -23;
+  bad.tests[0].conditions = Array.from({ length: 11 }, (_, i) => ({ id: i ? `c${i}` : 'reference', role: i ? 'test' : 'reference' }));
+  await page.reload();
+  await step(page, 'error');
+  assert.match(await page.textContent('#listen-error'), /13 stimuli per trial \(anchors included\) is over the 12 of ITU-R BS\.1534-3/);
+  await page.close();
 });

@@ -125,7 +125,11 @@ test('live input through the AudioWorklet gives the expected processed signal', 
   const inPath = await download(page, 'a[data-recording="Received input"]', 'live-input.wav');
   const outPath = await download(page, 'a[data-recording="Effect output"]', 'live-output.wav');
   const finalFacts = await page.textContent('#live-facts');
+  // Another effect while live: a new processor takes over the stream.
+  await page.selectOption('#effect-select', 'site:lstm');
+  await page.waitForFunction(() => /^Live: Test LSTM/.test(document.getElementById('live-status').textContent), null, { timeout: 30000 });
   await page.click('#live-stop');
+  assert.equal(await page.textContent('#live-status'), 'Stopped.');
   await page.close();
 
   // The same controls as the page's defaults for 'tcn' in the site config.

@@ -8,7 +8,7 @@ import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
 import {
   ARTIFACTS, MARKUP_NAME, buildSite, serve, launch, openPage, waitForCheck, download, compareWavBits,
-  earshotBin, mustRun, fixture, tmpFile,
+  earshotBin, mustRun, fixture, tmpFile, PYTHON,
 } from './helpers.js';
 
 let built;
@@ -265,6 +265,31 @@ test('the live processor starts at the low listening level and its limiter holds
   assert.ok(quiet < 0.1, `at the default level the output peaks at ${quiet}`);
   assert.ok(loud <= ceiling * (1 + 1e-6), `with +24 dB in, the output peaks at ${loud} > ${ceiling}`);
   assert.ok(loud > 0.5 * ceiling, `the limiter should let a loud signal through near its ceiling, got ${loud}`);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a render can be cancelled and the next one runs', async () => {
+  const long = tmpFile('cancel-120s.wav');
+  mustRun(PYTHON, ['-c', `
+import sys, numpy as np, scipy.io.wavfile as w
+t = np.arange(48000 * 120) / 48000
+x = 0.3 * np.sin(2 * np.pi * 220 * t)
+w.write(sys.argv[1], 48000, np.stack([x, x], 1).astype(np.float32))`, long]);
+  const { page, problems } = await openPage(browser.context, `${server.url}?variant=scalar`);
+  await waitForCheck(page);
+  await selectEffect(page, 'tcn');
+  await page.setInputFiles('#offline-file', long);
+  await page.click('#render');
+  await page.waitForFunction(() => Number(document.getElementById('render-progress').value) > 0, null, { timeout: 60000 });
+  await page.click('#render-cancel');
+  assert.equal(await page.textContent('#offline-status'), 'Cancelled.');
+  assert.equal(await page.isHidden('#render-progress-row'), true);
+  assert.equal(await page.isEnabled('#render'), true);
+  await page.waitForTimeout(1500);
+  assert.equal(await page.textContent('#offline-status'), 'Cancelled.', 'a cancelled render must not report later');
+  const r = await renderUpload(page, fixture('mono-48k-i16.wav'));
+  assert.equal(r.kind, 'ok', r.text);
   await page.close();
   assert.deepEqual(problems, []);
 });
