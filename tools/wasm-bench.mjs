@@ -2,11 +2,11 @@
 // WebAssembly speed, per model, in one run: WASM simd against native sse4
 // (the same 128-bit width) and WASM simd against WASM scalar.
 //
-//   node tools/wasm-bench.mjs [--seconds 10] [--block 128] [--repeats 3] [FILE.nfx ...]
+//   node tools/wasm-bench.mjs [--seconds 10] [--block 128] [--repeats 5] [FILE.nfx ...]
 //
 // Default models: build/bench-models/*.nfx (tools/make_bench_models.py, made
 // when missing). Each figure is the best of --repeats runs over the same
-// signal, processed in blocks of --block samples (128 = one render quantum),
+// signal (rounds interleave native, simd and scalar), processed in blocks of --block samples (128 = one render quantum),
 // at the model's own rate. Native timing comes from tests/node/native_run
 // (libearshot.so through the C ABI, steady_clock around earshot_process); the
 // WASM timing wraps Effect.process (worklet/loader.js), so it includes the
@@ -31,7 +31,7 @@ const opt = (name, def) => {
 };
 const SECONDS = opt('seconds', 10);
 const BLOCK = Math.floor(opt('block', 128));
-const REPEATS = Math.floor(opt('repeats', 3));
+const REPEATS = Math.floor(opt('repeats', 5));
 
 let files = args;
 if (!files.length) {
@@ -54,24 +54,27 @@ function signal(n) {
   return x;
 }
 
-function timeWasm(bytes, rate, name, x) {
-  const fx = createEffect(bytes, rate, variant(name));
-  const y = new Float32Array(x.length);
-  let best = Infinity;
-  for (let r = 0; r < REPEATS; r++) {
-    fx.reset();
-    const t0 = process.hrtime.bigint();
-    for (let off = 0; off < x.length; off += BLOCK) {
-      const end = Math.min(x.length, off + BLOCK);
-      fx.process(x.subarray(off, end), y.subarray(off, end));
-    }
-    best = Math.min(best, Number(process.hrtime.bigint() - t0) / 1e9);
-  }
+// Block views made once, outside the timing: a worklet receives its arrays
+// from the audio system, so per-block subarray garbage would be the bench's
+// own cost, not the loader's.
+function blocks(a) {
+  const out = [];
+  for (let off = 0; off < a.length; off += BLOCK) out.push(a.subarray(off, Math.min(a.length, off + BLOCK)));
+  return out;
+}
+
+// One timed pass of the input blocks through fx (from a reset state); returns seconds.
+function passWasm(fx, xb, yb) {
+  fx.reset();
+  const t0 = process.hrtime.bigint();
+  for (let i = 0; i < xb.length; i++) fx.process(xb[i], yb[i]);
+  return Number(process.hrtime.bigint() - t0) / 1e9;
+}
+
+function checksum(y) {
   let sum = 0;
   for (const v of y) sum += v;
-  const info = fx.info;
-  fx.destroy();
-  return { seconds: best, checksum: sum, info };
+  return sum;
 }
 
 const rows = [];
@@ -83,12 +86,30 @@ for (const file of files) {
   probe.destroy();
   const n = Math.round(SECONDS * rate);
   const x = signal(n);
-  const out = runNative(['bench', file, String(rate), 'sse4', String(SECONDS), String(BLOCK), String(REPEATS)]);
-  const native = Object.fromEntries(out.trim().split('\n').map((l) => [l.slice(0, l.indexOf(' ')), l.slice(l.indexOf(' ') + 1)]));
-  if (native.error) throw new Error(`${file}: ${native.error}`);
-  const simd = timeWasm(bytes, rate, 'simd', x);
-  const scalar = timeWasm(bytes, rate, 'scalar', x);
-  const nat = Number(native.seconds);
+  // Rounds interleave the three so that each sees the same machine load;
+  // the best round of each counts.
+  const fx = { simd: createEffect(bytes, rate, variant('simd')), scalar: createEffect(bytes, rate, variant('scalar')) };
+  const y = { simd: new Float32Array(n), scalar: new Float32Array(n) };
+  const best = { native: Infinity, simd: Infinity, scalar: Infinity };
+  // Warm-up (untimed): V8 first runs wasm from its baseline compiler and
+  // tiers up hot functions to the optimising one.
+  const xb = blocks(x);
+  const yb = { simd: blocks(y.simd), scalar: blocks(y.scalar) };
+  const warm = Math.ceil(Math.min(n, rate) / BLOCK);
+  for (const v of ['simd', 'scalar']) passWasm(fx[v], xb.slice(0, warm), yb[v].slice(0, warm));
+  let native = null;
+  for (let r = 0; r < REPEATS; r++) {
+    const out = runNative(['bench', file, String(rate), 'sse4', String(SECONDS), String(BLOCK), '1']);
+    native = Object.fromEntries(out.trim().split('\n').map((l) => [l.slice(0, l.indexOf(' ')), l.slice(l.indexOf(' ') + 1)]));
+    if (native.error) throw new Error(`${file}: ${native.error}`);
+    best.native = Math.min(best.native, Number(native.seconds));
+    for (const v of ['simd', 'scalar']) best[v] = Math.min(best[v], passWasm(fx[v], xb, yb[v]));
+  }
+  const simd = { seconds: best.simd, checksum: checksum(y.simd), info: fx.simd.info };
+  const scalar = { seconds: best.scalar, checksum: checksum(y.scalar) };
+  fx.simd.destroy();
+  fx.scalar.destroy();
+  const nat = best.native;
   // Same input, bit-identical outputs: the checksums agree to the printed digits.
   const same = Number(native.checksum).toPrecision(9) === simd.checksum.toPrecision(9) &&
     simd.checksum === scalar.checksum;
