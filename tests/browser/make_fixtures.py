@@ -1,7 +1,8 @@
 #!/usr/bin/python3
 """Writes the browser tests' fixtures into DIR (default build/browser-tests/fixtures):
 effects made with python/earshot (seeded, untrained: they test plumbing, not
-sound), a corrupt effect, audio files and a non-audio file.
+sound), a corrupt effect, audio files (WAV by SciPy, FLAC by sox) and a
+non-audio file.
 
     /usr/bin/python3 tests/browser/make_fixtures.py [DIR]
 
@@ -9,6 +10,7 @@ Every file is written under a temporary name and renamed, so a reader never
 sees half a file.
 """
 import os
+import subprocess
 import sys
 
 import numpy as np
@@ -47,8 +49,10 @@ def main():
     }
     for name, (model, credits) in effects.items():
         kw = {"controls": CONTROLS} if name == "tcn-film" else {}
+        # The markup effect runs at 44.1 kHz: a model rate other than 48 kHz.
+        rate = 44100 if name == "markup" else 48000
         replace_into(os.path.join(out, name + ".nfx"),
-                     lambda p, m=model, c=credits, k=kw: earshot.export(m, p, sample_rate=48000, credits=c, **k))
+                     lambda p, m=model, c=credits, k=kw, r=rate: earshot.export(m, p, sample_rate=r, credits=c, **k))
 
     # Corrupt: a valid file with its JSON header damaged (the loader must name the fault).
     good = open(os.path.join(out, "lstm-12.nfx"), "rb").read()
@@ -73,6 +77,11 @@ def main():
     # Live: 16-bit mono at 44.1 kHz, the rate Chromium's fake capture device runs at here.
     replace_into(os.path.join(out, "live-44k-i16.wav"),
                  lambda p: wavfile.write(p, 44100, np.round(tones(44100, 4.0, 1, 0.4) * 32767).astype(np.int16)))
+    # FLAC (decoded by the browser, not the page's WAV reader), made with sox.
+    flac = os.path.join(out, "stereo-44k.flac")
+    tmp = f"{flac}.tmp{os.getpid()}.flac"
+    subprocess.run(["sox", os.path.join(out, "stereo-44k-f32.wav"), "-b", "16", tmp], check=True)
+    os.replace(tmp, flac)
     # Three channels: refused by the page and the builder.
     replace_into(os.path.join(out, "three-channels.wav"),
                  lambda p: wavfile.write(p, 48000, tones(48000, 0.5, 3, 0.3).astype(np.float32)))

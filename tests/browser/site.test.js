@@ -161,7 +161,29 @@ test('an uploaded WAV rendered offline and downloaded is bit-identical to earsho
     const cmp = compareWavBits(pagePath, cliPath);
     assert.equal(cmp.same, true, `page vs earshot render for ${c.file}: ${JSON.stringify(cmp)}`);
     assert.equal(cmp.dtypes[0], 'float32');
+    // The loudness the page shows is the core's, as `earshot loudness` measures it.
+    const line = await page.$eval('#loudness-line', (e) => ({ ...e.dataset }));
+    assert.equal(line.by, 'core');
+    const native = JSON.parse(mustRun(earshotBin(), ['loudness', '--json', c.file, cliPath]).stdout).files;
+    // `earshot loudness --json` prints 15 significant digits.
+    assert.equal(Number(line.original).toPrecision(15), native[0].integrated_lufs.toPrecision(15), 'original');
+    assert.equal(Number(line.processed).toPrecision(15), native[1].integrated_lufs.toPrecision(15), 'processed');
   }
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a FLAC file is decoded by the browser, resampled to the model rate and rendered', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  const r = await renderUpload(page, fixture('stereo-44k.flac'));
+  assert.equal(r.kind, 'ok', r.text);
+  const facts = await page.textContent('#result-facts');
+  assert.match(facts, /stereo, 48\u202f000 Hz, 2\.50 s, decoded by the browser and resampled to 48\u202f000 Hz \(the model rate\)/);
+  assert.match(facts, /Resamplingnone \(the file is at the model rate\)/);
+  const path = await download(page, '#download', 'offline-flac.wav');
+  const info = JSON.parse(mustRun(PYTHON, ['-c', 'import sys, json, scipy.io.wavfile as w; r, x = w.read(sys.argv[1]); print(json.dumps([r, list(x.shape)]))', path]).stdout);
+  assert.deepEqual(info, [48000, [120000, 2]]);
   await page.close();
   assert.deepEqual(problems, []);
 });
@@ -218,6 +240,8 @@ test('an effect whose title and name contain markup shows them as text', async (
   await waitForCheck(page);
   const r = await selectEffect(page, 'markup');
   assert.equal(r.state, 'pass', r.text);
+  // This one was trained at 44.1 kHz: the self-check ran at its own rate.
+  assert.match(await page.textContent('#check-facts'), /132\u202f300 samples at 44\u202f100 Hz/);
   const title = '<img src=x onerror="window.__markup=1"><b>Bold</b> & <i>co</i>';
   assert.equal(await page.textContent('#card-title'), MARKUP_NAME);
   assert.ok((await page.textContent('#card-facts')).includes(title));

@@ -3,10 +3,10 @@
 // overlap, an absolute gate at −70 LKFS and a relative gate 10 LU below the
 // absolutely gated level; channel weights 1.0 (mono, left, right).
 //
-// Computed here in JavaScript, in the offline Worker. The core is gaining its
-// own loudness function (dsp/core/loudness.*); once the WebAssembly builds
-// export it, the page should call that instead so native and browser figures
-// agree to the bit.
+// The offline Worker uses the core's earshot_loudness_lkfs when the build
+// exports it (then page and `earshot loudness` agree to the bit) and this
+// module otherwise, e.g. when a build without it is served or wasm memory
+// cannot hold a copy of a very long file.
 //
 // The K-weighting for any rate comes from the analog-prototype parameters
 // that reproduce the Recommendation's 48 kHz coefficients (Table 1 and 2 of

@@ -223,7 +223,12 @@ export class OfflinePanel {
     const gain = Number.isFinite(r.inputLkfs) && Number.isFinite(r.outputLkfs) ? r.inputLkfs - r.outputLkfs : null;
     this.player.setMatch(on && gain !== null, gain || 0);
     const L = (v) => (Number.isFinite(v) ? `${v.toFixed(1)} LUFS` : 'too quiet or short to measure');
-    let text = `Integrated loudness (ITU-R BS.1770, computed in JavaScript): original ${L(r.inputLkfs)}, processed ${L(r.outputLkfs)}.`;
+    const by = r.loudnessBy === 'core' ? 'measured by the core, as earshot loudness does' : 'measured in JavaScript';
+    let text = `Integrated loudness (ITU-R BS.1770-4, ${by}): original ${L(r.inputLkfs)}, processed ${L(r.outputLkfs)}.`;
+    const line = $('loudness-line');
+    line.dataset.original = String(r.inputLkfs);
+    line.dataset.processed = String(r.outputLkfs);
+    line.dataset.by = r.loudnessBy;
     if (on) text += gain === null ? ' Matching is off: one side cannot be measured.' : ` While matching, the processed side plays ${db(gain)}.`;
     setText($('loudness-line'), text);
   }

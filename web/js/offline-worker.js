@@ -167,6 +167,38 @@ function peakOf(channels) {
   return p;
 }
 
+// Integrated loudness (BS.1770-4) by the core's earshot_loudness_lkfs when the
+// build exports it — the same figure `earshot loudness` prints natively — else
+// by web/js/loudness.js. The Worker's memory is released with the Worker.
+function loudness(variant, channels, rate) {
+  const C = channels.length;
+  const n = channels[0].length;
+  if (typeof variant.exports.earshot_loudness_lkfs === 'function') {
+    let p = 0;
+    try {
+      p = variant.malloc(n * C * 4);
+    } catch {
+      p = 0;
+    }
+    if (p) {
+      try {
+        variant.refresh();
+        const f = variant.f32;
+        const base = p >> 2;
+        for (let c = 0; c < C; c++) {
+          const ch = channels[c];
+          for (let t = 0; t < n; t++) f[base + t * C + c] = ch[t];
+        }
+        const v = variant.call('earshot_loudness_lkfs', p, n, C, rate);
+        if (!Number.isNaN(v)) return { lkfs: v, by: 'core' };
+      } finally {
+        variant.free(p);
+      }
+    }
+  }
+  return { lkfs: integratedLoudness(channels, rate), by: 'javascript' };
+}
+
 function applySettings(fx, settings) {
   for (const [name, value] of Object.entries(settings.controls || {})) fx.setControl(name, value);
   fx.setMix(settings.bypass ? 0 : settings.mix);
@@ -274,6 +306,8 @@ async function render(msg) {
     }
     postMessage({ type: 'progress', id: msg.id, done: total, total });
     const nonfinite = effects.reduce((s, fx) => s + fx.nonFiniteCount, 0);
+    const loudIn = loudness(variant, input, rate);
+    const loudOut = loudness(variant, output, rate);
     const result = {
       name: source.name,
       how,
@@ -292,9 +326,9 @@ async function render(msg) {
       outputPeaks: peaks(output),
       inputPeak: peakOf(input),
       outputPeak: peakOf(output),
-      inputLkfs: integratedLoudness(input, rate),
-      outputLkfs: integratedLoudness(output, rate),
-      loudnessBy: 'JavaScript (web/js/loudness.js)',
+      inputLkfs: loudIn.lkfs,
+      outputLkfs: loudOut.lkfs,
+      loudnessBy: loudIn.by === 'core' && loudOut.by === 'core' ? 'core' : 'javascript',
     };
     return { result };
   } finally {
