@@ -10,7 +10,7 @@ import { looksLikeWav, floatWavHeader } from './wav.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { drawWave } from './waveform.js';
 import { Player } from './player.js';
-import { count, hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
+import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
 
 export class OfflinePanel {
   constructor(engine, controls, site) {
