@@ -4,7 +4,7 @@
 // both builds against libearshot.so, on stereo and mono clips, plus the
 // refusals (status codes) for bad arguments.
 import assert from 'node:assert/strict';
-import { readFileSync } from 'node:fs';
+import { readFileSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
 import { test } from 'node:test';
 
@@ -57,6 +57,8 @@ function nativeRun(mode, x, rest) {
   const res = { st: Number(text[1]) };
   if (mode === 'loudness') res.lkfs = text[3] === '-inf' ? -Infinity : Number(text[3]);
   if (mode === 'anchor' && res.st === 0) res.y = readF32(out);
+  rmSync(path, { force: true });
+  rmSync(out, { force: true });
   return res;
 }
 
@@ -116,4 +118,5 @@ test('the float32 file helpers round-trip', () => {
   writeF32(p, x);
   assert.equal(readFileSync(p).length, 800);
   assert.equal(firstDifference(readF32(p), x), -1);
+  rmSync(p, { force: true });
 });

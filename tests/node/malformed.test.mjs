@@ -4,7 +4,7 @@
 // tests/node/native_run), names the fault, and never traps: the instance
 // stays usable and still loads and runs a good effect afterwards.
 import assert from 'node:assert/strict';
-import { readFileSync, writeFileSync } from 'node:fs';
+import { readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { test } from 'node:test';
 
@@ -107,6 +107,7 @@ test('every malformed file gives the native error text in WASM, names the fault,
     return p;
   });
   const native = runNative(['errors', ...paths]).split('\n').filter(Boolean);
+  for (const p of paths) rmSync(p, { force: true });
   assert.equal(native.length, list.length);
   const variants = Object.fromEntries(WASM_VARIANTS.map((v) => [v, variant(v)]));
   const problems = [];
@@ -151,6 +152,8 @@ test('bad host rates and variant names are refused with the native text', () => 
       assert.throws(() => createEffect(good, rate, variant(v)), (e) => e.message === native.slice(6) && pattern.test(e.message));
     }
   }
+  rmSync(p, { force: true });
+  rmSync(join(WORK, `rate-${process.pid}.txt`), { force: true });
   // A build asked to run under the other build's name says which build it is.
   const v = variant('scalar');
   v.name = 'simd';

@@ -4,7 +4,7 @@
 // sample positions on both sides; the block partitions are drawn
 // independently per side, so block-size invariance is exercised at the same time.
 import { join } from 'node:path';
-import { writeFileSync } from 'node:fs';
+import { rmSync, writeFileSync } from 'node:fs';
 
 import { prng, readF32, runNative, WORK, writeF32 } from './env.mjs';
 
@@ -152,7 +152,13 @@ export function runNativePlan(effectPath, rate, variant, input, plan) {
   });
   lines.push(`output ${outPath}`);
   writeFileSync(scriptPath, lines.join('\n') + '\n');
-  const text = runNative(['script', scriptPath]);
+  let text;
+  try {
+    text = runNative(['script', scriptPath]);
+  } finally {
+    rmSync(inPath, { force: true });
+    rmSync(scriptPath, { force: true });
+  }
   const res = { statuses: [], codes: {}, nonfinite: NaN, latency: NaN, info: null, variant: '', error: null };
   for (const line of text.split('\n')) {
     const sp = line.indexOf(' ');
@@ -170,5 +176,6 @@ export function runNativePlan(effectPath, rate, variant, input, plan) {
   if (res.error) return res;
   res.statuses = setters.map((ln) => (ln === 0 ? true : res.codes[ln] === 0));
   res.output = readF32(outPath);
+  rmSync(outPath, { force: true });
   return res;
 }
