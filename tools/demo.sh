@@ -1,7 +1,10 @@
 #!/usr/bin/env bash
 # The main job on the bundled demo material: builds the native tool, shows the
-# bundled effect, renders a bundled clip through it at two control settings,
-# and checks that every CPU variant computes the same samples.
+# bundled effect, checks that every CPU variant computes the same samples,
+# renders a bundled clip through it at two control settings, then builds the
+# demo site (both WebAssembly builds, page, effects, clips, reference hashes)
+# and serves it on localhost, printing the address. --no-serve stops after
+# building the site.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 bash tools/setup.sh build
@@ -24,3 +27,10 @@ for drive in 0.2 0.8; do
   "$bin" render "$fx" "$clip" "$out" "${ctl[@]}"
   echo "demo: wrote $out"
 done
+
+if [ "${1:-}" = "--no-serve" ]; then
+  bash tools/serve.sh --build-only
+  echo "demo: site built in build/site-demo"
+else
+  exec bash tools/serve.sh
+fi

@@ -26,11 +26,8 @@ fi
 if ls tests/node/*.test.mjs >/dev/null 2>&1 || ls tests/node/*.test.js >/dev/null 2>&1; then
   step "node tests" node --test tests/node/
 fi
-if ls tests/browser/*.test.js >/dev/null 2>&1; then
-  if [ ! -d node_modules/playwright-core ]; then
-    step "npm install" bash -c "if [ -f package-lock.json ]; then npm ci --no-audit --no-fund; else npm install --no-audit --no-fund; fi"
-  fi
-  step "browser tests" node --test --test-concurrency=1 tests/browser/
+if [ -f tests/browser/run.sh ]; then
+  step "browser tests" bash tests/browser/run.sh
 fi
 pytest_run() {
   PYTHONPATH=python EARSHOT_BUILD=build/native /usr/bin/python3 -m pytest -q tests/python "$@"
