@@ -23,7 +23,7 @@ mkdir -p build/demo
 for drive in 0.2 0.8; do
   out="build/demo/$(basename "${clip%.wav}")-drive$drive.wav"
   ctl=()
-  "$bin" info --json "$fx" | grep -q '"name":"drive"' && ctl=(--control "drive=$drive")
+  "$bin" info --json "$fx" | grep -Eq '"name": ?"drive"' && ctl=(--control "drive=$drive")
   "$bin" render "$fx" "$clip" "$out" "${ctl[@]}"
   echo "demo: wrote $out"
 done
