@@ -7,7 +7,7 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { copyFileSync, existsSync, readFileSync, readdirSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
-import { REPO, PYTHON, WORK, buildSite, serve, launch, openPage, download, earshotBin, mustRun, run } from './helpers.js';
+import { ARTIFACTS, REPO, PYTHON, WORK, buildSite, serve, launch, openPage, download, earshotBin, mustRun, run } from './helpers.js';
 import { parseConfig } from '../../web/js/listen-config.js';
 import { plan } from '../../web/js/listen-order.js';
 
@@ -150,6 +150,18 @@ test('a MUSHRA set runs through, resumes after a reload, and its results tally',
   const want = { reference: 100, lp7000: 60, lp3500: 20, lstm: 35 };
   const n = await rateAll(page, (i) => want[order[i]]);
   assert.equal(n, 4);
+  // Every control is labelled; nothing is wider than a phone screen.
+  const unlabelled = await page.evaluate(() => [...document.querySelectorAll('input, button')]
+    .filter((e) => !(e.labels && e.labels.length) && !e.getAttribute('aria-label') && !(e.tagName === 'BUTTON' && e.textContent.trim()))
+    .map((e) => e.id || e.outerHTML.slice(0, 60)));
+  assert.deepEqual(unlabelled, []);
+  mkdirSync(ARTIFACTS, { recursive: true });
+  await page.screenshot({ path: join(ARTIFACTS, 'listen-mushra-desktop.png'), fullPage: true });
+  await page.setViewportSize({ width: 390, height: 844 });
+  const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+  assert.ok(overflow <= 0, `the trial is ${overflow} px wider than a 390 px screen`);
+  await page.screenshot({ path: join(ARTIFACTS, 'listen-mushra-phone.png'), fullPage: true });
+  await page.setViewportSize({ width: 1280, height: 900 });
   assert.equal(await page.isDisabled('#trial-next'), false);
   await page.click('#trial-next');
   await step(page, 'done');
@@ -173,6 +185,10 @@ test('a MUSHRA set runs through, resumes after a reload, and its results tally',
   const hash = (c) => res.stimuli.find((s) => s.condition === c).hash;
   assert.equal(hash('reference'), pyHash(join(dir, 'ref.wav')));
   assert.equal(hash('lp3500'), pyHash(join(dir, 'lp.wav')));
+  // The effect rendered in the browser equals `earshot render` (latency trimmed, same length).
+  mustRun(bin, ['render', join(built.out, 'effects', 'lstm.nfx'), clip, join(dir, 'lstm.wav')]);
+  mustRun(bin, ['loudness', join(dir, 'lstm.wav'), '--match', String(TARGET), '--out', join(dir, 'lstm-m.wav')]);
+  assert.equal(hash('lstm'), pyHash(join(dir, 'lstm-m.wav')));
 
   const t = tallyCsv(file, 'mushra');
   assert.match(t.text, /1 of 1 assessors kept/);
