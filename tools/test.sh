@@ -16,7 +16,7 @@ jobs=2
 
 step "native build" bash -c "cmake --preset native >/dev/null && cmake --build --preset native -j$jobs"
 step "native tests" ctest --preset native -j$jobs
-step "sanitizer build" bash -c "cmake --preset native-asan >/dev/null && cmake --build --preset native-asan -j$jobs"
+step "sanitizer build" bash -c "cmake --preset native-asan >/dev/null && cmake --build --preset native-asan -j$jobs --target earshot_tests earshot-resample-tool"
 step "sanitizer tests" ctest --preset native-asan -j$jobs
 if [ -f cmake/wasm.cmake ]; then
   for v in wasm-simd wasm-scalar; do
