@@ -51,6 +51,7 @@ w.write(sys.argv[1], r, x.astype(np.float32))
       },
       {
         id: 'p-test', type: 'ab', target_lufs: TARGET, repeats: 3, no_preference: true, familiarisation: false,
+        post: 'https://results.example.org/earshot',
         conditions: [{ id: 'reference', role: 'reference' }, { id: 'lstm' }],
         pairs: [['reference', 'lstm']],
         items: [{ id: 'tone', stimuli: { reference: { file: 'listen-clips/tone.wav' }, lstm: { effect: 'lstm', clip: 'listen-clips/tone.wav' } } }],
@@ -235,7 +236,16 @@ test('an ABX set runs through, resumes after a reload, and its results tally', a
 });
 
 test('an A/B preference set with "no preference" runs through and its counts tally', async () => {
-  const { page, problems } = await openPage(browser.context, `${server.url}listen.html?test=p-test`);
+  // The https results address, answered here: the page must POST the same JSON it offers for download.
+  const posted = [];
+  const page = await browser.context.newPage();
+  const problems = [];
+  page.on('pageerror', (e) => problems.push(`page error: ${e.message}`));
+  await page.route('https://results.example.org/**', (r) => {
+    posted.push({ method: r.request().method(), type: r.request().headers()['content-type'], body: r.request().postData() });
+    return r.fulfill({ status: 200, headers: { 'Access-Control-Allow-Origin': '*', 'Access-Control-Allow-Headers': 'content-type' }, body: 'ok' });
+  });
+  await page.goto(`${server.url}listen.html?test=p-test`);
   await step(page, 'intro');
   await page.click('#start');
   const given = ['a', 'none', 'b'];
@@ -249,6 +259,11 @@ test('an A/B preference set with "no preference" runs through and its counts tal
   const file = await download(page, '#download', 'listen-ab.json');
   const res = JSON.parse(readFileSync(file, 'utf8'));
   assert.deepEqual(res.trials.map((x) => x.answer), given);
+  await page.waitForSelector('#post-status[data-kind=ok]');
+  const sent = posted.filter((p) => p.method === 'POST');
+  assert.equal(sent.length, 1);
+  assert.equal(sent[0].type, 'application/json');
+  assert.equal(sent[0].body, readFileSync(file, 'utf8'));
   // Preferences per condition, from the answers as presented (a/b swap per trial).
   const prefer = { reference: 0, lstm: 0 };
   for (const x of res.trials) if (x.answer !== 'none') prefer[x[x.answer]]++;
