@@ -173,7 +173,7 @@ function familiarise(test, prepared, onDone) {
   for (const item of test.items) {
     const group = el('div', { class: 'cue-row' }, el('span', { class: 'cue-item' }, item.id));
     // Numbered, not named: the names would tell the participant what to expect.
-    test.conditions.forEach((c, i) => group.appendChild(playButton(`Sound ${i + 1}`, `${item.id}/${c.id}`, group)));
+    test.conditions.forEach((c, i) => group.appendChild(playButton(`Sound ${i + 1}`, `${item.id}/${c.id}`, box)));
     group.appendChild(stopButton());
     box.appendChild(group);
   }
@@ -193,7 +193,7 @@ function mushraTrial(test, trial, stimuli, onAnswer) {
   cues.append(playButton('Reference', 'open-reference', box), stopButton());
   box.appendChild(cues);
   const scale = el('div', { class: 'bands', 'aria-hidden': 'true' }, BANDS.map((b) => el('span', {}, b)));
-  const grid = el('div', { class: 'ratings' }, el('span', {}), scale);
+  const grid = el('div', { class: 'ratings' }, el('span', {}), el('div', { class: 'slider' }, scale, el('span', {})));
   const sliders = [];
   trial.order.forEach((c, i) => {
     const row = el('div', { class: 'cue-row' });
