@@ -60,6 +60,22 @@ Args parse_args(const std::vector<std::string>& argv, const std::vector<OptionSp
 double parse_number(const std::string& what, const std::string& text, double lo, double hi);
 long parse_integer(const std::string& what, const std::string& text, long lo, long hi);
 
+// ---- audio files -----------------------------------------------------------
+
+// A whole audio file as float, interleaved (libsndfile's scaling: integer PCM
+// divided by 2^(bits-1)).
+struct Audio {
+  std::vector<float> samples;  // interleaved
+  size_t frames = 0;
+  int channels = 0;
+  int rate = 0;
+  int format = 0;  // libsndfile's SF_INFO.format (major | subtype)
+};
+
+// Reads any file libsndfile reads; InputError naming the file and what is
+// wrong: unreadable, 1..32 channels, 8000..384000 Hz, non-finite samples.
+Audio read_audio(const std::string& path);
+
 // ---- effect file and stream ------------------------------------------------
 
 // Reads a whole effect file; InputError naming the file and the OS reason.

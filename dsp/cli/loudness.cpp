@@ -86,44 +86,6 @@ struct SndCloser {
 };
 using SndPtr = std::unique_ptr<SNDFILE, SndCloser>;
 
-struct Audio {
-  std::vector<float> samples;  // interleaved
-  size_t frames = 0;
-  int channels = 0;
-  int rate = 0;
-};
-
-Audio read_audio(const std::string& path) {
-  struct stat st;
-  if (stat(path.c_str(), &st) != 0)
-    throw InputError("cannot read audio file '" + path + "': " + std::strerror(errno));
-  if (S_ISDIR(st.st_mode)) throw InputError("'" + path + "' is a folder, not an audio file");
-  SF_INFO info;
-  std::memset(&info, 0, sizeof info);
-  SndPtr f(sf_open(path.c_str(), SFM_READ, &info));
-  if (!f) throw InputError("cannot read audio file '" + path + "': " + sf_strerror(nullptr));
-  Audio a;
-  a.channels = info.channels;
-  a.rate = info.samplerate;
-  if (a.channels < 1 || a.channels > 32)
-    throw InputError("'" + path + "' has " + std::to_string(a.channels) + " channels; 1 to 32 are supported");
-  if (a.rate < 8000 || a.rate > 384000)
-    throw InputError("'" + path + "' has a sample rate of " + std::to_string(a.rate) +
-                     " Hz; 8000 to 384000 Hz are supported");
-  if (info.frames < 0) throw InputError("'" + path + "': libsndfile reports no length");
-  a.frames = size_t(info.frames);
-  a.samples.resize(a.frames * size_t(a.channels));
-  const sf_count_t got = a.frames ? sf_readf_float(f.get(), a.samples.data(), sf_count_t(a.frames)) : 0;
-  if (got != sf_count_t(a.frames))
-    throw InputError("'" + path + "': read " + std::to_string(got) + " of " + std::to_string(a.frames) +
-                     " frames: " + sf_strerror(f.get()));
-  for (size_t i = 0; i < a.samples.size(); ++i)
-    if (!std::isfinite(a.samples[i]))
-      throw InputError("'" + path + "': sample " + std::to_string(i / size_t(a.channels)) + " of channel " +
-                       std::to_string(i % size_t(a.channels) + 1) + " is not a finite number");
-  return a;
-}
-
 bool exists(const std::string& path) {
   struct stat st;
   return stat(path.c_str(), &st) == 0;

@@ -31,6 +31,8 @@
 #include <rapidjson/prettywriter.h>
 #include <rapidjson/stringbuffer.h>
 
+#include "json_fields.hpp"
+#include "site_listening.hpp"
 #include "test_signal.hpp"
 
 #ifndef EARSHOT_VERSION
@@ -50,7 +52,9 @@ const char* kHelp =
     "docs/site.md) into DIR: the page, its worker and AudioWorklet, both\n"
     "WebAssembly builds, the effects and clips, and site.json with the native\n"
     "reference output of every effect on the standard test signal (what the\n"
-    "page's self-check compares against). DIR works on any static web host; it\n"
+    "page's self-check compares against). With \"listening\" in CONFIG, also the\n"
+    "listening test definition and the audio files it names, for listen.html\n"
+    "(docs/listening.md). DIR works on any static web host; it\n"
     "needs no server code and no cross-origin-isolation headers.\n"
     "\n"
     "Paths inside CONFIG are relative to CONFIG's folder. DIR must be new, empty,\n"
@@ -68,53 +72,6 @@ const char* kHelp =
 constexpr double kSignalSeconds = 3.0;  // the length `earshot verify` uses by default
 constexpr int kExcerpt = 64;            // samples of the reference shown in a failing self-check
 constexpr const char* kMarker = ".earshot-site";
-
-// ---- config errors ---------------------------------------------------------
-
-// Every config error names the file and the field, e.g.
-// "demos/site.json: effects[1].controls.drive: 1.5 is outside 0 .. 1".
-struct Where {
-  std::string config;
-  [[noreturn]] void fail(const std::string& field, const std::string& msg) const {
-    throw InputError(config + ": " + (field.empty() ? "" : field + ": ") + msg);
-  }
-};
-
-const char* type_name(const rapidjson::Value& v) {
-  switch (v.GetType()) {
-    case rapidjson::kNullType: return "null";
-    case rapidjson::kFalseType:
-    case rapidjson::kTrueType: return "a boolean";
-    case rapidjson::kObjectType: return "an object";
-    case rapidjson::kArrayType: return "an array";
-    case rapidjson::kStringType: return "a string";
-    default: return "a number";
-  }
-}
-
-void only_fields(const Where& w, const std::string& field, const rapidjson::Value& obj,
-                 const std::vector<std::string>& allowed) {
-  for (auto it = obj.MemberBegin(); it != obj.MemberEnd(); ++it) {
-    const std::string key = it->name.GetString();
-    if (std::find(allowed.begin(), allowed.end(), key) == allowed.end()) {
-      std::string list;
-      for (const std::string& a : allowed) list += (list.empty() ? "" : ", ") + a;
-      w.fail(field, "unknown field '" + key + "' (allowed: " + list + ")");
-    }
-  }
-}
-
-const rapidjson::Value* member(const rapidjson::Value& obj, const char* key) {
-  auto it = obj.FindMember(key);
-  return it == obj.MemberEnd() ? nullptr : &it->value;
-}
-
-size_t utf8_length(const std::string& s) {
-  size_t n = 0;
-  for (unsigned char c : s)
-    if ((c & 0xc0) != 0x80) ++n;
-  return n;
-}
 
 std::string text_field(const Where& w, const std::string& field, const rapidjson::Value* v, bool required,
                        size_t max_chars, size_t min_chars = 0) {
@@ -166,20 +123,6 @@ std::string read_text_file(const std::string& path, const std::string& what) {
   return s;
 }
 
-// "line L, column C" of a byte offset.
-std::string position(const std::string& text, size_t offset) {
-  size_t line = 1, col = 1;
-  for (size_t i = 0; i < offset && i < text.size(); ++i) {
-    if (text[i] == '\n') {
-      ++line;
-      col = 1;
-    } else if ((static_cast<unsigned char>(text[i]) & 0xc0) != 0x80) {
-      ++col;
-    }
-  }
-  return "line " + std::to_string(line) + ", column " + std::to_string(col);
-}
-
 // ---- the parsed config -----------------------------------------------------
 
 struct EffectEntry {
@@ -198,8 +141,8 @@ struct Config {
   std::vector<std::string> credits;
   std::vector<EffectEntry> effects;
   std::vector<ClipEntry> clips;
-  rapidjson::Document doc;  // owns listening_tests
-  const rapidjson::Value* listening_tests = nullptr;
+  rapidjson::Document doc;
+  std::string listening;  // the listening test definition, relative to the config's folder
 };
 
 Config parse_config(const std::string& path) {
@@ -213,7 +156,7 @@ Config parse_config(const std::string& path) {
   if (!c.doc.IsObject()) w.fail("", std::string("the config must be a JSON object, got ") + type_name(c.doc));
   const rapidjson::Value& root = c.doc;
   only_fields(w, "", root,
-              {"version", "title", "description", "paper", "code", "credits", "effects", "clips", "listening_tests"});
+              {"version", "title", "description", "paper", "code", "credits", "effects", "clips", "listening"});
 
   if (const rapidjson::Value* v = member(root, "version")) {
     if (!v->IsNumber() || v->GetDouble() != 1)
@@ -292,12 +235,9 @@ Config parse_config(const std::string& path) {
     }
   }
 
-  // Listening tests belong to the next stage of the project; the builder only
-  // checks the shape and passes them through unchanged.
-  if (const rapidjson::Value* v = member(root, "listening_tests")) {
-    if (!v->IsArray()) w.fail("listening_tests", std::string("must be an array, got ") + type_name(*v));
-    c.listening_tests = v;
-  }
+  // The listening test definition is checked once the effects and clips are
+  // known (plan_listening).
+  c.listening = text_field(w, "listening", member(root, "listening"), false, 1000, 1);
   return c;
 }
 
@@ -400,7 +340,7 @@ void prepare_out(const fs::path& out) {
         if (rel.is_absolute() || line.find("..") != std::string::npos) continue;
         fs::remove(out / rel, ec);
       }
-      for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference"})
+      for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference", "listening"})
         if (fs::is_directory(out / sub, ec) && fs::is_empty(out / sub, ec)) fs::remove(out / sub, ec);
       fs::remove(out / kMarker, ec);
     }
@@ -597,6 +537,26 @@ int cmd_site(const std::vector<std::string>& argv) {
     clip_info[i] = {info.samplerate, info.channels, int64_t(info.frames), ext};
   }
 
+  // The listening tests: checked against the effects and clips above, every
+  // audio file read (site_listening.hpp).
+  ListeningPlan listening;
+  if (!cfg.listening.empty()) {
+    const fs::path def = (config_dir / cfg.listening).lexically_normal();
+    std::error_code ec;
+    if (!fs::is_regular_file(def, ec))
+      where.fail("listening", "no listening test definition at '" + def.string() + "' (the path is relative to the config's folder)");
+    std::vector<ListeningEffect> fx(cfg.effects.size());
+    for (size_t i = 0; i < cfg.effects.size(); ++i) {
+      fx[i].id = cfg.effects[i].id;
+      for (const auto& d : loaded[i].info["effect"]["controls"].GetArray())
+        fx[i].controls.push_back({json_string(d, "name"), json_number(d, "min"), json_number(d, "max")});
+    }
+    std::vector<ListeningClip> bundled(cfg.clips.size());
+    for (size_t i = 0; i < cfg.clips.size(); ++i)
+      bundled[i] = {(config_dir / cfg.clips[i].file).lexically_normal(), "clips/" + cfg.clips[i].id + clip_info[i].ext};
+    listening = plan_listening(def, fx, bundled);
+  }
+
   // Write.
   const fs::path out = *out_opt;
   prepare_out(out);
@@ -717,12 +677,25 @@ int cmd_site(const std::vector<std::string>& argv) {
   }
   w.EndArray();
 
-  w.Key("listening_tests");
-  if (cfg.listening_tests)
-    cfg.listening_tests->Accept(w);
-  else {
+  if (!cfg.listening.empty()) {
+    files.write("listening.json", listening.json.data(), listening.json.size());
+    for (const auto& c : listening.copies) files.copy(c.first, c.second, "listening test file");
+    w.Key("listening");
+    w.StartObject();
+    write_string(w, "file", "listening.json");
+    write_string(w, "page", "listen.html");
+    write_string(w, "title", listening.title);
+    w.Key("tests");
     w.StartArray();
+    for (const auto& t : listening.tests) {
+      w.StartObject();
+      write_string(w, "id", t.id);
+      write_string(w, "type", t.type);
+      write_string(w, "title", t.title);
+      w.EndObject();
+    }
     w.EndArray();
+    w.EndObject();
   }
   w.EndObject();
 
@@ -741,6 +714,9 @@ int cmd_site(const std::vector<std::string>& argv) {
       if (it->is_regular_file()) total += it->file_size();
     std::printf("wrote site %s: %zu effect(s), %zu clip(s), %zu page file(s), %s kB\n", out.string().c_str(),
                 cfg.effects.size(), cfg.clips.size(), page_files, format_count(int64_t(total / 1024)).c_str());
+    if (!cfg.listening.empty())
+      std::printf("  listening tests: %zu in listening.json (%zu file(s) copied to listening/), page listen.html\n",
+                  listening.tests.size(), listening.copies.size());
     for (size_t i = 0; i < cfg.effects.size(); ++i)
       std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", cfg.effects[i].id.c_str(), loaded[i].ref.rate,
                   hex64(loaded[i].ref.output_hash).c_str(), hex64(loaded[i].ref.signal_hash).c_str());

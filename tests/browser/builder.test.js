@@ -1,5 +1,5 @@
-// `earshot site`: what it writes (files, the native reference, pass-through of
-// listening tests) and how it refuses bad configs (exit code 3 and a message
+// `earshot site`: what it writes (files, the native reference; listening tests
+// in site-listening.test.js) and how it refuses bad configs (exit code 3 and a message
 // naming the file and the field; 2 for a bad command line).
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
@@ -13,7 +13,7 @@ test('the site holds the page, both builds, effects, clips and a reference equal
     'worklet/loader.js', 'worklet/capabilities.js', 'wasm/earshot-simd.wasm', 'wasm/earshot-scalar.wasm'])
     assert.ok(existsSync(join(out, f)), `missing ${f}`);
   assert.equal(site.title, config.title);
-  assert.deepEqual(site.listening_tests, config.listening_tests);
+  assert.equal(site.listening, undefined, 'no listening tests configured, none in site.json');
   assert.equal(site.clips[0].rate, 48000);
   assert.equal(site.clips[0].channels, 1);
   for (const fx of site.effects) {
@@ -82,7 +82,7 @@ const BAD = [
   ['credits-type', { title: 't', credits: 3, effects: [{ file: FX }] }, /credits: must be a string or an array of strings, got a number/],
   ['clip-ext', { title: 't', effects: [{ file: FX }], clips: [{ file: '../fixtures/notes.txt' }] }, /clips\[0\]\.file: '.*notes\.txt': a bundled clip must be a \.wav or \.flac file/],
   ['clip-channels', { title: 't', effects: [{ file: FX }], clips: [{ file: '../fixtures/three-channels.wav' }] }, /clips\[0\]\.file: '.*' has 3 channels/],
-  ['tests-type', { title: 't', effects: [{ file: FX }], listening_tests: {} }, /listening_tests: must be an array, got an object/],
+  ['listening-type', { title: 't', effects: [{ file: FX }], listening: {} }, /listening: must be a string, got an object/],
   ['long-title', { title: 'x'.repeat(201), effects: [{ file: FX }] }, /title: is 201 characters long, over the limit of 200/],
 ];
 

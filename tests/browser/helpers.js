@@ -51,7 +51,9 @@ export function ensureFixtures() {
 // The test site: three effects (one with markup in its title and name), one clip.
 export const MARKUP_NAME = 'Markup <script>window.__markup=2</script> name';
 
-export function buildSite(tag) {
+// extra: more site config fields (e.g. listening, a definition written into
+// build/browser-tests/<tag>/ by the caller).
+export function buildSite(tag, extra = {}) {
   ensureFixtures();
   const dir = join(WORK, tag);
   mkdirSync(dir, { recursive: true });
@@ -66,7 +68,7 @@ export function buildSite(tag) {
       { file: '../fixtures/markup.nfx', id: 'markup', name: MARKUP_NAME },
     ],
     clips: [{ file: '../fixtures/mono-48k-i16.wav', name: 'Mono clip' }],
-    listening_tests: [{ placeholder: true }],
+    ...extra,
   };
   const configPath = join(dir, 'site-config.json');
   writeFileSync(configPath, JSON.stringify(config, null, 1));

@@ -5,7 +5,7 @@
 // hashed by a separate FNV-1a implementation in Python.
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { copyFileSync, existsSync, readFileSync, readdirSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
+import { existsSync, readFileSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
 import { ARTIFACTS, REPO, PYTHON, WORK, buildSite, serve, launch, openPage, download, earshotBin, mustRun, run } from './helpers.js';
 import { parseConfig } from '../../web/js/listen-config.js';
@@ -18,13 +18,9 @@ let browser;
 let bin;
 let config;
 
-// The site folder as the builder should make it: `earshot site` output plus
-// the listening page, its modules, listening.json and its clips.
-function assembleListeningSite(out) {
-  copyFileSync(join(REPO, 'web/listen.html'), join(out, 'listen.html'));
-  copyFileSync(join(REPO, 'web/listen.css'), join(out, 'listen.css'));
-  for (const f of readdirSync(join(REPO, 'web/js')).filter((f) => /^listen-.*\.js$/.test(f)))
-    copyFileSync(join(REPO, 'web/js', f), join(out, 'js', f));
+// The listening test definition and its clip, written into the folder of the
+// site config (paths in it are relative to that folder).
+function writeDefinition(out) {
   mkdirSync(join(out, 'listen-clips'), { recursive: true });
   // A 1.5 s plucked-like tone with harmonics, 48 kHz mono float32 (our own signal).
   mustRun(PYTHON, ['-c', `
@@ -67,8 +63,11 @@ before(async () => {
   // The tally must run: a missing binary is a failure, not a skip.
   assert.ok(existsSync(p) || process.env.EARSHOT_BIN, `no ${p}: build it first (cmake --preset native && cmake --build --preset native --target earshot)`);
   bin = earshotBin();
-  built = buildSite('listen-test');
-  config = parseConfig(assembleListeningSite(built.out));
+  // The definition and its clip go beside the site config; `earshot site`
+  // copies them (the clip to listening/tone.wav).
+  writeDefinition(join(WORK, 'listen-test'));
+  built = buildSite('listen-test', { listening: 'listening.json' });
+  config = parseConfig(JSON.parse(readFileSync(join(built.out, 'listening.json'), 'utf8')));
   server = await serve(built.out);
   browser = await launch({ extraArgs: ['--autoplay-policy=no-user-gesture-required'] });
 });
@@ -179,7 +178,7 @@ test('a MUSHRA set runs through, resumes after a reload, and its results tally',
   const dir = join(WORK, 'listen-test', 'native');
   rmSync(dir, { recursive: true, force: true });
   mkdirSync(dir, { recursive: true });
-  const clip = join(built.out, 'listen-clips', 'tone.wav');
+  const clip = join(built.out, 'listening', 'tone.wav');
   mustRun(bin, ['anchors', clip, '--out', dir]);
   mustRun(bin, ['loudness', clip, '--match', String(TARGET), '--out', join(dir, 'ref.wav')]);
   mustRun(bin, ['loudness', join(dir, 'tone-lp3500.wav'), '--match', String(TARGET), '--out', join(dir, 'lp.wav')]);
@@ -291,5 +290,18 @@ test('a bad listening.json is refused with a message naming the field', async ()
   await page.reload();
   await step(page, 'error');
   assert.match(await page.textContent('#listen-error'), /13 stimuli per trial \(anchors included\) is over the 12 of ITU-R BS\.1534-3/);
+  await page.close();
+});
+
+test('the demo page links to the listening page the builder wrote', async () => {
+  const { page, problems } = await openPage(browser.context, `${server.url}index.html`);
+  const link = page.locator('#listening-link');
+  await link.waitFor({ timeout: 30000 });
+  assert.equal(await link.getAttribute('href'), 'listen.html');
+  assert.equal(await link.textContent(), 'Listening tests');
+  await link.click();
+  await page.waitForURL(/listen\.html$/);
+  await page.waitForSelector('body[data-step]', { timeout: 60000 });
+  assert.deepEqual(problems.filter((p) => !/favicon/.test(p)), []);
   await page.close();
 });

@@ -20,6 +20,9 @@ function showSite(site) {
   const links = clear($('site-links'));
   if (site.paper) links.appendChild(el('li', {}, link(site.paper, 'Paper')));
   if (site.code) links.appendChild(el('li', {}, link(site.code, 'Code')));
+  // The site's own listening page (written by `earshot site` with listening.json).
+  if (site.listening && site.listening.page === 'listen.html')
+    links.appendChild(el('li', {}, el('a', { href: 'listen.html', id: 'listening-link' }, 'Listening tests')));
   links.hidden = !links.firstChild;
   const credits = clear($('site-credits'));
   for (const c of site.credits) credits.appendChild(el('li', {}, c));
