@@ -60,4 +60,5 @@ PY
 }
 [ -n "$port" ] || port=$(free_port 8000)
 echo "serving $dir at http://localhost:$port/  (Ctrl-C stops)"
+[ -f "$dir/listening.json" ] && echo "listening tests at http://localhost:$port/listen.html"
 exec python3 -m http.server "$port" --bind 127.0.0.1 --directory "$dir"
