@@ -5,7 +5,8 @@
 // hashed by a separate FNV-1a implementation in Python.
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { existsSync, readFileSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
+import { cpSync, existsSync, readFileSync, writeFileSync, mkdirSync, rmSync } from 'node:fs';
+import https from 'node:https';
 import { join } from 'node:path';
 import { ARTIFACTS, REPO, PYTHON, WORK, buildSite, serve, launch, openPage, download, earshotBin, mustRun, run } from './helpers.js';
 import { parseConfig } from '../../web/js/listen-config.js';
@@ -308,4 +309,81 @@ test('the demo page links to the listening page the builder wrote', async () => 
   await page.waitForSelector('body[data-step="intro"], body[data-step="error"]', { timeout: 90000 });
   assert.equal(await page.getAttribute('body', 'data-step'), 'intro', await page.textContent('body'));
   await page.close();
+});
+
+// A real https endpoint on this machine (self-signed certificate made with
+// openssl, accepted by this Chromium through --ignore-certificate-errors): the
+// cross-origin POST goes through the CORS preflight as it would to a
+// collaborator's server; the first POST is answered 503, so the page must say
+// so and send the same bytes again when asked.
+test('the results reach a real https endpoint: preflight, a refused POST, and a retry that lands', async () => {
+  const dir = join(WORK, 'https-endpoint');
+  mkdirSync(dir, { recursive: true });
+  mustRun('openssl', ['req', '-x509', '-newkey', 'rsa:2048', '-nodes', '-keyout', join(dir, 'key.pem'), '-out', join(dir, 'cert.pem'),
+    '-days', '1', '-subj', '/CN=localhost', '-addext', 'subjectAltName=DNS:localhost,IP:127.0.0.1']);
+  const seen = [];
+  let posts = 0;
+  const endpoint = https.createServer({ key: readFileSync(join(dir, 'key.pem')), cert: readFileSync(join(dir, 'cert.pem')) }, (req, res) => {
+    let body = '';
+    req.on('data', (d) => { body += d; });
+    req.on('end', () => {
+      seen.push({ method: req.method, url: req.url, headers: req.headers, body });
+      const cors = { 'Access-Control-Allow-Origin': req.headers.origin || '*', 'Access-Control-Allow-Headers': 'content-type', 'Access-Control-Allow-Methods': 'POST' };
+      if (req.method === 'OPTIONS') { res.writeHead(204, cors); res.end(); return; }
+      posts++;
+      res.writeHead(posts === 1 ? 503 : 200, cors);
+      res.end(posts === 1 ? 'busy' : 'stored');
+    });
+  });
+  await new Promise((r) => endpoint.listen(0, '127.0.0.1', r));
+  const url = `https://localhost:${endpoint.address().port}/results`;
+  const b = await launch({ extraArgs: ['--autoplay-policy=no-user-gesture-required', '--ignore-certificate-errors'] });
+  let site;
+  try {
+    const page = await b.context.newPage();
+    const problems = [];
+    page.on('pageerror', (e) => problems.push(`page error: ${e.message}`));
+    // A copy of the site whose definition names this endpoint (no request
+    // interception here: with it, Playwright answers CORS preflights itself).
+    const copy = join(dir, 'site');
+    rmSync(copy, { recursive: true, force: true });
+    cpSync(built.out, copy, { recursive: true });
+    const def = JSON.parse(readFileSync(join(copy, 'listening.json'), 'utf8'));
+    def.tests.find((t) => t.id === 'p-test').post = url;
+    writeFileSync(join(copy, 'listening.json'), JSON.stringify(def));
+    site = await serve(copy);
+    await page.goto(`${site.url}listen.html?test=p-test`);
+    await step(page, 'intro');
+    await page.click('#start');
+    for (let k = 0; k < 3; k++) {
+      await page.waitForSelector(`body[data-step="trial"][data-trial="${k}"]`);
+      await page.check('#answer-a');
+      await page.click('#trial-next');
+    }
+    await step(page, 'done');
+    const file = await download(page, '#download', 'listen-ab-https.json');
+    await page.waitForSelector('#post-status[data-kind=error]', { timeout: 30000 });
+    assert.match(await page.textContent('#post-status'), /could not be sent \(HTTP 503/);
+    assert.equal(await page.isVisible('#post-retry'), true);
+    await page.click('#post-retry');
+    await page.waitForSelector('#post-status[data-kind=ok]', { timeout: 30000 });
+    const preflight = seen.find((s) => s.method === 'OPTIONS');
+    assert.ok(preflight, 'a cross-origin JSON POST is preceded by a CORS preflight');
+    assert.equal(preflight.headers['access-control-request-method'], 'POST');
+    assert.equal(preflight.headers.origin, new URL(site.url).origin);
+    const sent = seen.filter((s) => s.method === 'POST');
+    assert.equal(sent.length, 2, 'one refused POST and one retry');
+    for (const s of sent) {
+      assert.equal(s.url, '/results');
+      assert.equal(s.headers['content-type'], 'application/json');
+      assert.equal(s.headers.cookie, undefined, 'no credentials');
+      assert.equal(s.body, readFileSync(file, 'utf8'), 'the POST carries exactly the downloaded file');
+    }
+    assert.deepEqual(problems, []);
+    await page.close();
+  } finally {
+    await b.close();
+    endpoint.close();
+    if (site) site.stop();
+  }
 });
