@@ -3,6 +3,10 @@
 // "demos/site.json: effects[1].controls.drive: must be a number, got a string".
 #pragma once
 #include <algorithm>
+#include <cerrno>
+#include <cstring>
+#include <fstream>
+#include <iterator>
 #include <string>
 #include <vector>
 
@@ -52,6 +56,15 @@ inline size_t utf8_length(const std::string& s) {
   for (unsigned char c : s)
     if ((c & 0xc0) != 0x80) ++n;
   return n;
+}
+
+// A whole text file; InputError naming `what`, the path and the OS reason.
+inline std::string read_text_file(const std::string& path, const std::string& what) {
+  std::ifstream f(path, std::ios::binary);
+  if (!f) throw InputError("cannot read " + what + " '" + path + "': " + std::strerror(errno));
+  std::string s((std::istreambuf_iterator<char>(f)), std::istreambuf_iterator<char>());
+  if (f.bad()) throw InputError("cannot read " + what + " '" + path + "'");
+  return s;
 }
 
 // "line L, column C" of a byte offset, for parse errors.

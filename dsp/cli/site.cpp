@@ -115,13 +115,6 @@ std::string id_from(const std::string& path) {
   return id.empty() ? "item" : id;
 }
 
-std::string read_text_file(const std::string& path, const std::string& what) {
-  std::ifstream f(path, std::ios::binary);
-  if (!f) throw InputError("cannot read " + what + " '" + path + "': " + std::strerror(errno));
-  std::string s((std::istreambuf_iterator<char>(f)), std::istreambuf_iterator<char>());
-  if (f.bad()) throw InputError("cannot read " + what + " '" + path + "'");
-  return s;
-}
 
 // ---- the parsed config -----------------------------------------------------
 

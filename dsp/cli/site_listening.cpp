@@ -52,7 +52,7 @@ class Checker {
         clips_(clips) {}
 
   ListeningPlan run() {
-    const std::string text = read_text();
+    const std::string text = read_text_file(w_.file, "listening test definition");
     rapidjson::Document doc;
     doc.Parse(text.data(), text.size());
     if (doc.HasParseError())
@@ -95,21 +95,6 @@ class Checker {
     int rate = 0, channels = 0;
     size_t frames = 0;
   };
-
-  std::string read_text() {
-    std::error_code ec;
-    if (!fs::is_regular_file(w_.file, ec)) throw InputError("cannot read the listening test definition '" + w_.file + "': not a file");
-    FILE* f = std::fopen(w_.file.c_str(), "rb");
-    if (!f) throw InputError("cannot read the listening test definition '" + w_.file + "'");
-    std::string s;
-    char buf[65536];
-    size_t n;
-    while ((n = std::fread(buf, 1, sizeof buf, f)) > 0) s.append(buf, n);
-    const bool bad = std::ferror(f);
-    std::fclose(f);
-    if (bad) throw InputError("cannot read the listening test definition '" + w_.file + "'");
-    return s;
-  }
 
   static rapidjson::Value* mutable_member(rapidjson::Value& obj, const char* key) {
     auto it = obj.FindMember(key);
