@@ -59,33 +59,56 @@ inline void conv_time(const float* w, const float* b, int out, int in, int K, in
   }
 }
 
-// acc[r] += Σ_i wt[i][r]·x[i] for r in [0, rows): a matrix-vector product in
-// column (axpy) form. wt is the transposed weight, [in][rows].
-template <class A>
-inline void gemv_cols(const float* wt, int rows, const float* x, int in, float* acc) {
+// Rows [r, r + R·W) of gemv_cols: R vectors held in registers across the
+// whole column loop.
+template <class A, int R>
+inline void gemv_block(const float* wt, int rows, const float* x, int in, const float* init, float* acc, int r) {
   using O = Ops<A>;
-  using S = Ops<scalar_arch>;
   using V = typename O::V;
   constexpr int W = O::W;
-  constexpr int R = 8;  // vectors held in registers across the whole column loop
+  V a[R];
+  for (int j = 0; j < R; ++j) a[j] = O::load(init + r + j * W);
+  for (int i = 0; i < in; ++i) {
+    const V xv = O::set1(x[i]);
+    const float* p = wt + size_t(i) * rows + r;
+    for (int j = 0; j < R; ++j) a[j] = O::madd(O::load(p + j * W), xv, a[j]);
+  }
+  for (int j = 0; j < R; ++j) O::store(acc + r + j * W, a[j]);
+}
+
+// The last m < R whole vectors of rows in one block of m (so a remainder
+// keeps several independent sums in flight); returns the next row.
+template <class A, int R>
+inline int gemv_rest(const float* wt, int rows, const float* x, int in, const float* init, float* acc, int r, int m) {
+  if constexpr (R == 0) {
+    return r;
+  } else {
+    if (m != R) return gemv_rest<A, R - 1>(wt, rows, x, in, init, acc, r, m);
+    gemv_block<A, R>(wt, rows, x, in, init, acc, r);
+    return r + R * Ops<A>::W;
+  }
+}
+
+// acc[r] = init[r] + Σ_i wt[i][r]·x[i] for r in [0, rows): a matrix-vector
+// product in column (axpy) form, starting from init (which may be acc itself,
+// so a bias needs no copy first). wt is the transposed weight, [in][rows].
+template <class A>
+inline void gemv_cols(const float* wt, int rows, const float* x, int in, const float* init, float* acc) {
+  using S = Ops<scalar_arch>;
+  constexpr int W = Ops<A>::W;
+  // Vectors per block. Eight suit native code; V8's code for the WebAssembly
+  // SIMD build runs faster with six (docs/wasm.md has the figures). Every
+  // output's sum has the same terms in the same order either way.
+#if defined(__wasm_simd128__)
+  constexpr int R = 6;
+#else
+  constexpr int R = 8;
+#endif
   int r = 0;
-  for (; r + R * W <= rows; r += R * W) {
-    V a[R];
-    for (int j = 0; j < R; ++j) a[j] = O::load(acc + r + j * W);
-    for (int i = 0; i < in; ++i) {
-      const V xv = O::set1(x[i]);
-      const float* p = wt + size_t(i) * rows + r;
-      for (int j = 0; j < R; ++j) a[j] = O::madd(O::load(p + j * W), xv, a[j]);
-    }
-    for (int j = 0; j < R; ++j) O::store(acc + r + j * W, a[j]);
-  }
-  for (; r + W <= rows; r += W) {
-    V a0 = O::load(acc + r);
-    for (int i = 0; i < in; ++i) a0 = O::madd(O::load(wt + size_t(i) * rows + r), O::set1(x[i]), a0);
-    O::store(acc + r, a0);
-  }
+  for (; r + R * W <= rows; r += R * W) gemv_block<A, R>(wt, rows, x, in, init, acc, r);
+  r = gemv_rest<A, R - 1>(wt, rows, x, in, init, acc, r, (rows - r) / W);
   for (; r < rows; ++r) {
-    float a0 = acc[r];
+    float a0 = init[r];
     for (int i = 0; i < in; ++i) a0 = S::madd(wt[size_t(i) * rows + r], x[i], a0);
     acc[r] = a0;
   }

@@ -43,10 +43,8 @@ struct GruLayer : Layer {
       for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
       const float* cur = x.data();
       for (auto& L : lv) {
-        std::copy(L.bih.begin(), L.bih.end(), gi.begin());
-        std::copy(L.bhh.begin(), L.bhh.end(), gh.begin());
-        gemv_cols<A>(L.wih_t.data(), 3 * H, cur, L.in, gi.data());
-        gemv_cols<A>(L.whh_t.data(), 3 * H, L.h.data(), H, gh.data());
+        gemv_cols<A>(L.wih_t.data(), 3 * H, cur, L.in, L.bih.data(), gi.data());
+        gemv_cols<A>(L.whh_t.data(), 3 * H, L.h.data(), H, L.bhh.data(), gh.data());
         float* h = L.h.data();
         int j = 0;
         const auto one = O::set1(1.0f);

@@ -46,9 +46,8 @@ struct LstmLayer : Layer {
       for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
       const float* cur = x.data();
       for (auto& L : lv) {
-        std::copy(L.bias.begin(), L.bias.end(), z.begin());
-        gemv_cols<A>(L.wih_t.data(), 4 * H, cur, L.in, z.data());
-        gemv_cols<A>(L.whh_t.data(), 4 * H, L.h.data(), H, z.data());
+        gemv_cols<A>(L.wih_t.data(), 4 * H, cur, L.in, L.bias.data(), z.data());
+        gemv_cols<A>(L.whh_t.data(), 4 * H, L.h.data(), H, z.data(), z.data());
         const float* zi = z.data();
         const float* zf = zi + H;
         const float* zg = zf + H;
