@@ -73,6 +73,8 @@ struct BoundedStream {
   std::size_t PutEnd(Ch*) { return 0; }
 };
 
+// The iterative parser calls Start*/End* with the stream still on the bracket
+// (checked by tests/native/json_reader_test.cpp), hence the "+ 1"s below.
 // Forwards SAX events to the Document, caps depth, refuses duplicate keys and
 // records the byte offset where each value ends, in event order.
 struct Handler {
@@ -83,13 +85,21 @@ struct Handler {
   std::string problem;
   std::size_t problem_offset = 0;
   std::vector<std::vector<std::string>> keys;
+  std::size_t last = 0;  // stream offset where the previous event ended
 
   bool fail(const std::string& m) {
     problem = m;
     problem_offset = in.Tell();
     return false;
   }
-  void mark() { offsets.push_back(in.Tell()); }
+  // Records where the value starts: the first byte after the previous event
+  // that is not whitespace, ',' or ':'.
+  void mark() {
+    std::size_t i = last;
+    while (in.begin + i < in.end && std::strchr(" \t\r\n,:", in.begin[i]) && in.begin[i] != 0) ++i;
+    offsets.push_back(i);
+    last = in.Tell();
+  }
   bool Null() { mark(); return doc.Null(); }
   bool Bool(bool b) { mark(); return doc.Bool(b); }
   bool Int(int i) { mark(); return doc.Int(i); }
@@ -103,6 +113,7 @@ struct Handler {
     if (++depth > json_reader_max_depth)
       return fail("nesting deeper than " + std::to_string(json_reader_max_depth) + " levels");
     mark();
+    last = offsets.back() + 1;
     keys.emplace_back();
     return doc.StartObject();
   }
@@ -111,21 +122,25 @@ struct Handler {
     for (const std::string& seen : keys.back())
       if (seen == k) return fail("duplicate key \"" + k + "\"");
     keys.back().push_back(k);
+    last = in.Tell();
     return doc.Key(s, n, c);
   }
   bool EndObject(rapidjson::SizeType n) {
     --depth;
     keys.pop_back();
+    last = in.Tell() + 1;
     return doc.EndObject(n);
   }
   bool StartArray() {
     if (++depth > json_reader_max_depth)
       return fail("nesting deeper than " + std::to_string(json_reader_max_depth) + " levels");
     mark();
+    last = offsets.back() + 1;
     return doc.StartArray();
   }
   bool EndArray(rapidjson::SizeType n) {
     --depth;
+    last = in.Tell() + 1;
     return doc.EndArray(n);
   }
 };
@@ -173,6 +188,44 @@ inline std::string json_read(const std::string& name, const char* text, std::siz
   if (in.cur < in.end)
     return json_error_at(name, text, size, in.Tell(), "text after the end of the JSON value");
   return "";
+}
+
+namespace json_detail {
+inline bool find_offset(const rapidjson::Value& v, const rapidjson::Value* target,
+                        const std::vector<std::size_t>& offsets, std::size_t& i,
+                        std::size_t& found) {
+  if (&v == target) {
+    found = i < offsets.size() ? offsets[i] : 0;
+    return true;
+  }
+  ++i;
+  if (v.IsObject()) {
+    for (const auto& m : v.GetObject())
+      if (find_offset(m.value, target, offsets, i, found)) return true;
+  } else if (v.IsArray()) {
+    for (const auto& e : v.GetArray())
+      if (find_offset(e, target, offsets, i, found)) return true;
+  }
+  return false;
+}
+}  // namespace json_detail
+
+// Where value `v` of `d` starts (line, column in characters). The pre-order
+// walk matches the SAX event order in which offsets were recorded. Recursive,
+// but depth is capped at json_reader_max_depth by json_read.
+inline JsonPosition json_value_position(const JsonDocument& d, const rapidjson::Value* v) {
+  std::size_t i = 0, found = 0;
+  json_detail::find_offset(d.doc, v, d.offsets, i, found);
+  return json_position(d.text.data(), d.text.size(), found);
+}
+
+// "<name>: <path> (line L, column C): <message>", e.g.
+// "demos/site.json: effects[1].controls.drive (line 12, column 17): must be a number, got a string".
+inline std::string json_field_error(const JsonDocument& d, const rapidjson::Value* v,
+                                    const std::string& path, const std::string& message) {
+  JsonPosition p = json_value_position(d, v);
+  return d.name + ": " + path + " (line " + std::to_string(p.line) + ", column " +
+         std::to_string(p.column) + "): " + message;
 }
 
 }  // namespace earshot

@@ -37,3 +37,13 @@ TEST_CASE("json_reader: values parse") {
   CHECK(d.doc["a"][1].GetInt() == 2);
   CHECK(d.offsets.size() == 4);
 }
+
+TEST_CASE("json_reader: field errors name the path and where the value starts") {
+  JsonDocument d;
+  std::string text = "{\"effects\": [\n  {},\n  {\"controls\": {\"dr\xc3\xa9\": 1, \"drive\": \"x\"}}\n]}";
+  REQUIRE(json_read("site.json", text.data(), text.size(), d) == "");
+  const rapidjson::Value& v = d.doc["effects"][1]["controls"]["drive"];
+  CHECK(earshot::json_field_error(d, &v, "effects[1].controls.drive", "must be a number, got a string") ==
+        "site.json: effects[1].controls.drive (line 3, column 36): must be a number, got a string");
+  CHECK(earshot::json_value_position(d, &d.doc["effects"][1]).column == 3);
+}
