@@ -29,6 +29,7 @@
 #include <vector>
 
 #include "cli.hpp"  // first: it configures rapidjson
+#include "json_reader.hpp"
 
 #include <rapidjson/error/en.h>
 
@@ -304,22 +305,12 @@ std::string read_text(const std::string& path) {
 
 Result load(const std::string& path) {
   const std::string text = read_text(path);
-  rapidjson::Document doc;
-  doc.Parse(text.c_str(), text.size());
-  if (doc.HasParseError()) {
-    const size_t off = doc.GetErrorOffset();
-    size_t line = 1, col = 1;
-    for (size_t i = 0; i < off && i < text.size(); ++i) {
-      if (text[i] == '\n') {
-        ++line;
-        col = 1;
-      } else {
-        ++col;
-      }
-    }
-    throw InputError(path + ": not valid JSON at line " + std::to_string(line) + ", column " + std::to_string(col) +
-                     ": " + rapidjson::GetParseError_En(doc.GetParseError()));
-  }
+  // The shared reader (dsp/core/json_reader.hpp): iterative, depth and size
+  // capped, NUL and trailing text refused, UTF-8 validated.
+  JsonDocument parsed;
+  const std::string error = json_read(path, text.data(), text.size(), parsed);
+  if (!error.empty()) throw InputError(error);
+  const rapidjson::Document& doc = parsed.doc;
   if (!doc.IsObject()) fail(path, "(top level)", "must be a JSON object, not " + type_name(doc));
   Result r;
   r.file = path;

@@ -171,7 +171,7 @@ inline std::string json_read(const std::string& name, const char* text, std::siz
     return json_error_at(name, text, size, std::size_t(static_cast<const char*>(nul) - text),
                          "NUL byte in the text");
   json_detail::BoundedStream in{text, text, text + size};
-  json_detail::Handler h{out.doc, in, out.offsets};
+  json_detail::Handler h{out.doc, in, out.offsets, 0, {}, 0, {}, 0};
   rapidjson::ParseResult r;
   auto generate = [&](rapidjson::Document&) {
     rapidjson::Reader reader;

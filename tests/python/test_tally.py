@@ -376,7 +376,7 @@ def _set(d, value, *path):
 
 
 SINGLE_FILE_ERRORS = [
-    ("not-json", lambda: "{\n  \"format\": ", ["not valid JSON at line 2"]),
+    ("not-json", lambda: "{\n  \"format\": ", ["line 2, column"]),
     ("array", lambda: "[]", ["(top level)", "must be a JSON object"]),
     ("format", lambda: mutate(base_mushra(), lambda d: _set(d, "something-else", "format")),
      ["format", "not an earshot results file"]),
