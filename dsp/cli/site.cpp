@@ -32,6 +32,7 @@
 #include <rapidjson/stringbuffer.h>
 
 #include "json_fields.hpp"
+#include "json_reader.hpp"
 #include "site_listening.hpp"
 #include "test_signal.hpp"
 
@@ -142,10 +143,13 @@ Config parse_config(const std::string& path) {
   const Where w{path};
   const std::string text = read_text_file(path, "site config");
   Config c;
-  c.doc.Parse(text.data(), text.size());
-  if (c.doc.HasParseError())
-    w.fail("", std::string("not valid JSON at ") + position(text, c.doc.GetErrorOffset()) + ": " +
-                   rapidjson::GetParseError_En(c.doc.GetParseError()));
+  {
+    // The shared reader (dsp/core/json_reader.hpp): iterative, capped, strict.
+    JsonDocument parsed;
+    const std::string error = json_read(path, text.data(), text.size(), parsed);
+    if (!error.empty()) throw InputError(error);
+    c.doc.Swap(parsed.doc);
+  }
   if (!c.doc.IsObject()) w.fail("", std::string("the config must be a JSON object, got ") + type_name(c.doc));
   const rapidjson::Value& root = c.doc;
   only_fields(w, "", root,

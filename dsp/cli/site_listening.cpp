@@ -17,6 +17,7 @@
 #include <set>
 
 #include "json_fields.hpp"
+#include "json_reader.hpp"
 
 #include <rapidjson/error/en.h>
 #include <rapidjson/prettywriter.h>
@@ -53,11 +54,11 @@ class Checker {
 
   ListeningPlan run() {
     const std::string text = read_text_file(w_.file, "listening test definition");
-    rapidjson::Document doc;
-    doc.Parse(text.data(), text.size());
-    if (doc.HasParseError())
-      w_.fail("", "not valid JSON at " + position(text, doc.GetErrorOffset()) + ": " +
-                      rapidjson::GetParseError_En(doc.GetParseError()));
+    // The shared reader (dsp/core/json_reader.hpp): iterative, capped, strict.
+    JsonDocument parsed;
+    const std::string error = json_read(w_.file, text.data(), text.size(), parsed);
+    if (!error.empty()) throw InputError(error);
+    rapidjson::Document& doc = parsed.doc;
     if (!doc.IsObject()) w_.fail("", std::string("must be a JSON object, got ") + type_name(doc));
     only_fields(w_, "", doc, {"format", "version", "title", "tests"});
     const rapidjson::Value* format = member(doc, "format");

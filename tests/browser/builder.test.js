@@ -61,7 +61,7 @@ const FX = '../fixtures/lstm-12.nfx';
 const TCN = '../fixtures/tcn-film.nfx';
 
 const BAD = [
-  ['not-json', '{"title": "x",\n "effects": [}', /not-json\.json: not valid JSON at line 2, column 14/],
+  ['not-json', '{"title": "x",\n "effects": [}', /not-json\.json: line 2, column 14/],
   ['not-object', '[1, 2]', /the config must be a JSON object, got an array/],
   ['no-title', { effects: [{ file: FX }] }, /no-title\.json: title: missing/],
   ['empty-title', { title: '', effects: [{ file: FX }] }, /title: is empty/],

@@ -133,7 +133,7 @@ const stim = (stimuli) => definition([mushra({ items: [{ id: 'one', stimuli: { r
 // with which field)]. The page cannot see files or effects, so those are the
 // builder's alone.
 const BAD = [
-  ['not-json', '{"format": "earshot-listening-tests",\n "tests": [}', /not-json\.listening\.json: not valid JSON at line 2, column 12/, null],
+  ['not-json', '{"format": "earshot-listening-tests",\n "tests": [}', /not-json\.listening\.json: line 2, column 12/, null],
   ['format', { ...definition([mushra()]), format: 'x' }, /format: must be "earshot-listening-tests"/, 'format'],
   ['version', { ...definition([mushra()]), version: 2 }, /version: is 2; the listening page reads version 1/, 'version'],
   ['no-tests', definition([]), /tests: must be a non-empty array/, 'tests'],

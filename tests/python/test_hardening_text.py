@@ -61,3 +61,11 @@ def test_tally_refuses_duplicate_keys(tmp_path):
     p = run("tally", f)
     assert p.returncode == INPUT
     assert b'duplicate key "format"' in p.stderr
+
+
+def test_site_refuses_a_million_levels_of_nesting_in_its_config(tmp_path):
+    f = tmp_path / "site.json"
+    f.write_text("[" * 1_000_000)
+    p = run("site", f, "--out", tmp_path / "out")
+    assert p.returncode == INPUT
+    assert f"{f}: line 1, column 129: nesting deeper than 128 levels".encode() in p.stderr
