@@ -32,3 +32,20 @@ def test_render_failure_keeps_existing_out(tmp_path):
     assert "bad.flac" in r.stderr
     assert out.read_bytes() == b"previous output"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["bad.flac", "in.flac", "out.wav"]
+
+
+@pytest.mark.parametrize("link", ["symlink", "hardlink"])
+def test_loudness_match_refuses_same_file_by_identity(tmp_path, link):
+    """--out a symlink or hard link to FILE: refused even with --force; FILE byte-identical."""
+    if shutil.which("sox") is None:
+        pytest.fail("sox is required (tools/setup.sh installs it)")
+    src = tmp_path / "in.wav"
+    subprocess.run(["sox", "-n", "-r", "48000", "-c", "1", str(src), "synth", "1", "sine", "440"], check=True)
+    before = src.read_bytes()
+    out = tmp_path / "out.wav"
+    (os.symlink if link == "symlink" else os.link)(src, out)
+    r = subprocess.run([str(EARSHOT), "loudness", "--match", "-23", "--out", str(out), "--force", str(src)],
+                       capture_output=True, text=True)
+    assert r.returncode != 0
+    assert "same file" in r.stderr
+    assert src.read_bytes() == before
