@@ -152,7 +152,12 @@ int cmd_loudness(const std::vector<std::string>& argv) {
     if (a.positional.size() != 1) throw UsageError("--match takes exactly one FILE");
     if (!a.has("--out")) throw UsageError("--match needs --out FILE");
     out_path = *a.last("--out");
-    if (out_path == a.positional[0]) throw UsageError("--out is the same file as FILE; choose another");
+    // Same file by device and inode after following symlinks (also catches hard links), not by spelling.
+    struct stat si, so;
+    if (out_path == a.positional[0] ||
+        (::stat(a.positional[0].c_str(), &si) == 0 && ::stat(out_path.c_str(), &so) == 0 && si.st_dev == so.st_dev &&
+         si.st_ino == so.st_ino))
+      throw UsageError("--out '" + out_path + "' is the same file as FILE '" + a.positional[0] + "'; choose another");
     if (exists(out_path) && !a.has("--force"))
       throw UsageError("--out '" + out_path + "' exists; add --force to overwrite it");
   } else if (a.has("--out")) {

@@ -10,6 +10,7 @@
 #include <cctype>
 #include <cmath>
 #include <cstdio>
+#include <cstdlib>
 #include <memory>
 #include <string>
 #include <vector>
@@ -249,7 +250,28 @@ int cmd_render(const std::vector<std::string>& argv) {
       throw UsageError(std::string("OUT '") + out_path + "': " + container_name(out_major) + " cannot hold " +
                        encoding_name(sub) + " samples" + (encoding ? "; choose another --encoding" : ""));
   }
-  SndPtr out(sf_open(out_path.c_str(), SFM_WRITE, &out_info));
+  // Written to a unique temporary file beside OUT and renamed over it only after the whole run succeeded,
+  // so a failed run leaves an existing OUT untouched and no partial file.
+  struct TempOut {
+    std::string path;
+    bool keep = false;
+    ~TempOut() {
+      if (!keep && !path.empty()) std::remove(path.c_str());
+    }
+  } temp;
+  {
+    std::string tmpl = out_path + ".earshot-tmp-XXXXXX";
+    std::vector<char> buf(tmpl.begin(), tmpl.end());
+    buf.push_back('\0');
+    const int fd = mkstemp(buf.data());
+    if (fd < 0) throw InputError("cannot write audio file '" + out_path + "': cannot create a temporary file beside it");
+    const mode_t mask = umask(0);  // mkstemp makes 0600; OUT gets the usual 0666 & ~umask
+    umask(mask);
+    fchmod(fd, 0666 & ~mask);
+    ::close(fd);
+    temp.path = buf.data();
+  }
+  SndPtr out(sf_open(temp.path.c_str(), SFM_WRITE, &out_info));
   if (!out) throw InputError("cannot write audio file '" + out_path + "': " + sf_strerror(nullptr));
   if (sub != SF_FORMAT_FLOAT) sf_command(out.get(), SFC_SET_CLIPPING, nullptr, SF_TRUE);
 
@@ -269,7 +291,6 @@ int cmd_render(const std::vector<std::string>& argv) {
   auto fail_write = [&]() {
     const std::string msg = sf_strerror(out.get());
     out.reset();
-    std::remove(out_path.c_str());
     throw InputError("cannot write audio file '" + out_path + "': " + msg);
   };
   // Runs `k` frames from chan[] through the streams and writes what is past the trim.
@@ -305,8 +326,15 @@ int cmd_render(const std::vector<std::string>& argv) {
     const std::string msg = sf_strerror(in.get());
     bar.finish();
     out.reset();
-    std::remove(out_path.c_str());
     throw InputError("cannot read audio file '" + in_path + "': " + msg);
+  }
+  // libsndfile can end a damaged file early without setting an error: a short read is an error, never a
+  // shorter output.
+  if (seekable && done != in_frames) {
+    bar.finish();
+    out.reset();
+    throw InputError("'" + in_path + "': read " + std::to_string(done) + " of " + std::to_string(in_frames) +
+                     " frames");
   }
   // Flush: `latency` samples of silence push the tail out.
   for (int64_t left = latency; left > 0;) {
@@ -316,10 +344,10 @@ int cmd_render(const std::vector<std::string>& argv) {
     left -= k;
   }
   bar.finish();
-  if (sf_close(out.release()) != 0) {
-    std::remove(out_path.c_str());
-    throw InputError("cannot write audio file '" + out_path + "': closing failed");
-  }
+  if (sf_close(out.release()) != 0) throw InputError("cannot write audio file '" + out_path + "': closing failed");
+  if (std::rename(temp.path.c_str(), out_path.c_str()) != 0)
+    throw InputError("cannot write audio file '" + out_path + "': renaming the temporary file failed");
+  temp.keep = true;
 
   unsigned nonfinite = 0;
   for (const auto& s : streams) nonfinite += earshot_nonfinite_count(s->get());
