@@ -13,10 +13,7 @@ import struct
 
 import numpy as np
 
-MAX_FILE = 256 * 1024 * 1024
-MAX_HEADER = 16 * 1024 * 1024
-MAX_DIM = 65536
-MAX_PARAMS = 16777216
+from .limits import MAX_DIM, MAX_FILE_BYTES as MAX_FILE, MAX_HEADER_BYTES as MAX_HEADER, MAX_PARAMETERS as MAX_PARAMS
 DTYPES = {"F32": np.dtype("<f4"), "F16": np.dtype("<f2")}
 
 

@@ -11,6 +11,8 @@ import torch
 
 from . import container
 from .container import FormatError
+from .limits import (MAX_CHANNELS, MAX_CONTROLS, MAX_DILATION, MAX_FILM_HIDDEN, MAX_KERNEL, MAX_LAYERS,
+                     MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS)
 from .exporter import CREDIT_KEYS, LAYER_NAME
 from .modules import (ACTIVATIONS, GRU, LSTM, Activation, CausalConv1d, Effect, FiLM, Gated, Linear, TCNBlock,
                       WaveNet, _activation_object, control_spec)
@@ -30,7 +32,7 @@ def read(source):
     return desc, tensors
 
 
-def _int(layer, key, lo=1, hi=65536, default=None):
+def _int(layer, key, lo=1, hi=MAX_CHANNELS, default=None):
     v = layer.get(key, default)
     if isinstance(v, bool) or not isinstance(v, int) or not lo <= v <= hi:
         raise FormatError(f"layer {layer.get('name')!r}: {key} must be an integer in {lo} .. {hi}, got {v!r}")
@@ -46,13 +48,22 @@ def _bool(layer, key, default):
 
 def _film_args(name, f):
     hidden = f.get("hidden", [])
-    if (not isinstance(hidden, list) or len(hidden) > 4
-            or not all(isinstance(h, int) and not isinstance(h, bool) and 1 <= h <= 65536 for h in hidden)):
-        raise FormatError(f"layer {name!r}: film hidden must be a list of 0 .. 4 widths, got {hidden!r}")
+    if (not isinstance(hidden, list) or len(hidden) > MAX_FILM_HIDDEN
+            or not all(isinstance(h, int) and not isinstance(h, bool) and 1 <= h <= MAX_CHANNELS for h in hidden)):
+        raise FormatError(f"layer {name!r}: film hidden must be a list of 0 .. {MAX_FILM_HIDDEN} widths of "
+                          f"1 .. {MAX_CHANNELS}, got {hidden!r}")
     act = f.get("activation", "relu")
     if act not in ACTIVATIONS:
         raise FormatError(f"layer {name!r}: film activation {act!r} is not one of {', '.join(ACTIVATIONS)}")
-    return hidden, act
+    extra = {}
+    for key, default in (("slope", 0.01), ("min", -1.0), ("max", 1.0)):
+        v = f.get(key, default)
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise FormatError(f"layer {name!r}: film field {key!r} must be a finite number, got {v!r}")
+        extra[key] = float(v)
+    if act == "hardtanh" and not extra["min"] < extra["max"]:
+        raise FormatError(f"layer {name!r}: film hardtanh needs min < max")
+    return hidden, act, extra
 
 
 def build_layer(layer, width, n_controls):
@@ -66,12 +77,12 @@ def build_layer(layer, width, n_controls):
         return Linear(width, out, bias=_bool(layer, "bias", True)), out
     if kind == "conv1d":
         out = _int(layer, "out")
-        return CausalConv1d(width, out, _int(layer, "kernel"), _int(layer, "dilation", default=1),
-                            _bool(layer, "bias", True)), out
+        return CausalConv1d(width, out, _int(layer, "kernel", hi=MAX_KERNEL),
+                            _int(layer, "dilation", hi=MAX_DILATION, default=1), _bool(layer, "bias", True)), out
     if kind in ("lstm", "gru"):
         h = _int(layer, "hidden")
         cls = LSTM if kind == "lstm" else GRU
-        return cls(width, h, _int(layer, "num_layers", 1, 8, 1), _bool(layer, "bias", True)), h
+        return cls(width, h, _int(layer, "num_layers", 1, MAX_RECURRENT_LAYERS, 1), _bool(layer, "bias", True)), h
     if kind == "activation":
         fn = layer.get("fn")
         if fn not in ACTIVATIONS:
@@ -88,30 +99,36 @@ def build_layer(layer, width, n_controls):
     if kind == "film":
         if n_controls < 1:
             raise FormatError(f"layer {name!r}: film needs at least one control")
-        hidden, act = _film_args(name, layer)
-        return FiLM(width, n_controls, hidden, act), width
+        hidden, act, extra = _film_args(name, layer)
+        try:
+            return FiLM(width, n_controls, hidden, act, extra["slope"], extra["min"], extra["max"]), width
+        except ValueError as e:
+            raise FormatError(f"layer {name!r}: {e}") from None
     if kind == "wavenet":
         c, s = _int(layer, "channels"), _int(layer, "skip")
         dil = layer.get("dilations")
-        if (not isinstance(dil, list) or not 1 <= len(dil) <= 64
-                or not all(isinstance(d, int) and not isinstance(d, bool) and d >= 1 for d in dil)):
-            raise FormatError(f"layer {name!r}: dilations must be a list of 1 .. 64 integers >= 1")
-        return WaveNet(width, c, s, _int(layer, "kernel"), dil, _bool(layer, "bias", True)), s
+        if (not isinstance(dil, list) or not 1 <= len(dil) <= MAX_WAVENET_LAYERS
+                or not all(isinstance(d, int) and not isinstance(d, bool) and 1 <= d <= MAX_DILATION for d in dil)):
+            raise FormatError(f"layer {name!r}: dilations must be a list of 1 .. {MAX_WAVENET_LAYERS} integers "
+                              f"of 1 .. {MAX_DILATION}")
+        return WaveNet(width, c, s, _int(layer, "kernel", hi=MAX_KERNEL), dil, _bool(layer, "bias", True)), s
     if kind == "tcn":
         out = _int(layer, "out")
-        film = layer.get("film")
+        film = film_in = layer.get("film")
         if film is not None:
             if not isinstance(film, dict):
                 raise FormatError(f"layer {name!r}: film must be an object")
             if n_controls < 1:
                 raise FormatError(f"layer {name!r}: film needs at least one control")
-            hidden, act = _film_args(name, film)
+            hidden, act, extra = _film_args(name, film)
             film = {"hidden": hidden, "activation": act}
+            film.update({k: v for k, v in extra.items() if k in film_in})
         try:
             act = _activation_object(layer.get("activation", {"fn": "leaky_relu", "slope": 0.2}))
         except ValueError as e:
             raise FormatError(f"layer {name!r}: {e}") from None
-        return TCNBlock(width, out, _int(layer, "kernel"), _int(layer, "dilation", default=1),
+        return TCNBlock(width, out, _int(layer, "kernel", hi=MAX_KERNEL),
+                        _int(layer, "dilation", hi=MAX_DILATION, default=1),
                         _bool(layer, "bias", True), act, film, n_controls,
                         _bool(layer, "residual", True)), out
     raise FormatError(f"layer {name!r}: unknown type {kind!r}")
@@ -130,8 +147,8 @@ def _check_desc(desc):
             or not 8000 <= rate <= 384000:
         raise FormatError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
     ctl = desc.get("controls", [])
-    if not isinstance(ctl, list) or len(ctl) > 16:
-        raise FormatError("controls must be an array of at most 16 controls")
+    if not isinstance(ctl, list) or len(ctl) > MAX_CONTROLS:
+        raise FormatError(f"controls must be an array of at most {MAX_CONTROLS} controls")
     credits = desc.get("credits")
     if not isinstance(credits, dict) or not isinstance(credits.get("title"), str):
         raise FormatError("credits.title is required")
@@ -147,8 +164,8 @@ def _check_desc(desc):
     if not isinstance(g, dict):
         raise FormatError("graph is missing")
     layers = g.get("layers")
-    if not isinstance(layers, list) or not 1 <= len(layers) <= 256:
-        raise FormatError("graph.layers must be an array of 1 .. 256 layers")
+    if not isinstance(layers, list) or not 1 <= len(layers) <= MAX_LAYERS:
+        raise FormatError(f"graph.layers must be an array of 1 .. {MAX_LAYERS} layers")
     if not isinstance(g.get("input_skip", False), bool):
         raise FormatError("graph.input_skip must be true or false")
 
@@ -170,7 +187,7 @@ def load(source):
     inputs = g.get("inputs")
     if not isinstance(inputs, list) or inputs.count("audio") != 1:
         raise FormatError("graph.inputs must be an array holding 'audio' once")
-    names, mods, width, seen = [], [], len(inputs), set()
+    names, mods, width, seen, receptive = [], [], len(inputs), set(), 1
     for layer in g["layers"]:
         if not isinstance(layer, dict):
             raise FormatError("every graph.layers entry must be an object")
@@ -179,6 +196,13 @@ def load(source):
             raise FormatError(f"layer name {name!r} must be unique, 1 .. 64 characters of [A-Za-z0-9_.]")
         seen.add(name)
         m, width = build_layer(layer, width, len(specs))
+        kind = layer.get("type")
+        if kind in ("conv1d", "tcn"):
+            receptive += (layer["kernel"] - 1) * layer.get("dilation", 1)
+        elif kind == "wavenet":
+            receptive += sum((layer["kernel"] - 1) * d for d in layer["dilations"])
+        if receptive > MAX_RECEPTIVE_FIELD:
+            raise FormatError(f"layer {name!r}: receptive field exceeds {MAX_RECEPTIVE_FIELD} samples")
         names.append(name)
         mods.append(m)
     if width != 1:
