@@ -26,7 +26,7 @@ def read(source):
     try:
         desc = json.loads(meta["earshot.effect"])
     except (TypeError, ValueError) as e:
-        raise FormatError(f"__metadata__.earshot.effect is not valid JSON: {e}") from None
+        raise FormatError(f"effect description: invalid JSON: {e}") from None
     if not isinstance(desc, dict):
         raise FormatError("__metadata__.earshot.effect is not a JSON object")
     return desc, tensors
@@ -69,9 +69,11 @@ def _film_args(name, f):
 def build_layer(layer, width, n_controls):
     """(module, output width) for one layer object."""
     name, kind = layer.get("name"), layer.get("type")
-    declared = layer.get("in", layer.get("channels"))
+    key = "channels" if kind in ("activation", "gated", "film") else "in"
+    declared = layer.get(key)
     if declared != width:
-        raise FormatError(f"layer {name!r}: declares {declared!r} input channels, receives {width}")
+        raise FormatError(f"layer {name!r}: field {key!r} is {declared!r} but the previous stage gives "
+                          f"{width} channels")
     if kind == "linear":
         out = _int(layer, "out")
         return Linear(width, out, bias=_bool(layer, "bias", True)), out
@@ -87,6 +89,10 @@ def build_layer(layer, width, n_controls):
         fn = layer.get("fn")
         if fn not in ACTIVATIONS:
             raise FormatError(f"layer {name!r}: fn {fn!r} is not one of {', '.join(ACTIVATIONS)}")
+        for key in ("slope", "min", "max"):
+            v = layer.get(key, 0.0)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                raise FormatError(f"layer {name!r}: field {key!r} must be a finite number, got {v!r}")
         try:
             return Activation(width, fn, layer.get("slope", 0.01), layer.get("min", -1.0),
                               layer.get("max", 1.0)), width
@@ -123,6 +129,8 @@ def build_layer(layer, width, n_controls):
             hidden, act, extra = _film_args(name, film)
             film = {"hidden": hidden, "activation": act}
             film.update({k: v for k, v in extra.items() if k in film_in})
+        if not isinstance(layer.get("activation", {}), dict):
+            raise FormatError(f"layer {name!r}: field 'activation' must be an object {{\"fn\": ...}}")
         try:
             act = _activation_object(layer.get("activation", {"fn": "leaky_relu", "slope": 0.2}))
         except ValueError as e:
@@ -146,6 +154,8 @@ def _check_desc(desc):
     if isinstance(rate, bool) or not isinstance(rate, (int, float)) or not math.isfinite(rate) \
             or not 8000 <= rate <= 384000:
         raise FormatError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
+    if rate != int(rate):
+        raise FormatError(f"sample_rate {rate!r} must be a whole number of Hz")
     ctl = desc.get("controls", [])
     if not isinstance(ctl, list) or len(ctl) > MAX_CONTROLS:
         raise FormatError(f"controls must be an array of at most {MAX_CONTROLS} controls")
@@ -179,6 +189,16 @@ def load(source):
     """
     desc, tensors = read(source)
     _check_desc(desc)
+    seen_controls = set()
+    for i, c in enumerate(desc.get("controls", [])):
+        if not isinstance(c, dict):
+            raise FormatError(f"controls[{i}]: must be an object")
+        for k in ("name", "min", "max", "default"):
+            if k not in c:
+                raise FormatError(f"controls[{i}]: field {k!r} is missing")
+        if c["name"] in seen_controls:
+            raise FormatError(f"control {c['name']!r}: name used twice")
+        seen_controls.add(c["name"])
     try:
         specs = [control_spec(c) for c in desc.get("controls", [])]
     except ValueError as e:
@@ -192,8 +212,11 @@ def load(source):
         if not isinstance(layer, dict):
             raise FormatError("every graph.layers entry must be an object")
         name = layer.get("name")
-        if not isinstance(name, str) or not LAYER_NAME.match(name) or name in seen:
-            raise FormatError(f"layer name {name!r} must be unique, 1 .. 64 characters of [A-Za-z0-9_.]")
+        if not isinstance(name, str) or not LAYER_NAME.match(name):
+            raise FormatError(f"layer {len(names)}: field 'name' {name!r} must be 1 to 64 characters of "
+                              "[A-Za-z0-9_.]")
+        if name in seen:
+            raise FormatError(f"layer {name!r}: name used twice")
         seen.add(name)
         m, width = build_layer(layer, width, len(specs))
         kind = layer.get("type")
