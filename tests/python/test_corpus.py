@@ -33,7 +33,8 @@ DIR = os.path.join(ROOT, "tests", "data", "effects")
 INDEX = json.load(open(os.path.join(DIR, "index.json")))
 EXPECTED = json.load(open(os.path.join(DIR, "expected.json")))
 VALID = [e["file"] for e in INDEX["valid"]]
-INVALID = INDEX["invalid"]
+# "pending" files (see make_corpus.py) are refused by the Python loader already; the core follows later.
+INVALID = INDEX["invalid"] + INDEX.get("pending", [])
 torch.set_num_threads(1)
 
 
@@ -104,7 +105,7 @@ def test_invalid_file_is_refused_naming_the_field(case):
     with pytest.raises(FormatError) as e:
         earshot.load(blob(case["file"]))
     assert case["names"].lower() in str(e.value).lower(), (
-        f"{case['file']}: Python says {e.value!s}; the core says {EXPECTED[case['file']]['error']}")
+        f"{case['file']}: Python says {e.value!s}; the core says {EXPECTED.get(case['file'], {}).get('error')}")
 
 
 @pytest.mark.parametrize("name", VALID)

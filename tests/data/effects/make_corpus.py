@@ -265,6 +265,30 @@ def invalid_files():
                                  "effect description is not JSON")
     I["description_not_object"] = (container(*pack(base_desc, base_w, meta_text="[]")), "JSON object",
                                    "effect description is an array")
+    # Text-level faults of the two JSON documents (the header and the description).
+    good_meta = json.dumps(base_desc, separators=(",", ":"))
+    I["description_trailing_bytes"] = (container(*pack(base_desc, base_w, meta_text=good_meta + " x")),
+                                       "effect description", "bytes after the description's JSON object")
+    I["description_trailing_nul"] = (container(*pack(base_desc, base_w, meta_text=good_meta + "\0")),
+                                     "effect description", "a NUL after the description's JSON object")
+    I["description_nul_in_string"] = (container(*pack(base_desc, base_w,
+                                                      meta_text=good_meta.replace('"corpus"', '"cor\0pus"'))),
+                                      "effect description", "a raw NUL inside a string of the description")
+    hb = json.dumps(pack(base_desc, base_w)[0], separators=(",", ":")).encode()
+    I["header_trailing_bytes"] = (container(hb + b" x", pack(base_desc, base_w)[1]), "effect file header",
+                                  "bytes after the header's JSON object")
+    I["header_trailing_nul"] = (container(hb + b"\0", pack(base_desc, base_w)[1]), "effect file header",
+                                "a NUL after the header's JSON object")
+    I["header_invalid_utf8"] = (container(hb.replace(b'"a.weight"', b'"a.\xffweight"', 1),
+                                          pack(base_desc, base_w)[1]), "effect file header",
+                                "a tensor name that is not UTF-8 (byte 0xff)")
+    bad_title = good_meta.encode().replace(b'"corpus"', b'"cor\xc3pus"')
+    I["description_invalid_utf8"] = (container(hb.replace(json.dumps(good_meta)[1:-1].encode(),
+                                                          json.dumps(good_meta)[1:-1].encode()
+                                                          .replace(b"corpus", b"cor\xc3pus")),
+                                               pack(base_desc, base_w)[1]), "effect",
+                                     "a truncated UTF-8 sequence (0xc3) in the title")
+    del bad_title
     hdr_case("tensor_entry_not_object", lambda h, d: h.update({"a.weight": 5}), "a.weight", "entry is a number")
     hdr_case("dtype_missing", lambda h, d: h["a.weight"].pop("dtype"), "dtype", "no dtype")
     hdr_case("dtype_unknown", lambda h, d: h["a.weight"].update(dtype="Q4"), "dtype", "dtype Q4")
@@ -401,8 +425,15 @@ def invalid_files():
     return I
 
 
+# Faults dsp/FORMAT.md refuses ("valid JSON", UTF-8) that the core's description
+# parse still lets through on this branch; the shared JSON reader (dsp/core/
+# json_reader.hpp, another branch) refuses them. Listed under "pending" in
+# index.json, not run; move each to "invalid" and re-bless once that lands.
+PENDING = {"description_trailing_nul", "header_trailing_nul", "header_invalid_utf8", "description_invalid_utf8"}
+
+
 def main():
-    index = {"valid": [], "invalid": []}
+    index = {"valid": [], "invalid": [], "pending": []}
     for sub in ("valid", "invalid"):
         os.makedirs(os.path.join(HERE, sub), exist_ok=True)
         for f in os.listdir(os.path.join(HERE, sub)):
@@ -416,7 +447,8 @@ def main():
     for name, (data, names, why) in invalid_files().items():
         with open(os.path.join(HERE, "invalid", name + ".nfx"), "wb") as f:
             f.write(data)
-        index["invalid"].append({"file": f"invalid/{name}.nfx", "names": names, "why": why})
+        index["pending" if name in PENDING else "invalid"].append(
+            {"file": f"invalid/{name}.nfx", "names": names, "why": why})
     with open(os.path.join(HERE, "index.json"), "w") as f:
         json.dump(index, f, indent=1)
         f.write("\n")
