@@ -55,6 +55,20 @@ def write(path_or_file, tensors, metadata):
     return blob
 
 
+class _Duplicate(ValueError):
+    pass
+
+
+def _no_duplicates(pairs):
+    """A JSON object that names a key twice is refused (the core: "listed twice")."""
+    out = {}
+    for k, v in pairs:
+        if k in out:
+            raise _Duplicate(f"tensor {k!r}: listed twice")
+        out[k] = v
+    return out
+
+
 def read(source):
     """Parses a container from a path or bytes, checking the container rules.
 
@@ -81,7 +95,9 @@ def read(source):
     if 8 + n > len(blob):
         raise FormatError(f"effect file: header length {n} runs past the end of the file ({len(blob)} bytes)")
     try:
-        header = json.loads(blob[8:8 + n].decode("utf-8"))
+        header = json.loads(blob[8:8 + n].decode("utf-8"), object_pairs_hook=_no_duplicates)
+    except _Duplicate as e:
+        raise FormatError(str(e)) from None
     except (UnicodeDecodeError, ValueError) as e:
         raise FormatError(f"effect file header: invalid JSON: {e}") from None
     if not isinstance(header, dict):
@@ -106,6 +122,8 @@ def read(source):
         if (not isinstance(shape, list) or not 1 <= len(shape) <= 4
                 or not all(isinstance(d, int) and not isinstance(d, bool) and 1 <= d <= MAX_DIM for d in shape)):
             raise FormatError(f"tensor {name!r}: shape {shape} needs 1 to 4 dimensions of 1 .. {MAX_DIM}")
+        if math.prod(shape) > MAX_PARAMS:
+            raise FormatError(f"tensor {name!r}: more than {MAX_PARAMS} values")
         offs = t["data_offsets"]
         if (not isinstance(offs, list) or len(offs) != 2 or not all(isinstance(o, int) and not isinstance(o, bool) for o in offs)
                 or not 0 <= offs[0] <= offs[1] <= len(data)):

@@ -196,6 +196,10 @@ def load(source):
         for k in ("name", "min", "max", "default"):
             if k not in c:
                 raise FormatError(f"controls[{i}]: field {k!r} is missing")
+        for k in ("min", "max", "default", "smoothing_ms"):
+            v = c.get(k, 0)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                raise FormatError(f"control {c['name']!r}: field {k!r} must be a finite number")
         if c["name"] in seen_controls:
             raise FormatError(f"control {c['name']!r}: name used twice")
         seen_controls.add(c["name"])
@@ -205,12 +209,14 @@ def load(source):
         raise FormatError(f"controls: {e}") from None
     g = desc["graph"]
     inputs = g.get("inputs")
+    if isinstance(inputs, list) and not all(isinstance(n, str) for n in inputs):
+        raise FormatError("graph: 'inputs' entries must be strings")
     if not isinstance(inputs, list) or inputs.count("audio") != 1:
         raise FormatError("graph.inputs must be an array holding 'audio' once")
     names, mods, width, seen, receptive = [], [], len(inputs), set(), 1
     for layer in g["layers"]:
         if not isinstance(layer, dict):
-            raise FormatError("every graph.layers entry must be an object")
+            raise FormatError(f"layer {len(names)}: must be an object")
         name = layer.get("name")
         if not isinstance(name, str) or not LAYER_NAME.match(name):
             raise FormatError(f"layer {len(names)}: field 'name' {name!r} must be 1 to 64 characters of "

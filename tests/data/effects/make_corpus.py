@@ -187,6 +187,7 @@ def valid_files():
     V["controls_as_inputs"] = effect([lin("m", 3, 2), {"type": "activation", "name": "f", "channels": 2,
                                                        "fn": "tanh"}, lin("o", 2, 1)],
                                      controls=two, inputs=["tone", "audio", "drive"])
+    V["control_order_differs"] = effect([lin("g", 3, 1)], controls=two, inputs=["audio", "tone", "drive"])
     V["control_not_in_inputs"] = effect([lin("g", 1, 1)], controls=[control("unused")])
     V["lstm_f16"] = effect([{"type": "lstm", "name": "r", "in": 1, "hidden": 3}, lin("o", 3, 1)])
     V["tcn_film_f16"] = effect([{"type": "tcn", "name": "t", "in": 1, "out": 2, "kernel": 3,
@@ -289,6 +290,10 @@ def invalid_files():
                                                pack(base_desc, base_w)[1]), "effect",
                                      "a truncated UTF-8 sequence (0xc3) in the title")
     del bad_title
+    I["tensor_listed_twice"] = (container(hb.replace(b'"a.bias":', b'"a.weight":', 1), pack(base_desc, base_w)[1]),
+                                "listed twice", "a tensor name twice in the header (JSON duplicate key)")
+    hdr_case("tensor_over_max_parameters", lambda h, d: h["a.weight"].update(shape=[4097, 4097]),
+             "16777216", "one tensor of 4097 x 4097 values, over kMaxParameters (refused before its data is read)")
     hdr_case("tensor_entry_not_object", lambda h, d: h.update({"a.weight": 5}), "a.weight", "entry is a number")
     hdr_case("dtype_missing", lambda h, d: h["a.weight"].pop("dtype"), "dtype", "no dtype")
     hdr_case("dtype_unknown", lambda h, d: h["a.weight"].update(dtype="Q4"), "dtype", "dtype Q4")
@@ -356,6 +361,10 @@ def invalid_files():
     desc_case("control_default_outside", d(controls=[control("k", 0, 1, 2)]), "default", "default above max")
     desc_case("control_smoothing_10001", d(controls=[control("k", smoothing_ms=10001)]), "smoothing_ms",
               "smoothing over 10000 ms")
+    desc_case("control_not_object", d(controls=["drive"]), "controls[0]", "a control given as a bare name")
+    desc_case("control_max_not_number", d(controls=[control("k", hi="1")]), "max", "max is a string")
+    desc_case("credits_author_long", d(credits={"title": "x", "authors": ["a" * 1001]}), "authors",
+              "an author over 1000 characters")
     desc_case("control_min_missing", d(controls=[{"name": "k", "max": 1, "default": 0}]), "min", "no min")
 
     def g(layers, controls=(control("drive"),), inputs=("audio",), **kw):
@@ -364,6 +373,14 @@ def invalid_files():
     desc_case("inputs_audio_twice", g([lin("g", 2, 1)], inputs=["audio", "audio"]), "audio", "audio twice")
     desc_case("inputs_unknown", g([lin("g", 2, 1)], inputs=["audio", "gain"]), "gain", "an undeclared input")
     desc_case("layers_empty", g([]), "layers", "no layers")
+    desc_case("layer_not_object", g(["linear"]), "layer 0", "a layer given as a string", no_tensors=True)
+    desc_case("layer_type_not_string", g([dict(lin("g", 1, 1), type=1)]), "type", "type is a number")
+    bare = g([lin("g", 1, 1)])
+    bare["graph"]["inputs"] = "audio"
+    desc_case("inputs_not_array", bare, "inputs", "inputs is a string", no_tensors=True)
+    desc_case("inputs_entry_not_string", g([lin("g", 2, 1)], inputs=["audio", 1]), "inputs",
+              "an input given as a number")
+    desc_case("input_skip_not_bool", g([lin("g", 1, 1)], input_skip="yes"), "input_skip", "input_skip is a string")
     desc_case("layers_257", effect([lin("l%03d" % i, 1, 1, False) for i in range(257)]), "layers",
               "one over kMaxLayers")
     desc_case("layer_type_unknown", g([{"type": "magic", "name": "m", "in": 1}]), "magic", "unknown layer type")
