@@ -180,6 +180,9 @@ def describe_layer(path, m, width, n_controls):
     act = _activation_of(m)
     if act is not None:
         fn, extra = act
+        for k, v in extra.items():
+            if not math.isfinite(v):
+                raise ExportError(f"{_where(path, m)}: {fn} {k} {v} is not finite")
         if fn == "hardtanh" and not extra["min"] < extra["max"]:
             raise ExportError(f"{_where(path, m)}: hardtanh needs min < max")
         return dict({"type": "activation", "channels": width, "fn": fn}, **extra), [], width
@@ -305,7 +308,9 @@ def build(model, sample_rate=None, controls=None, credits=None, dtype="f32", inp
         raise ExportError("sample_rate is required (the rate the model was trained at)")
     if not isinstance(rate, (int, float)) or not math.isfinite(rate) or not 8000 <= rate <= 384000:
         raise ExportError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
-    rate = int(rate) if float(rate).is_integer() else float(rate)
+    if not float(rate).is_integer():
+        raise ExportError(f"sample_rate {rate!r} must be a whole number of Hz (the core refuses fractions)")
+    rate = int(rate)
 
     names = list(effect.layer_names)
     flat = _flatten(names, list(effect.layers), [f"layers.{i}" for i in range(len(names))])
@@ -375,6 +380,10 @@ def export(model, path, sample_rate=None, controls=None, credits=None, dtype="f3
     import os
     stem = os.path.splitext(os.path.basename(str(path)))[0] or "effect"
     desc, tensors = build(model, sample_rate, controls, credits, dtype, input_skip, inputs, stem)
-    meta = {"earshot.effect": json.dumps(desc, separators=(",", ":"))}
+    # allow_nan=False: a NaN or infinity anywhere would write JSON no reader accepts.
+    try:
+        meta = {"earshot.effect": json.dumps(desc, separators=(",", ":"), allow_nan=False)}
+    except ValueError as e:
+        raise ExportError(f"effect description holds a non-finite number: {e}") from None
     container.write(path, tensors, meta)
     return desc

@@ -189,3 +189,16 @@ def test_exporter_refuses_limit_plus_one(limit, tmp_path):
     with pytest.raises(ExportError, match=limit):
         earshot.export(model, tmp_path / "x.nfx", sample_rate=48000)
     assert not (tmp_path / "x.nfx").exists()
+
+
+@pytest.mark.parametrize("kwargs,match", [
+    ({"sample_rate": 48000.5}, "sample_rate"),   # the core: "must be a whole number of Hz"
+    ({"model": nn.Sequential(earshot.Activation(1, "leaky_relu", slope=float("inf")))}, "slope"),
+    ({"model": nn.Sequential(nn.Hardtanh(-1.0, float("inf")))}, "max"),
+])
+def test_exporter_refuses_what_the_core_refuses(kwargs, match, tmp_path):
+    """Files the exporter used to write and the core then refused (blessed messages in expected.json)."""
+    model = kwargs.pop("model", nn.Sequential(nn.Linear(1, 1)))
+    with pytest.raises(ExportError, match=match):
+        earshot.export(model, tmp_path / "x.nfx", **dict({"sample_rate": 48000}, **kwargs))
+    assert not (tmp_path / "x.nfx").exists()

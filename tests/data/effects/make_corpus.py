@@ -355,6 +355,7 @@ def invalid_files():
     desc_case("control_name_33", d(controls=[control("c" * 33)]), "name", "control name one over 32 characters")
     desc_case("control_name_bad_char", d(controls=[control("dr-ive")]), "name", "'-' in a control name")
     desc_case("control_name_utf8", d(controls=[control("dr\u00efve")]), "name", "non-ASCII control name")
+    desc_case("control_named_audio", d(controls=[control("audio")]), "audio", "a control named like the input sample")
     desc_case("control_name_twice", d(controls=[control("k"), control("k")]), "twice", "duplicate control name")
     desc_case("control_unit_17", d(controls=[control("k", unit="u" * 17)]), "unit", "unit one over 16")
     desc_case("control_min_not_below_max", d(controls=[control("k", 1, 1, 1)]), "min", "min = max")
