@@ -98,6 +98,8 @@ def read(source):
         header = json.loads(blob[8:8 + n].decode("utf-8"), object_pairs_hook=_no_duplicates)
     except _Duplicate as e:
         raise FormatError(str(e)) from None
+    except RecursionError:  # Python's parser recurses per level; the core's is iterative
+        raise FormatError("effect file header: invalid JSON: nested too deeply for this reader") from None
     except (UnicodeDecodeError, ValueError) as e:
         raise FormatError(f"effect file header: invalid JSON: {e}") from None
     if not isinstance(header, dict):

@@ -27,6 +27,8 @@ def read(source):
         desc = json.loads(meta["earshot.effect"])
     except (TypeError, ValueError) as e:
         raise FormatError(f"effect description: invalid JSON: {e}") from None
+    except RecursionError:  # Python's parser recurses per level; the core's is iterative
+        raise FormatError("effect description: invalid JSON: nested too deeply for this reader") from None
     if not isinstance(desc, dict):
         raise FormatError("__metadata__.earshot.effect is not a JSON object")
     return desc, tensors

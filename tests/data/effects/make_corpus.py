@@ -275,6 +275,12 @@ def invalid_files():
     I["description_nul_in_string"] = (container(*pack(base_desc, base_w,
                                                       meta_text=good_meta.replace('"corpus"', '"cor\0pus"'))),
                                       "effect description", "a raw NUL inside a string of the description")
+    # 50 000 levels (100 KB): deep enough to exhaust a recursive parser's stack.
+    I["description_deep_nesting"] = (container(*pack(base_desc, base_w, meta_text="[" * 50000 + "]" * 50000)),
+                                     "effect description", "an array nested 50 000 levels deep")
+    deep_header = json.dumps(pack(base_desc, base_w)[0], separators=(",", ":")).encode()
+    I["header_deep_nesting"] = (container(deep_header[:-1] + b',"x":' + b"[" * 50000 + b"]" * 50000 + b"}",
+                                          pack(base_desc, base_w)[1]), "header", "a header entry nested 50 000 levels deep")
     hb = json.dumps(pack(base_desc, base_w)[0], separators=(",", ":")).encode()
     I["header_trailing_bytes"] = (container(hb + b" x", pack(base_desc, base_w)[1]), "effect file header",
                                   "bytes after the header's JSON object")
