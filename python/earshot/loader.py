@@ -134,7 +134,13 @@ def build_layer(layer, width, n_controls):
         if not isinstance(layer.get("activation", {}), dict):
             raise FormatError(f"layer {name!r}: field 'activation' must be an object {{\"fn\": ...}}")
         try:
-            act = _activation_object(layer.get("activation", {"fn": "leaky_relu", "slope": 0.2}))
+            a = layer.get("activation", {"fn": "leaky_relu", "slope": 0.2})
+            for key in ("slope", "min", "max"):
+                v = a.get(key, 0.0)
+                if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                    raise ValueError(f"activation field {key!r} must be a finite number, got {v!r}")
+            # keys the format does not define are ignored, as the core does
+            act = _activation_object({k: v for k, v in a.items() if k in ("fn", "slope", "min", "max")})
         except ValueError as e:
             raise FormatError(f"layer {name!r}: {e}") from None
         return TCNBlock(width, out, _int(layer, "kernel", hi=MAX_KERNEL),
@@ -166,7 +172,7 @@ def _check_desc(desc):
         raise FormatError("credits.title is required")
     for k, val in credits.items():
         if k not in CREDIT_KEYS:
-            raise FormatError(f"credits: unknown field {k!r}")
+            continue  # the core ignores keys the format does not define
         items = val if k == "authors" else [val]
         if k == "authors" and not isinstance(val, list):
             raise FormatError("credits.authors must be an array of strings")
@@ -241,7 +247,7 @@ def load(source):
     try:
         effect = Effect(dict(zip(names, mods)), inputs=inputs, controls=specs,
                         input_skip=g.get("input_skip", False), sample_rate=desc["sample_rate"],
-                        credits=desc["credits"])
+                        credits={k: v for k, v in desc["credits"].items() if k in CREDIT_KEYS})
     except ValueError as e:
         raise FormatError(f"graph: {e}") from None
     wanted = {}

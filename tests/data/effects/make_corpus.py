@@ -188,6 +188,16 @@ def valid_files():
                                                        "fn": "tanh"}, lin("o", 2, 1)],
                                      controls=two, inputs=["tone", "audio", "drive"])
     V["control_order_differs"] = effect([lin("g", 3, 1)], controls=two, inputs=["audio", "tone", "drive"])
+    V["control_defaults_omitted"] = effect([lin("g", 2, 1)], controls=[{"name": "k", "min": -2, "max": 2,
+                                                                         "default": 0}], inputs=["audio", "k"])
+    V["credits_full"] = effect([lin("g", 1, 1)], credits={"title": "full", "authors": ["A", "B"],
+                                                          "paper": "https://example.org/p", "code": "c",
+                                                          "licence": "CC0-1.0"})
+    # Keys dsp/FORMAT.md does not define are ignored by the core (forward-compatible readers).
+    V["unknown_keys_ignored"] = effect([dict(lin("g", 1, 1), note="x"),
+                                        {"type": "tcn", "name": "t", "in": 1, "out": 1, "kernel": 2,
+                                         "activation": {"fn": "tanh", "note": 1}}],
+                                       credits={"title": "x", "year": "2026"}, note={"any": 1})
     V["control_not_in_inputs"] = effect([lin("g", 1, 1)], controls=[control("unused")])
     V["lstm_f16"] = effect([{"type": "lstm", "name": "r", "in": 1, "hidden": 3}, lin("o", 3, 1)])
     V["tcn_film_f16"] = effect([{"type": "tcn", "name": "t", "in": 1, "out": 2, "kernel": 3,
@@ -389,7 +399,7 @@ def invalid_files():
               "an input given as a number")
     desc_case("input_skip_not_bool", g([lin("g", 1, 1)], input_skip="yes"), "input_skip", "input_skip is a string")
     desc_case("layers_257", effect([lin("l%03d" % i, 1, 1, False) for i in range(257)]), "layers",
-              "one over kMaxLayers")
+              "one over kMaxLayers", no_tensors=True)
     desc_case("layer_type_unknown", g([{"type": "magic", "name": "m", "in": 1}]), "magic", "unknown layer type")
     desc_case("layer_name_65", g([lin("n" * 65, 1, 1)]), "name", "layer name one over 64 characters")
     desc_case("layer_name_utf8", g([lin("g\u00e9", 1, 1)]), "name", "non-ASCII layer name")
@@ -431,7 +441,7 @@ def invalid_files():
                                                          max=0.5)]), "min < max", "FiLM hardtanh min = max")
     wn = {"type": "wavenet", "name": "w", "in": 1, "channels": 1, "skip": 1, "kernel": 2, "dilations": [1]}
     desc_case("wavenet_dilations_65", g([dict(wn, kernel=1, dilations=[1] * 65)]), "dilations",
-              "one over kMaxWavenetLayers")
+              "one over kMaxWavenetLayers", no_tensors=True)
     desc_case("wavenet_dilations_empty", g([dict(wn, dilations=[])]), "dilations", "no dilations")
     desc_case("wavenet_dilation_0", g([dict(wn, dilations=[0])]), "dilation", "a dilation 0")
     desc_case("wavenet_skip_0", g([dict(wn, skip=0)]), "skip", "skip 0", no_tensors=True)
