@@ -24,6 +24,7 @@
 #include <rapidjson/prettywriter.h>
 #include <rapidjson/stringbuffer.h>
 #include <rapidjson/writer.h>
+#include <cmath>
 #include <cstring>
 
 namespace {
@@ -64,6 +65,7 @@ struct Outcome {
   std::string error;        // empty when loaded
   std::string description;  // info JSON without "variant", compact
   std::string hash;
+  std::vector<float> y;
 };
 
 Outcome run(const std::vector<unsigned char>& bytes, const std::string& variant, const std::vector<float>& x) {
@@ -87,6 +89,7 @@ Outcome run(const std::vector<unsigned char>& bytes, const std::string& variant,
   std::vector<float> y(x.size());
   REQUIRE(earshot_process(s.get(), x.data(), y.data(), int(x.size())) == int(x.size()));
   o.hash = hex64(earshot::cli::fnv1a64(y.data(), y.size()));
+  o.y = y;
   // Same bits in random blocks (the invariant every runner relies on).
   earshot_reset(s.get());
   const auto z = testfx::run(s.get(), x, testfx::random_blocks(7, 999));
@@ -157,6 +160,26 @@ TEST_CASE("corpus: every file gives its golden description, hash or message in e
           REQUIRE(want.HasMember("error"));
           CHECK(o.error == want["error"].GetString());
           CHECK(o.error.find(e["names"].GetString()) != std::string::npos);
+        }
+      }
+      // avx2fma fuses multiply-adds, so it is close to the others, not identical: the
+      // same description or message, and ESR against scalar ≤ −120 dB (the bound of
+      // `earshot verify`, docs/cli.md).
+      if (earshot::variant_supported("avx2fma")) {
+        INFO(file << " in variant avx2fma");
+        const Outcome f = run(bytes, "avx2fma", x);
+        if (std::string(kind) == "valid") {
+          REQUIRE(f.error == "");
+          CHECK(f.description == to_text(want["description"]));
+          const Outcome s = run(bytes, "scalar", x);
+          double num = 0, den = 0;
+          for (size_t i = 0; i < s.y.size(); ++i) {
+            num += (double(f.y[i]) - s.y[i]) * (double(f.y[i]) - s.y[i]);
+            den += double(s.y[i]) * s.y[i];
+          }
+          CHECK((num == 0 || 10 * std::log10(num / den) <= -120.0));
+        } else {
+          CHECK(f.error == want["error"].GetString());
         }
       }
       (std::string(kind) == "valid" ? valid : invalid) += 1;
