@@ -466,6 +466,14 @@ def invalid_files():
 PENDING = {"description_trailing_nul", "header_trailing_nul", "header_invalid_utf8", "description_invalid_utf8"}
 
 
+# Valid files written in exactly the form the Python exporter writes (every field
+# it writes, in its order, tensors in its order): re-exporting them must give the
+# same bytes (tests/python/test_corpus.py). The others omit optional fields.
+EXPORTER_FORM = {"act_hardtanh", "act_identity", "act_leaky_relu", "act_relu", "act_sigmoid", "act_softsign",
+                 "act_tanh", "credits_full", "edge_channels_1024", "edge_layers_256", "gated", "linear",
+                 "linear_nobias_skip", "rate_384000", "rate_8000"}
+
+
 def main():
     index = {"valid": [], "invalid": [], "pending": []}
     for sub in ("valid", "invalid"):
@@ -477,7 +485,8 @@ def main():
         dtype = "F16" if name.endswith("_f16") else "F32"
         with open(os.path.join(HERE, "valid", name + ".nfx"), "wb") as f:
             f.write(file_bytes(name, desc, dtype))
-        index["valid"].append({"file": f"valid/{name}.nfx"})
+        index["valid"].append(dict({"file": f"valid/{name}.nfx"},
+                                   **({"exporter_form": True} if name in EXPORTER_FORM else {})))
     for name, (data, names, why) in invalid_files().items():
         with open(os.path.join(HERE, "invalid", name + ".nfx"), "wb") as f:
             f.write(data)
