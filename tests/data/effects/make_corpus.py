@@ -356,6 +356,8 @@ def invalid_files():
     desc_case("version_missing", d(version=None), "version", "no version")
     desc_case("version_2", d(version=2), "too new", "version 2")
     desc_case("version_0", d(version=0), "version", "version 0")
+    desc_case("version_float", d(version=1.0), "version", "version 1.0 (a JSON number with a fraction part)")
+    desc_case("rate_string", d(sample_rate="48000"), "sample_rate", "sample_rate as a string")
     desc_case("rate_7999", d(sample_rate=7999), "sample_rate", "below 8000 Hz")
     desc_case("rate_384001", d(sample_rate=384001), "sample_rate", "above 384000 Hz")
     desc_case("rate_fraction", d(sample_rate=48000.5), "sample_rate", "not a whole number of Hz")
@@ -410,6 +412,8 @@ def invalid_files():
     desc_case("bias_not_bool", g([dict(lin("g", 1, 1), bias=1)]), "bias", "bias is a number")
     conv = {"type": "conv1d", "name": "c", "in": 1, "out": 1, "kernel": 2}
     desc_case("conv_kernel_65", g([dict(conv, kernel=65)]), "kernel", "one over kMaxKernel")
+    desc_case("conv_kernel_float", g([dict(conv, kernel=2.0)]), "kernel", "kernel 2.0, not an integer",
+              no_tensors=True)
     desc_case("conv_kernel_0", g([dict(conv, kernel=0)]), "kernel", "kernel 0", no_tensors=True)
     desc_case("conv_dilation_65537", g([dict(conv, dilation=65537)]), "dilation", "one over kMaxDilation")
     desc_case("conv_weight_shape", g([conv]), "c.weight", "weight [1, 1, 3] for kernel 2", n_controls=1)
