@@ -258,7 +258,7 @@ export function loadVariant(wasm, options) {
 export class Effect {
   constructor(variant, fileBytes, hostRate) {
     const bytes = asBytes(fileBytes, 'the effect file');
-    if (bytes.length === 0) throw new Error('the effect file is empty');
+    if (bytes.length === 0) throw new Error('effect file: no data'); // the core's own text (dsp/core/loader.cpp)
     const v = variant;
     this.variant = v;
     this.handle = 0;

@@ -181,6 +181,8 @@ class Builder {
       if (!v || !v->IsString() || !valid_name(v->GetString(), 32, false))
         return fail_(where + ": field 'name' must be 1 to 32 characters of A-Z a-z 0-9 _");
       s.name = v->GetString();
+      // graph.inputs says "audio" for the input sample: a control of that name could never be fed.
+      if (s.name == "audio") return fail_(where + ": field 'name' must not be \"audio\" (the input sample's name)");
       where = "control '" + s.name + "'";
       if (!seen.insert(s.name).second) return fail_(where + ": name used twice");
       if ((v = member(e, "unit"))) {

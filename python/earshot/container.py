@@ -13,10 +13,7 @@ import struct
 
 import numpy as np
 
-MAX_FILE = 256 * 1024 * 1024
-MAX_HEADER = 16 * 1024 * 1024
-MAX_DIM = 65536
-MAX_PARAMS = 16777216
+from .limits import MAX_DIM, MAX_FILE_BYTES as MAX_FILE, MAX_HEADER_BYTES as MAX_HEADER, MAX_PARAMETERS as MAX_PARAMS
 DTYPES = {"F32": np.dtype("<f4"), "F16": np.dtype("<f2")}
 
 
@@ -58,6 +55,20 @@ def write(path_or_file, tensors, metadata):
     return blob
 
 
+class _Duplicate(ValueError):
+    pass
+
+
+def _no_duplicates(pairs):
+    """A JSON object that names a key twice is refused (the core: "listed twice")."""
+    out = {}
+    for k, v in pairs:
+        if k in out:
+            raise _Duplicate(f"tensor {k!r}: listed twice")
+        out[k] = v
+    return out
+
+
 def read(source):
     """Parses a container from a path or bytes, checking the container rules.
 
@@ -69,36 +80,54 @@ def read(source):
     else:
         with open(source, "rb") as f:
             blob = f.read()
+    # Messages follow dsp/core/loader.cpp's, so both sides name the same field.
+    if not blob:
+        raise FormatError("effect file: no data")
     if len(blob) < 8:
-        raise FormatError(f"file is {len(blob)} bytes, shorter than the 8-byte header length")
+        raise FormatError(f"effect file: truncated ({len(blob)} bytes; the 8-byte header length is missing)")
     if len(blob) > MAX_FILE:
-        raise FormatError(f"file is {len(blob)} bytes, over the {MAX_FILE}-byte limit")
+        raise FormatError(f"effect file: {len(blob)} bytes exceeds the {MAX_FILE >> 20} MiB limit")
     (n,) = struct.unpack_from("<Q", blob, 0)
-    if n < 2 or n > MAX_HEADER or 8 + n > len(blob):
-        raise FormatError(f"header length {n} is outside 2 .. {MAX_HEADER} or past the end of the file")
+    if n > MAX_HEADER:
+        raise FormatError(f"effect file: header length {n} exceeds the {MAX_HEADER >> 20} MiB limit")
+    if n < 2:
+        raise FormatError(f"effect file: header length {n} is too small for a JSON object")
+    if 8 + n > len(blob):
+        raise FormatError(f"effect file: header length {n} runs past the end of the file ({len(blob)} bytes)")
     try:
-        header = json.loads(blob[8:8 + n].decode("utf-8"))
+        header = json.loads(blob[8:8 + n].decode("utf-8"), object_pairs_hook=_no_duplicates)
+    except _Duplicate as e:
+        raise FormatError(str(e)) from None
+    except RecursionError:  # Python's parser recurses per level; the core's is iterative
+        raise FormatError("effect file header: invalid JSON: nested too deeply for this reader") from None
     except (UnicodeDecodeError, ValueError) as e:
-        raise FormatError(f"header is not valid JSON: {e}") from None
+        raise FormatError(f"effect file header: invalid JSON: {e}") from None
     if not isinstance(header, dict):
-        raise FormatError("header is not a JSON object")
-    meta = header.pop("__metadata__", None)
+        raise FormatError("effect file header: must be a JSON object")
+    if "__metadata__" not in header:
+        raise FormatError("effect file header: no '__metadata__' (not an earshot effect file)")
+    meta = header.pop("__metadata__")
     if not isinstance(meta, dict):
-        raise FormatError("header has no __metadata__ object")
+        raise FormatError("effect file header: '__metadata__' must be an object")
     data = memoryview(blob)[8 + n:]
     tensors, spans, total = {}, [], 0
     for name, t in header.items():
-        if not isinstance(t, dict) or set(t) != {"dtype", "shape", "data_offsets"}:
-            raise FormatError(f"tensor {name!r}: needs exactly dtype, shape and data_offsets")
+        if not isinstance(t, dict):
+            raise FormatError(f"tensor {name!r}: header entry must be an object")
+        for k in ("dtype", "shape", "data_offsets"):
+            if k not in t:
+                raise FormatError(f"tensor {name!r}: field {k!r} is missing")
         code = t["dtype"]
         if code not in DTYPES:
             raise FormatError(f"tensor {name!r}: dtype {code!r} is not F32 or F16")
         shape = t["shape"]
         if (not isinstance(shape, list) or not 1 <= len(shape) <= 4
-                or not all(isinstance(d, int) and 1 <= d <= MAX_DIM for d in shape)):
+                or not all(isinstance(d, int) and not isinstance(d, bool) and 1 <= d <= MAX_DIM for d in shape)):
             raise FormatError(f"tensor {name!r}: shape {shape} needs 1 to 4 dimensions of 1 .. {MAX_DIM}")
+        if math.prod(shape) > MAX_PARAMS:
+            raise FormatError(f"tensor {name!r}: more than {MAX_PARAMS} values")
         offs = t["data_offsets"]
-        if (not isinstance(offs, list) or len(offs) != 2 or not all(isinstance(o, int) for o in offs)
+        if (not isinstance(offs, list) or len(offs) != 2 or not all(isinstance(o, int) and not isinstance(o, bool) for o in offs)
                 or not 0 <= offs[0] <= offs[1] <= len(data)):
             raise FormatError(f"tensor {name!r}: data_offsets {offs} outside the {len(data)}-byte data section")
         count = math.prod(shape)
@@ -114,7 +143,7 @@ def read(source):
     spans.sort()
     for (b0, e0, n0), (b1, e1, n1) in zip(spans, spans[1:]):
         if b1 < e0:
-            raise FormatError(f"tensors {n0!r} and {n1!r} overlap")
+            raise FormatError(f"tensor {n1!r}: data overlaps tensor {n0!r}")
     if total > MAX_PARAMS:
         raise FormatError(f"{total} parameters, over the limit of {MAX_PARAMS}")
     return meta, tensors

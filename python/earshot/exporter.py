@@ -24,6 +24,8 @@ import torch
 import torch.nn as nn
 
 from . import container
+from .limits import (MAX_CHANNELS, MAX_CONTROLS, MAX_DILATION, MAX_FILM_HIDDEN, MAX_KERNEL, MAX_LAYERS,
+                     MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS)
 from .modules import (ACTIVATIONS, GRU, LSTM, Activation, CausalConv1d, Effect, FiLM, Gated, Linear,
                       TCNBlock, WaveNet, control_spec)
 
@@ -83,26 +85,47 @@ def _conv_checks(path, m, allow_padding=False):
                           "(the Effect pads (kernel-1)*dilation zeros on the left) or earshot.CausalConv1d")
 
 
+def _check_channels(path, m, what, n):
+    if not 1 <= n <= MAX_CHANNELS:
+        raise ExportError(f"{_where(path, m)}: {what} {n} is outside 1 .. {MAX_CHANNELS} (kMaxChannels)")
+
+
+def _check_kernel(path, m, kernel, dilations):
+    if not 1 <= kernel <= MAX_KERNEL:
+        raise ExportError(f"{_where(path, m)}: kernel {kernel} is outside 1 .. {MAX_KERNEL} (kMaxKernel)")
+    for d in dilations:
+        if not 1 <= d <= MAX_DILATION:
+            raise ExportError(f"{_where(path, m)}: dilation {d} is outside 1 .. {MAX_DILATION} (kMaxDilation)")
+
+
 def _film_fields(path, film, n_controls):
     if n_controls < 1:
         raise ExportError(f"{_where(path, film)}: FiLM needs at least one control, the effect declares none")
     if film.n_controls != n_controls:
         raise ExportError(f"{_where(path, film)}: FiLM takes {film.n_controls} controls, "
                           f"the effect declares {n_controls}")
-    if len(film.hidden) > 4:
-        raise ExportError(f"{_where(path, film)}: FiLM MLP has {len(film.hidden)} hidden layers, at most 4")
+    if len(film.hidden) > MAX_FILM_HIDDEN:
+        raise ExportError(f"{_where(path, film)}: FiLM MLP has {len(film.hidden)} hidden layers, "
+                          f"at most {MAX_FILM_HIDDEN} (kMaxFilmHidden)")
+    for h in film.hidden:
+        _check_channels(path, film, "FiLM hidden width", h)
+    _check_channels(path, film, "channels", film.channels)
     if film.activation not in ACTIVATIONS:
         raise ExportError(f"{_where(path, film)}: FiLM activation {film.activation!r} is not supported")
-    if film.activation == "leaky_relu" and film.slope != 0.01:
-        raise ExportError(f"{_where(path, film)}: FiLM leaky_relu slope {film.slope} cannot be stored "
-                          "(the file's FiLM activation is a bare name, slope 0.01)")
+    fields = {"hidden": list(film.hidden), "activation": film.activation}
+    if film.activation == "leaky_relu":
+        fields["slope"] = film.slope
+    if film.activation == "hardtanh":
+        if not film.min < film.max:
+            raise ExportError(f"{_where(path, film)}: FiLM hardtanh needs min < max")
+        fields.update(min=film.min, max=film.max)
     for j, lin in enumerate(film.mlp):
         if lin.bias is None:
             raise ExportError(f"{_where(path + f'.mlp.{j}', lin)}: FiLM linear layers need a bias")
     tensors = []
     for j, lin in enumerate(film.mlp):
         tensors += [(f"mlp.{j}.weight", lin.weight), (f"mlp.{j}.bias", lin.bias)]
-    return {"hidden": list(film.hidden), "activation": film.activation}, tensors
+    return fields, tensors
 
 
 def _rnn(path, m, kind, width):
@@ -110,9 +133,11 @@ def _rnn(path, m, kind, width):
         raise ExportError(f"{_where(path, m)}: a bidirectional {kind.upper()} is not causal and cannot be exported")
     if getattr(m, "proj_size", 0):
         raise ExportError(f"{_where(path, m)}: proj_size={m.proj_size} is not supported")
-    if not 1 <= m.num_layers <= 8:
-        raise ExportError(f"{_where(path, m)}: num_layers={m.num_layers} is outside 1 .. 8")
+    if not 1 <= m.num_layers <= MAX_RECURRENT_LAYERS:
+        raise ExportError(f"{_where(path, m)}: num_layers={m.num_layers} is outside 1 .. {MAX_RECURRENT_LAYERS} "
+                          "(kMaxRecurrentLayers)")
     _check_width(path, m, m.input_size, width)
+    _check_channels(path, m, "hidden", m.hidden_size)
     tensors = []
     for l in range(m.num_layers):
         tensors += [(f"weight_ih_l{l}", getattr(m, f"weight_ih_l{l}")),
@@ -138,6 +163,7 @@ def describe_layer(path, m, width, n_controls):
         if type(m) not in (nn.Linear, Linear):
             raise ExportError(f"{_where(path, m)}: a subclass of nn.Linear may compute something else")
         _check_width(path, m, m.in_features, width)
+        _check_channels(path, m, "out", m.out_features)
         tensors = [("weight", m.weight)] + ([("bias", m.bias)] if m.bias is not None else [])
         return ({"type": "linear", "in": m.in_features, "out": m.out_features, "bias": m.bias is not None},
                 tensors, m.out_features)
@@ -146,12 +172,17 @@ def describe_layer(path, m, width, n_controls):
             raise ExportError(f"{_where(path, m)}: a subclass of nn.Conv1d may compute something else")
         _conv_checks(path, m)
         _check_width(path, m, m.in_channels, width)
+        _check_channels(path, m, "out", m.out_channels)
+        _check_kernel(path, m, m.kernel_size[0], [m.dilation[0]])
         tensors = [("weight", m.weight)] + ([("bias", m.bias)] if m.bias is not None else [])
         return ({"type": "conv1d", "in": m.in_channels, "out": m.out_channels, "kernel": m.kernel_size[0],
                  "dilation": m.dilation[0], "bias": m.bias is not None}, tensors, m.out_channels)
     act = _activation_of(m)
     if act is not None:
         fn, extra = act
+        for k, v in extra.items():
+            if not math.isfinite(v):
+                raise ExportError(f"{_where(path, m)}: {fn} {k} {v} is not finite")
         if fn == "hardtanh" and not extra["min"] < extra["max"]:
             raise ExportError(f"{_where(path, m)}: hardtanh needs min < max")
         return dict({"type": "activation", "channels": width, "fn": fn}, **extra), [], width
@@ -164,8 +195,12 @@ def describe_layer(path, m, width, n_controls):
         return dict({"type": "film", "channels": m.channels}, **fields), tensors, width
     if isinstance(m, WaveNet):
         _check_width(path, m, m.in_channels, width)
-        if not 1 <= len(m.dilations) <= 64:
-            raise ExportError(f"{_where(path, m)}: {len(m.dilations)} dilations, needs 1 .. 64")
+        if not 1 <= len(m.dilations) <= MAX_WAVENET_LAYERS:
+            raise ExportError(f"{_where(path, m)}: {len(m.dilations)} dilations, needs 1 .. {MAX_WAVENET_LAYERS} "
+                              "(kMaxWavenetLayers)")
+        _check_channels(path, m, "channels", m.channels)
+        _check_channels(path, m, "skip", m.skip_channels)
+        _check_kernel(path, m, m.kernel, m.dilations)
         b = m.bias
         t = [("input.weight", m.input.weight)] + ([("input.bias", m.input.bias)] if b else [])
         for l, layer in enumerate(m.layers):
@@ -179,6 +214,8 @@ def describe_layer(path, m, width, n_controls):
     if isinstance(m, TCNBlock):
         _check_width(path, m, m.in_channels, width)
         conv = m.conv
+        _check_channels(path, m, "out", m.out_channels)
+        _check_kernel(path, m, conv.kernel_size[0], [conv.dilation[0]])
         t = [("conv.weight", conv.weight)] + ([("conv.bias", conv.bias)] if conv.bias is not None else [])
         layer = {"type": "tcn", "in": m.in_channels, "out": m.out_channels, "kernel": conv.kernel_size[0],
                  "dilation": conv.dilation[0], "bias": conv.bias is not None, "activation": dict(m.act),
@@ -264,19 +301,22 @@ def build(model, sample_rate=None, controls=None, credits=None, dtype="f32", inp
         if [c["name"] for c in specs] != effect.control_names:
             raise ExportError(f"controls {[c['name'] for c in specs]} do not match the Effect's "
                               f"controls {effect.control_names} (same names, same order)")
-    if len(specs) > 16:
-        raise ExportError(f"{len(specs)} controls, at most 16")
+    if len(specs) > MAX_CONTROLS:
+        raise ExportError(f"{len(specs)} controls, at most {MAX_CONTROLS} (kMaxControls)")
     rate = sample_rate if sample_rate is not None else effect.sample_rate
     if rate is None:
         raise ExportError("sample_rate is required (the rate the model was trained at)")
     if not isinstance(rate, (int, float)) or not math.isfinite(rate) or not 8000 <= rate <= 384000:
         raise ExportError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
-    rate = int(rate) if float(rate).is_integer() else float(rate)
+    if not float(rate).is_integer():
+        raise ExportError(f"sample_rate {rate!r} must be a whole number of Hz (the core refuses fractions)")
+    rate = int(rate)
 
     names = list(effect.layer_names)
     flat = _flatten(names, list(effect.layers), [f"layers.{i}" for i in range(len(names))])
-    if not 1 <= len(flat) <= 256:
-        raise ExportError(f"{len(flat)} layers, needs 1 .. 256")
+    if not 1 <= len(flat) <= MAX_LAYERS:
+        raise ExportError(f"{len(flat)} layers, needs 1 .. {MAX_LAYERS} (kMaxLayers)")
+    receptive = 1
     width, layers, tensors, seen = len(effect.inputs), [], [], set()
     for name, m, path in flat:
         if not LAYER_NAME.match(name):
@@ -285,6 +325,14 @@ def build(model, sample_rate=None, controls=None, credits=None, dtype="f32", inp
             raise ExportError(f"{path}: layer name {name!r} is used twice")
         seen.add(name)
         layer, ts, width = describe_layer(path, m, width, len(specs))
+        kind = layer["type"]
+        if kind in ("conv1d", "tcn"):
+            receptive += (layer["kernel"] - 1) * layer["dilation"]
+        elif kind == "wavenet":
+            receptive += sum((layer["kernel"] - 1) * d for d in layer["dilations"])
+        if receptive > MAX_RECEPTIVE_FIELD:
+            raise ExportError(f"{path}: receptive field {receptive} samples exceeds {MAX_RECEPTIVE_FIELD} "
+                              "(kMaxReceptiveField)")
         layers.append(dict({"type": layer.pop("type"), "name": name}, **layer))
         for pname, t in ts:
             a = _arr(t)
@@ -332,6 +380,10 @@ def export(model, path, sample_rate=None, controls=None, credits=None, dtype="f3
     import os
     stem = os.path.splitext(os.path.basename(str(path)))[0] or "effect"
     desc, tensors = build(model, sample_rate, controls, credits, dtype, input_skip, inputs, stem)
-    meta = {"earshot.effect": json.dumps(desc, separators=(",", ":"))}
+    # allow_nan=False: a NaN or infinity anywhere would write JSON no reader accepts.
+    try:
+        meta = {"earshot.effect": json.dumps(desc, separators=(",", ":"), allow_nan=False)}
+    except ValueError as e:
+        raise ExportError(f"effect description holds a non-finite number: {e}") from None
     container.write(path, tensors, meta)
     return desc

@@ -16,11 +16,13 @@ import torch
 import torch.nn as nn
 import torch.nn.functional as F
 
-ACTIVATIONS = ("tanh", "sigmoid", "relu", "leaky_relu", "softsign", "hardtanh")
+ACTIVATIONS = ("identity", "tanh", "sigmoid", "relu", "leaky_relu", "softsign", "hardtanh")
 
 
 def apply_activation(x, fn, slope=0.01, lo=-1.0, hi=1.0):
     """Element-wise activation by its effect-file name."""
+    if fn == "identity":
+        return x
     if fn == "tanh":
         return torch.tanh(x)
     if fn == "sigmoid":
@@ -131,7 +133,7 @@ class FiLM(nn.Module):
     forward(x [B, T, C], controls [B, T, n_controls]).
     """
 
-    def __init__(self, channels, n_controls, hidden=(), activation="relu", slope=0.01):
+    def __init__(self, channels, n_controls, hidden=(), activation="relu", slope=0.01, min=-1.0, max=1.0):
         super().__init__()
         if n_controls < 1:
             raise ValueError("film needs at least one control")
@@ -139,6 +141,9 @@ class FiLM(nn.Module):
             raise ValueError(f"unsupported FiLM activation {activation!r}")
         self.channels, self.n_controls = channels, n_controls
         self.hidden, self.activation, self.slope = list(hidden), activation, float(slope)
+        self.min, self.max = float(min), float(max)
+        if activation == "hardtanh" and not self.min < self.max:
+            raise ValueError(f"FiLM hardtanh needs min < max, got {self.min}, {self.max}")
         widths = [n_controls] + self.hidden + [2 * channels]
         self.mlp = nn.ModuleList(nn.Linear(a, b) for a, b in zip(widths[:-1], widths[1:]))
 
@@ -147,7 +152,7 @@ class FiLM(nn.Module):
         for j, lin in enumerate(self.mlp):
             h = lin(h)
             if j < len(self.mlp) - 1:
-                h = apply_activation(h, self.activation, self.slope)
+                h = apply_activation(h, self.activation, self.slope, self.min, self.max)
         return h[..., :self.channels], h[..., self.channels:]
 
     def forward(self, x, controls):
@@ -230,7 +235,12 @@ class TCNBlock(nn.Module):
         self.film_spec = None
         if film is not None:
             self.film_spec = {"hidden": list(film.get("hidden", [])), "activation": film.get("activation", "relu")}
-            self.film = FiLM(out_channels, n_controls, self.film_spec["hidden"], self.film_spec["activation"])
+            for k in ("slope", "min", "max"):
+                if k in film:
+                    self.film_spec[k] = float(film[k])
+            self.film = FiLM(out_channels, n_controls, self.film_spec["hidden"], self.film_spec["activation"],
+                             self.film_spec.get("slope", 0.01), self.film_spec.get("min", -1.0),
+                             self.film_spec.get("max", 1.0))
         self.residual = residual
         if residual and in_channels != out_channels:
             self.res = CausalConv1d(in_channels, out_channels, 1, 1, bias=False)
