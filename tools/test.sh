@@ -36,6 +36,8 @@ pytest_run() {
   return $rc
 }
 step "python tests" pytest_run
+# Each libFuzzer harness for 60 s under ASan+UBSan (docs/fuzzing.md); 4-5 min with its build.
+step "fuzz" bash tools/fuzz.sh all 60
 
 if [ ${#failed[@]} -gt 0 ]; then
   echo "FAILED: ${failed[*]}"

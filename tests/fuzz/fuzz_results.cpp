@@ -1,0 +1,21 @@
+// libFuzzer harness: the listening-test results reader (`earshot tally`,
+// dsp/cli/tally.cpp load). A bad file must end in InputError; any other
+// exception, a crash or a sanitizer report is a finding.
+//
+// load() lives in tally.cpp's unnamed namespace, so the file is included here
+// rather than changed (the shared JSON reader is being rebuilt on another
+// branch; its bytes-level entry point replaces this include when it lands).
+#include "../../dsp/cli/tally.cpp"
+
+#include "scratch_file.hpp"
+
+extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
+  const std::string path = earshot_fuzz::scratch_file("results.json", data, size);
+  try {
+    const earshot::cli::Result r = earshot::cli::load(path);
+    // Two copies of one file must agree with each other.
+    earshot::cli::check_consistent({r, r});
+  } catch (const earshot::cli::InputError&) {
+  }
+  return 0;
+}
