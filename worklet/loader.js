@@ -156,8 +156,18 @@ function hostImports() {
 // effects living in that memory.
 export class Variant {
   constructor(wasm, options = {}) {
-    const module = wasm instanceof WebAssembly.Module ? wasm : new WebAssembly.Module(asBytes(wasm, 'the WebAssembly build'));
-    const instance = new WebAssembly.Instance(module, hostImports());
+    this.module = wasm instanceof WebAssembly.Module ? wasm : new WebAssembly.Module(asBytes(wasm, 'the WebAssembly build'));
+    // The build's name ("simd" or "scalar") when the caller knows it; the core
+    // then refuses to run under another name. Otherwise learnt from the first effect.
+    this.name = options.name || '';
+    // A trap ends an instance: its effects are lost, and the next effect
+    // created renews the instance from the same module (generation + 1).
+    this.generation = 0;
+    this.instantiate();
+  }
+
+  instantiate() {
+    const instance = new WebAssembly.Instance(this.module, hostImports());
     const e = instance.exports;
     const missing = [...ABI_FUNCTIONS, 'malloc', 'free'].filter((f) => typeof e[f] !== 'function');
     if (!(e.memory instanceof WebAssembly.Memory)) missing.push('memory');
@@ -166,15 +176,20 @@ export class Variant {
     this.exports = e;
     this.memory = e.memory;
     this._process = e.earshot_process;
-    // The build's name ("simd" or "scalar") when the caller knows it; the core
-    // then refuses to run under another name. Otherwise learnt from the first effect.
-    this.name = options.name || '';
-    this.broken = null; // the Error of a trap, after which the instance is not used again
+    this.broken = null; // the Error of a trap, after which this instance is not used again
     this._buffer = null;
     this.u8 = null;
     this.f32 = null;
     this.refresh();
     this._name = this.malloc(NAME_CAP);
+  }
+
+  // After a trap: a fresh instance of the same module, so the page keeps
+  // working. Effects of the trapped instance stay lost (they throw).
+  renew() {
+    if (!this.broken) return;
+    this.generation += 1;
+    this.instantiate();
   }
 
   // Re-derives the views after memory growth; cheap when nothing changed.
@@ -225,7 +240,7 @@ export class Variant {
 
   trapped(fn, err) {
     if (err instanceof WebAssembly.RuntimeError || err instanceof RangeError) {
-      this.broken = new Error(`earshot core trapped in ${fn} (${err.message}); this WebAssembly instance cannot be used again, load the build anew`);
+      this.broken = new Error(`earshot core trapped in ${fn} (${err.message}); the effects of this WebAssembly instance are lost, and the next effect loaded gets a fresh instance`);
       throw this.broken;
     }
     throw err;
@@ -260,7 +275,9 @@ export class Effect {
     const bytes = asBytes(fileBytes, 'the effect file');
     if (bytes.length === 0) throw new Error('effect file: no data'); // the core's own text (dsp/core/loader.cpp)
     const v = variant;
+    if (v.broken) v.renew();
     this.variant = v;
+    this.generation = v.generation;
     this.handle = 0;
     const file = v.malloc(bytes.length);
     const err = v.malloc(ERROR_CAP);
@@ -310,6 +327,8 @@ export class Effect {
   }
 
   live() {
+    if (this.generation !== this.variant.generation || this.variant.broken)
+      throw this.variant.broken || new Error('this effect was lost when its WebAssembly instance trapped; load it again');
     if (!this.handle) throw new Error('this effect has been destroyed');
   }
 
@@ -394,7 +413,7 @@ export class Effect {
   destroy() {
     if (!this.handle && !this.scratch) return;
     const v = this.variant;
-    if (!v.broken) {
+    if (!v.broken && this.generation === v.generation) {
       if (this.handle) v.call('earshot_destroy', this.handle);
       v.free(this.scratch);
     }

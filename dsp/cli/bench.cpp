@@ -38,6 +38,7 @@ const char* kHelp =
     "  --variant V   only this variant: scalar, sse4, avx2, avx2fma\n"
     "  --rounds R    rounds, 1 .. 100 (default 3)\n"
     "  --json        print the figures as JSON\n"
+    MAX_STREAM_HELP
     "  -h, --help    this text\n";
 
 double median(std::vector<double> v) {
@@ -66,12 +67,13 @@ std::string json_escape(const std::string& s) {
 }  // namespace
 
 int cmd_bench(const std::vector<std::string>& argv) {
-  const Args a = parse_args(argv, {{"--help", false},
+  const Args a = parse_args(argv, {{"--help", false}, MAX_STREAM_OPTION,
                                    {"--seconds", true},
                                    {"--block", true},
                                    {"--variant", true},
                                    {"--rounds", true},
                                    {"--json", false}});
+  apply_stream_limit(a);
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
     return kExitOk;

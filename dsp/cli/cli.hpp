@@ -87,6 +87,16 @@ void check_variant(const std::string& variant);
 // The native variants this CPU can run, in preference order (scalar first).
 std::vector<std::string> supported_variants();
 
+// The memory limit every Stream of this run is created under (bytes; the
+// core's default unless --max-stream-mib raised it). MAX_STREAM_OPTION goes
+// into a command's option list; apply_stream_limit reads it.
+#define MAX_STREAM_OPTION {"--max-stream-mib", true}
+void apply_stream_limit(const Args& a);
+size_t stream_limit_bytes();
+#define MAX_STREAM_HELP                                                           \
+  "  --max-stream-mib N    memory one stream may use, in MiB (default 64; a file\n" \
+  "                        needing more is refused, naming the layer)\n"
+
 // Owns one earshot_stream.
 class Stream {
  public:

@@ -171,10 +171,21 @@ void check_variant(const std::string& variant) {
 
 // ---- stream ----------------------------------------------------------------
 
+namespace {
+size_t stream_limit = EARSHOT_STREAM_BYTES_DEFAULT;
+}
+
+size_t stream_limit_bytes() { return stream_limit; }
+
+void apply_stream_limit(const Args& a) {
+  if (const std::string* v = a.last("--max-stream-mib"))
+    stream_limit = size_t(parse_integer("--max-stream-mib", *v, 1, 65536)) << 20;
+}
+
 Stream::Stream(const std::vector<unsigned char>& bytes, double host_rate, const std::string& variant,
                const std::string& path) {
   char err[1024] = {0};
-  s_ = earshot_create(bytes.data(), bytes.size(), host_rate, variant.c_str(), err, sizeof err);
+  s_ = earshot_create_bounded(bytes.data(), bytes.size(), host_rate, variant.c_str(), stream_limit, err, sizeof err);
   if (!s_) throw InputError(path + ": " + err);
 }
 

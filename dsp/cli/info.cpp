@@ -16,11 +16,11 @@ namespace cli {
 namespace {
 
 const char* kHelp =
-    "usage: earshot info FILE [--json] [--rate HZ] [--variant V]\n"
+    "usage: earshot info FILE [--json] [--rate HZ] [--variant V] [--max-stream-mib N]\n"
     "\n"
     "Describes an effect file: credits, file size, model sample rate, the layer list\n"
     "with channel shapes, parameter count, multiply-adds per sample, receptive field\n"
-    "(or 'recurrent' for LSTM/GRU graphs), latency, and the controls (name, unit,\n"
+    "(or 'recurrent' for LSTM/GRU graphs), latency, stream memory, and the controls (name, unit,\n"
     "range, default, smoothing time).\n"
     "\n"
     "options:\n"
@@ -30,6 +30,7 @@ const char* kHelp =
     "                also shows 44100 and 48000 Hz)\n"
     "  --variant V   CPU variant for the stream: scalar, sse4, avx2, avx2fma\n"
     "                (default: the best bit-exact one this CPU runs)\n"
+    MAX_STREAM_HELP
     "  -h, --help    this text\n";
 
 const rapidjson::Value* member(const rapidjson::Value& v, const char* key) {
@@ -112,7 +113,8 @@ std::string file_size_text(const std::string& path) {
 }  // namespace
 
 int cmd_info(const std::vector<std::string>& argv) {
-  const Args a = parse_args(argv, {{"--help", false}, {"--json", false}, {"--rate", true}, {"--variant", true}});
+  const Args a = parse_args(argv, {{"--help", false}, MAX_STREAM_OPTION, {"--json", false}, {"--rate", true}, {"--variant", true}});
+  apply_stream_limit(a);
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
     return kExitOk;
@@ -206,6 +208,8 @@ int cmd_info(const std::vector<std::string>& argv) {
     if (r == model_rate) lat += " (model rate: no resampling)";
   }
   row("latency", lat);
+  row("stream memory", format_fixed(json_number(info, "stream_bytes") / 1048576.0, 2) + " MiB at " + num(host) +
+                           " Hz (limit " + format_fixed(double(stream_limit_bytes()) / 1048576.0, 0) + " MiB)");
   std::string vars;
   for (const std::string& v : supported_variants()) vars += (vars.empty() ? "" : ", ") + v;
   row("variant", json_string(info, "variant") + " (this CPU runs " + vars + ")");

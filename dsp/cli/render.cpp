@@ -55,6 +55,7 @@ const char* kHelp =
     "                        when stderr is a terminal and IN is over 10 s)\n"
     "  --no-progress         never show it\n"
     "  --quiet               no summary line\n"
+    MAX_STREAM_HELP
     "  -h, --help            this text\n";
 
 struct SndCloser {
@@ -130,7 +131,7 @@ class Progress {
 }  // namespace
 
 int cmd_render(const std::vector<std::string>& argv) {
-  const Args a = parse_args(argv, {{"--help", false},
+  const Args a = parse_args(argv, {{"--help", false}, MAX_STREAM_OPTION,
                                    {"--control", true},
                                    {"--block", true},
                                    {"--variant", true},
@@ -142,6 +143,7 @@ int cmd_render(const std::vector<std::string>& argv) {
                                    {"--progress", false},
                                    {"--no-progress", false},
                                    {"--quiet", false}});
+  apply_stream_limit(a);
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
     return kExitOk;

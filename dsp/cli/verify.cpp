@@ -53,6 +53,7 @@ const char* kHelp =
     "                       default: the model rate, no resampling)\n"
     "  --json               print the results as JSON\n"
     "  --write-signal PATH  also write the test signal as a float32 WAV\n"
+    MAX_STREAM_HELP
     "  -h, --help           this text\n";
 
 constexpr double kFmaBoundDb = -120;  // design invariant 2
@@ -132,11 +133,12 @@ void write_signal(const std::string& path, const std::vector<float>& x, double r
 }  // namespace
 
 int cmd_verify(const std::vector<std::string>& argv) {
-  const Args a = parse_args(argv, {{"--help", false},
+  const Args a = parse_args(argv, {{"--help", false}, MAX_STREAM_OPTION,
                                    {"--seconds", true},
                                    {"--rate", true},
                                    {"--json", false},
                                    {"--write-signal", true}});
+  apply_stream_limit(a);
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
     return kExitOk;

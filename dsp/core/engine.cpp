@@ -13,6 +13,7 @@
 //   out = (dry · (1 − w) + wet · w) · g_out
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 #include <cstring>
 #include <new>
 #include <string>
@@ -183,6 +184,7 @@ struct earshot_stream {
 
   std::vector<float> x, dry, model_in, model_out, wet;
   unsigned nonfinite = 0;
+  size_t bytes = 0;  // the bound of stream_bytes(), checked against the limit at create
   std::string info;
 
   void reset_state() {
@@ -247,6 +249,141 @@ struct earshot_stream {
 
 namespace {
 
+
+// ---- stream memory, bounded before anything large is allocated -------------
+// Every buffer a stream's constructors allocate (dsp/FORMAT.md, "Stream
+// memory"), in bytes: an upper bound that tests/native/stream_memory_test.cpp
+// holds against the bytes actually allocated. The weights of the file are
+// counted too (a stream cannot run without them), once.
+constexpr double kF = sizeof(float);
+constexpr double kPtr = 8;  // a pointer's bytes, at most: one figure natively and in wasm32
+constexpr double kObjectSlack = 1024;  // per layer: objects, vector headers, allocator rounding
+
+double history_bytes(int channels, int kernel, int dilation) {
+  if (kernel <= 1) return 0;
+  const double h = double(kernel - 1) * dilation;
+  return kF * channels * (h + std::max(8.0 * kChunk, h));
+}
+
+double film_bytes(const MlpSpec& f, int C) {
+  int wmax = 0;
+  for (int w : f.widths) wmax = std::max(wmax, w);
+  const double nctl = f.widths.empty() ? 0 : f.widths.front();
+  return kF * (2 * nctl + 2.0 * wmax + 2.0 * C + 2.0 * C * kChunk);
+}
+
+double layer_params(const LayerSpec& L) {
+  double p = 0;
+  for (auto& kv : L.params) p += double(kv.second.size());
+  return p;
+}
+
+// Per-stream bytes of one layer (its state, histories, scratch and the copies
+// of its weights it makes, e.g. transposed recurrent matrices).
+double layer_stream_bytes(const LayerSpec& L) {
+  double b = kObjectSlack;
+  switch (L.type) {
+    case LayerType::linear: b += kPtr * L.in; break;
+    case LayerType::conv1d: b += history_bytes(L.in, L.kernel, L.dilation) + kPtr * L.in; break;
+    case LayerType::lstm:
+      b += kF * (layer_params(L) + 4.0 * L.hidden * L.num_layers + 2.0 * L.hidden * L.num_layers + 4.0 * L.hidden +
+                 std::max(L.in, L.hidden));
+      break;
+    case LayerType::gru:
+      b += kF * (layer_params(L) + 6.0 * L.hidden * L.num_layers + L.hidden * double(L.num_layers) + 6.0 * L.hidden +
+                 std::max(L.in, L.hidden));
+      break;
+    case LayerType::activation:
+    case LayerType::gated: break;
+    case LayerType::film: b += film_bytes(L.film, L.in); break;
+    case LayerType::wavenet: {
+      const int C = L.channels;
+      b += kPtr * L.in + kF * (4.0 * C + std::max(C, L.skip)) * kChunk;
+      for (int d : L.dilations) b += history_bytes(C, L.kernel, d) + 3 * kPtr * C + 3 * 256.0;
+      break;
+    }
+    case LayerType::tcn:
+      b += history_bytes(L.in, L.kernel, L.dilation) + 2 * kPtr * L.in + kF * L.out * double(kChunk);
+      if (L.has_film) b += film_bytes(L.film, L.out);
+      break;
+  }
+  return b;
+}
+
+// Bytes one round trip keeps; `design` is raised to the largest filter-design
+// temporary (the designs run one after the other, so only the largest counts).
+double round_trip_bytes(int host, int model, double& design) {
+  double up = 0, down = 0, d_up = 0, d_down = 0;
+  Resampler::bytes_needed(host, model, up, d_up);
+  Resampler::bytes_needed(model, host, down, d_down);
+  design = std::max(design, std::max(d_up, d_down));
+  const double max_mid = std::ceil(double(kSub) * model / host) + 1;
+  const double max_back = std::ceil(max_mid * host / model) + 1;
+  const double prefill = 2 + (host + model - 1) / model;
+  return up + down + kF * (prefill + max_back + 2.0 * kSub + max_mid + std::max(max_back, double(kSub)));
+}
+
+struct StreamBytes {
+  double total = 0;
+  double weights = 0, resampler = 0;
+  int worst = -1;  // layer with the largest share
+  double worst_bytes = 0;
+};
+
+StreamBytes stream_bytes(const Model& m, int host_rate) {
+  StreamBytes r;
+  r.weights = kF * double(m.parameters);
+  double layers = 0;
+  for (size_t i = 0; i < m.layers.size(); ++i) {
+    const double b = layer_stream_bytes(m.layers[i]);
+    layers += b;
+    if (b > r.worst_bytes) {
+      r.worst_bytes = b;
+      r.worst = int(i);
+    }
+  }
+  const int model_rate = int(m.sample_rate);
+  double max_model = kSub;
+  if (host_rate != model_rate) {
+    double design = 0;
+    r.resampler = 2 * round_trip_bytes(host_rate, model_rate, design);
+    r.resampler += design;
+    max_model = std::ceil(double(kSub) * model_rate / host_rate) + 1;
+  }
+  const double rows = std::max<double>(m.max_channels, double(m.input_map.size()));
+  const double stream = kF * (3.0 * kSub + 2 * max_model + std::max<double>(1, m.controls.size()) * kChunk +
+                              2 * rows * kChunk) +
+                        64.0 * m.controls.size() + 8192 + 2.0 * m.description.size();
+  r.total = r.weights + layers + r.resampler + stream;
+  return r;
+}
+
+std::string mib_text(double bytes) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%.1f MiB", bytes / 1048576.0);
+  return buf;
+}
+
+// "" when the stream fits under `cap` bytes, else the refusal naming the
+// largest share (a layer, the resampler or the weights) and the figures.
+std::string stream_bytes_refusal(const Model& m, int host_rate, size_t cap, const StreamBytes& b) {
+  if (b.total <= double(cap)) return "";
+  static const char* names[] = {"linear", "conv1d", "lstm", "gru", "activation", "gated", "film", "wavenet", "tcn"};
+  std::string share;
+  if (b.worst >= 0 && b.worst_bytes >= b.resampler && b.worst_bytes >= b.weights) {
+    const LayerSpec& L = m.layers[size_t(b.worst)];
+    share = "layers[" + std::to_string(b.worst) + "] ('" + L.name + "', " + names[int(L.type)] +
+            ") needs " + mib_text(b.worst_bytes) + " of state, history and scratch";
+  } else if (b.resampler >= b.weights) {
+    share = "resampling " + std::to_string(host_rate) + " Hz to " + std::to_string(int(m.sample_rate)) +
+            " Hz and back needs " + mib_text(b.resampler);
+  } else {
+    share = "the weights need " + mib_text(b.weights);
+  }
+  return "a stream of this effect at " + std::to_string(host_rate) + " Hz needs " + mib_text(b.total) + " (" + share +
+         "); the limit is " + mib_text(double(cap)) + " per stream";
+}
+
 void write_error(char* error, size_t cap, const std::string& msg) {
   if (!error || cap == 0) return;
   const size_t n = std::min(cap - 1, msg.size());
@@ -271,6 +408,8 @@ std::string make_info(const earshot_stream& s) {
   w.Int(s.host_rate);
   w.Key("latency");
   w.Int(s.latency);
+  w.Key("stream_bytes");
+  w.Uint64(s.bytes);
   w.Key("parameters");
   w.Int64(m.parameters);
   w.Key("macs_per_sample");
@@ -334,8 +473,8 @@ std::string make_info(const earshot_stream& s) {
   return sb.GetString();
 }
 
-earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate, const char* variant, char* error,
-                       size_t error_cap) {
+earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                       size_t max_stream_bytes, char* error, size_t error_cap) {
   std::string err;
   if (!(host_rate >= 8000 && host_rate <= 384000) || host_rate != std::floor(host_rate)) {
     write_error(error, error_cap, "host sample rate must be a whole number of Hz from 8000 to 384000");
@@ -346,8 +485,15 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
     write_error(error, error_cap, err);
     return nullptr;
   }
+  const StreamBytes need = stream_bytes(*model, int(host_rate));
+  const std::string refusal = stream_bytes_refusal(*model, int(host_rate), max_stream_bytes, need);
+  if (!refusal.empty()) {
+    write_error(error, error_cap, refusal);
+    return nullptr;
+  }
   std::unique_ptr<earshot_stream> s(new earshot_stream);
   s->model = model;
+  s->bytes = size_t(need.total);
   s->runner = make_runner(model, variant ? variant : "", err);
   if (!s->runner) {
     write_error(error, error_cap, err);
@@ -388,11 +534,11 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
 
 extern "C" {
 
-earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
-                               char* error, size_t error_cap) {
+earshot_stream* earshot_create_bounded(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                                       size_t max_stream_bytes, char* error, size_t error_cap) {
 #if defined(__cpp_exceptions)
   try {
-    return create(bytes, len, host_rate, variant, error, error_cap);
+    return create(bytes, len, host_rate, variant, max_stream_bytes, error, error_cap);
   } catch (const std::bad_alloc&) {
     write_error(error, error_cap, "out of memory while loading the effect");
   } catch (...) {
@@ -400,9 +546,16 @@ earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double ho
   }
   return nullptr;
 #else
-  return create(bytes, len, host_rate, variant, error, error_cap);
+  return create(bytes, len, host_rate, variant, max_stream_bytes, error, error_cap);
 #endif
 }
+
+earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                               char* error, size_t error_cap) {
+  return earshot_create_bounded(bytes, len, host_rate, variant, EARSHOT_STREAM_BYTES_DEFAULT, error, error_cap);
+}
+
+size_t earshot_stream_bytes(const earshot_stream* s) { return s ? s->bytes : 0; }
 
 int earshot_process(earshot_stream* s, const float* in, float* out, int n) {
   if (!s || !in || !out || n < 1 || n > EARSHOT_MAX_BLOCK) return 0;

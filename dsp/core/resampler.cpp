@@ -73,6 +73,24 @@ std::vector<float> design_prototype(int L, int M, int K) {
 
 }  // namespace
 
+void Resampler::bytes_needed(int from_rate, int to_rate, double& held, double& design) {
+  held = design = 0;
+  if (from_rate < kRateMin || from_rate > kRateMax || to_rate < kRateMin || to_rate > kRateMax) return;
+  const int g = gcd_int(from_rate, to_rate);
+  const int L = to_rate / g;
+  const int M = from_rate / g;
+  if (L > kMaxFactor || M > kMaxFactor) return;
+  if (L == 1 && M == 1) {
+    held = 4.0 * sizeof(float);
+    return;
+  }
+  const double K = design_half_length(L, M);
+  const double taps = 2 * K + 1;
+  const double N = 2 * K * L + 1;
+  held = sizeof(float) * (N + double(L) * taps + 2 * taps);  // prototype, bank [L][taps], history
+  design = (sizeof(double) + sizeof(float)) * N;              // window values and the float copy
+}
+
 bool Resampler::init(int from_rate, int to_rate, std::string& error) {
   if (from_rate < kRateMin || from_rate > kRateMax) {
     error = "resampler: input rate " + std::to_string(from_rate) + " Hz is outside " +

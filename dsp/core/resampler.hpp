@@ -66,6 +66,12 @@ class Resampler {
   // the resampler keeps its previous configuration and state.
   bool init(int from_rate, int to_rate, std::string& error);
 
+  // Bytes init() keeps for these rates (held), and the temporaries it needs
+  // on top while it designs the filter (design), computed without allocating;
+  // both 0 when init would refuse the rates. They bound a stream's memory
+  // before it is built.
+  static void bytes_needed(int from_rate, int to_rate, double& held, double& design);
+
   // Upper bound on what process() returns for n_in inputs, from any state:
   // ceil(n_in·L/M). 0 before init.
   int max_output(int n_in) const;

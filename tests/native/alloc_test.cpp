@@ -5,7 +5,10 @@
 #if !defined(__SANITIZE_ADDRESS__)
 #include <catch2/catch.hpp>
 #include <atomic>
+#include <chrono>
+#include <cstdio>
 #include <cstdlib>
+#include <malloc.h>
 #include <new>
 
 #include "cases.hpp"
@@ -14,25 +17,42 @@
 namespace {
 std::atomic<bool> armed{false};
 std::atomic<long> allocations{0};
+// Live bytes of operator new (glibc's usable sizes) and their peak, always kept.
+std::atomic<long long> live_bytes{0}, peak_bytes{0};
+
+void* counted(std::size_t n) {
+  void* p = std::malloc(n ? n : 1);
+  if (p) {
+    const long long now = live_bytes += (long long)malloc_usable_size(p);
+    long long peak = peak_bytes;
+    while (now > peak && !peak_bytes.compare_exchange_weak(peak, now)) {
+    }
+  }
+  return p;
+}
+void uncounted(void* p) {
+  if (p) live_bytes -= (long long)malloc_usable_size(p);
+  std::free(p);
+}
 }  // namespace
 
 void* operator new(std::size_t n) {
   if (armed) ++allocations;
-  if (void* p = std::malloc(n ? n : 1)) return p;
+  if (void* p = counted(n)) return p;
   throw std::bad_alloc();
 }
 void* operator new[](std::size_t n) { return operator new(n); }
-void operator delete(void* p) noexcept { std::free(p); }
-void operator delete[](void* p) noexcept { std::free(p); }
-void operator delete(void* p, std::size_t) noexcept { std::free(p); }
-void operator delete[](void* p, std::size_t) noexcept { std::free(p); }
+void operator delete(void* p) noexcept { uncounted(p); }
+void operator delete[](void* p) noexcept { uncounted(p); }
+void operator delete(void* p, std::size_t) noexcept { uncounted(p); }
+void operator delete[](void* p, std::size_t) noexcept { uncounted(p); }
 void* operator new(std::size_t n, const std::nothrow_t&) noexcept {
   if (armed) ++allocations;
-  return std::malloc(n ? n : 1);
+  return counted(n);
 }
 void* operator new[](std::size_t n, const std::nothrow_t& t) noexcept { return operator new(n, t); }
-void operator delete(void* p, const std::nothrow_t&) noexcept { std::free(p); }
-void operator delete[](void* p, const std::nothrow_t&) noexcept { std::free(p); }
+void operator delete(void* p, const std::nothrow_t&) noexcept { uncounted(p); }
+void operator delete[](void* p, const std::nothrow_t&) noexcept { uncounted(p); }
 
 using namespace testfx;
 
@@ -67,4 +87,65 @@ TEST_CASE("processing never allocates, in every variant, with and without resamp
   armed = false;
   CHECK(allocations > 0);
 }
-#endif  // !__SANITIZE_ADDRESS__
+// Peak bytes held while `f` runs, above what was live when it started.
+template <class F>
+long long peak_during(F&& f) {
+  const long long base = live_bytes;
+  peak_bytes = base;
+  f();
+  return peak_bytes - base;
+}
+
+TEST_CASE("a stream's memory bound holds what create allocates, and is close to it", "[stream-bytes]") {
+  // The bound (engine.cpp, dsp/FORMAT.md "Stream memory") must never be below
+  // the peak the create call reaches (weights, state, history, scratch,
+  // resampler design), and not far above it.
+  for (const Case& c : all_cases(5)) {
+    for (double rate : {48000.0, 44100.0, 8000.0}) {
+      const std::vector<unsigned char> bytes = c.fx.bytes();
+      earshot_stream* s = nullptr;
+      const long long peak = peak_during([&] {
+        char err[512];
+        s = earshot_create(bytes.data(), bytes.size(), rate, "scalar", err, sizeof err);
+      });
+      REQUIRE(s);
+      const double bound = double(earshot_stream_bytes(s));
+      CAPTURE(c.name, rate, peak, bound);
+      CHECK(bound >= double(peak));
+      CHECK(bound <= 1.25 * double(peak) + 96 * 1024);
+      earshot_destroy(s);
+    }
+  }
+}
+
+TEST_CASE("a small file asking for a huge history is refused before anything large is allocated", "[stream-bytes]") {
+  // 1 → 1024 channels (linear), then a kernel-2 conv1d with dilation 65536 on
+  // 1024 channels: a few KB of weights, 512 MiB of history per stream.
+  Builder b(3);
+  linear(b, 1, 1024);
+  conv(b, 1024, 1, 2, 65536);
+  const std::vector<unsigned char> bytes = b.build().bytes();
+  INFO("file bytes " << bytes.size());
+  CHECK(bytes.size() < 40000);
+  char err[512] = {0};
+  earshot_stream* s = nullptr;
+  const auto t0 = std::chrono::steady_clock::now();
+  const long long peak = peak_during([&] { s = earshot_create(bytes.data(), bytes.size(), 48000, "", err, sizeof err); });
+  const double ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - t0).count();
+  REQUIRE(s == nullptr);
+  const std::string msg = err;
+  CAPTURE(msg, peak);
+  CHECK(msg.find("layers[1]") != std::string::npos);
+  CHECK(msg.find("conv1d") != std::string::npos);
+  CHECK(msg.find("limit is 64.0 MiB") != std::string::npos);
+  // Deterministic stand-in for "costs milliseconds": the refusal holds no more
+  // than a few copies of the file.
+  CHECK(peak < 8 * (long long)bytes.size() + 256 * 1024);
+  std::printf("refused %zu-byte file: %s (%.2f ms, peak %lld bytes)\n", bytes.size(), err, ms, peak);
+  // The same file under an explicit, larger limit is accepted and says its figure.
+  s = earshot_create_bounded(bytes.data(), bytes.size(), 48000, "", size_t(1) << 30, err, sizeof err);
+  REQUIRE(s);
+  CHECK(earshot_stream_bytes(s) > (size_t(512) << 20));
+  earshot_destroy(s);
+}
+#endif

@@ -38,6 +38,24 @@ typedef struct earshot_stream earshot_stream;
 earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double host_rate,
                                const char* variant, char* error, size_t error_cap);
 
+/* Memory one stream may use by default: 64 MiB. Before allocating anything
+ * large, earshot_create computes an upper bound on the bytes the stream will
+ * hold at host_rate (the weights, every layer's state, convolution history and
+ * scratch, the resampler; dsp/FORMAT.md, "Stream memory") and refuses a file
+ * above the limit, naming the layer and the figures. A refused file costs a
+ * parse of its header and description, never the allocation it asks for. */
+#define EARSHOT_STREAM_BYTES_DEFAULT ((size_t)64 << 20)
+
+/* earshot_create with an explicit limit instead of the default (a caller that
+ * trusts the file may raise it; the bound is the same). */
+earshot_stream* earshot_create_bounded(const unsigned char* bytes, size_t len, double host_rate,
+                                       const char* variant, size_t max_stream_bytes, char* error,
+                                       size_t error_cap);
+
+/* The stream's memory bound in bytes, as checked against the limit at create
+ * (also in earshot_info as "stream_bytes"). 0 for a null handle. */
+size_t earshot_stream_bytes(const earshot_stream* s);
+
 /* Processes n mono samples (1 <= n <= EARSHOT_MAX_BLOCK); in and out may alias.
  * Returns n, or 0 when an argument is bad (then out is left untouched). */
 int earshot_process(earshot_stream* s, const float* in, float* out, int n);
