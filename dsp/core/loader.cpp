@@ -7,6 +7,7 @@
 #include <set>
 
 #include "model.hpp"
+#include "json_reader.hpp"
 
 #define RAPIDJSON_HAS_STDSTRING 1
 #include <rapidjson/document.h>
@@ -521,14 +522,14 @@ std::shared_ptr<const Model> load_model(const unsigned char* bytes, size_t len, 
   if (8 + hlen > len)
     return bad("effect file: header length " + std::to_string(hlen) + " runs past the end of the file (" +
                std::to_string(len) + " bytes)");
-  // Iterative parsing: nesting depth costs heap, not call stack (a deeply
-  // nested header would otherwise overflow the stack, natively a crash and in
-  // WebAssembly a trap).
-  rapidjson::Document h;
-  h.Parse<rapidjson::kParseIterativeFlag>(reinterpret_cast<const char*>(bytes + 8), size_t(hlen));
-  if (h.HasParseError())
-    return bad(std::string("effect file header: invalid JSON at byte ") + std::to_string(h.GetErrorOffset()) + ": " +
-               rapidjson::GetParseError_En(h.GetParseError()));
+  // The one JSON reader (json_reader.hpp): iterative (depth costs heap, not
+  // call stack), depth- and size-capped, UTF-8 checked, explicit length (a NUL
+  // is an error, not an end), nothing but whitespace after the value.
+  JsonDocument header;
+  const std::string header_error =
+      json_read("effect file header", reinterpret_cast<const char*>(bytes + 8), size_t(hlen), header);
+  if (!header_error.empty()) return bad(header_error);
+  const rapidjson::Document& h = header.doc;
   if (!h.IsObject()) return bad("effect file header: must be a JSON object");
   const unsigned char* data = bytes + 8 + hlen;
   const uint64_t data_len = len - 8 - hlen;
@@ -597,11 +598,10 @@ std::shared_ptr<const Model> load_model(const unsigned char* bytes, size_t len, 
   if (description.empty() && !h.HasMember("__metadata__"))
     return bad("effect file header: no '__metadata__' (not an earshot effect file)");
 
-  rapidjson::Document d;
-  d.Parse<rapidjson::kParseIterativeFlag>(description.c_str(), description.size());
-  if (d.HasParseError())
-    return bad(std::string("effect description: invalid JSON at byte ") + std::to_string(d.GetErrorOffset()) + ": " +
-               rapidjson::GetParseError_En(d.GetParseError()));
+  JsonDocument parsed;
+  const std::string description_error = json_read("effect description", description.data(), description.size(), parsed);
+  if (!description_error.empty()) return bad(description_error);
+  const rapidjson::Document& d = parsed.doc;
   auto m = std::make_shared<Model>();
   m->description = description;
   Builder b(data, data_len, raw, error);

@@ -159,9 +159,9 @@ TEST_CASE("the loader rejects each malformed file with a specific message") {
   rows.push_back({"format version too new", replaced("\"version\":1", "\"version\":2"), "format version 2 is too new"});
   rows.push_back({"channel count mismatch", replaced("\"in\":1", "\"in\":2"), "previous stage gives 1"});
   rows.push_back({"sample rate out of range", replaced("\"sample_rate\":48000", "\"sample_rate\":100"), "'sample_rate'"});
-  rows.push_back({"invalid JSON header", with_header("{\"__metadata__\": {", {}), "invalid JSON"});
+  rows.push_back({"invalid JSON header", with_header("{\"__metadata__\": {", {}), "effect file header: line 1, column "});
   rows.push_back({"invalid JSON description", with_header("{\"__metadata__\":{\"earshot.effect\":\"{not json\"}}", {}),
-                  "effect description: invalid JSON"});
+                  "effect description: line 1, column "});
   rows.push_back({"no effect description", with_header(std::string("{\"__metadata__\":{}}") , {}), "not an earshot effect file"});
   {
     std::string d = good.description;
