@@ -148,4 +148,50 @@ TEST_CASE("a small file asking for a huge history is refused before anything lar
   CHECK(earshot_stream_bytes(s) > (size_t(512) << 20));
   earshot_destroy(s);
 }
+
+TEST_CASE("the costliest stream under the default limit is created within the limit", "[stream-bytes]") {
+  // The same shape as above with the largest dilation the default 64 MiB limit
+  // accepts (found by bisection on the refusal): the worst a small file can
+  // cost a page that uses the default. Prints its create time and peak.
+  auto file = [](int dilation) {
+    Builder b(3);
+    linear(b, 1, 1024);
+    conv(b, 1024, 1, 2, dilation);
+    return b.build().bytes();
+  };
+  auto accepted = [&](int dilation) {
+    const std::vector<unsigned char> bytes = file(dilation);
+    char err[512] = {0};
+    earshot_stream* s = earshot_create(bytes.data(), bytes.size(), 48000, "", err, sizeof err);
+    const bool ok = s != nullptr;
+    earshot_destroy(s);
+    return ok;
+  };
+  int lo = 1, hi = 65536;  // lo accepted, hi refused (the case above)
+  REQUIRE(accepted(lo));
+  REQUIRE(!accepted(hi));
+  while (hi - lo > 1) {
+    const int mid = lo + (hi - lo) / 2;
+    (accepted(mid) ? lo : hi) = mid;
+  }
+  const std::vector<unsigned char> bytes = file(lo);
+  char err[512] = {0};
+  earshot_stream* s = nullptr;
+  const auto t0 = std::chrono::steady_clock::now();
+  const long long peak = peak_during([&] { s = earshot_create(bytes.data(), bytes.size(), 48000, "", err, sizeof err); });
+  const double ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - t0).count();
+  REQUIRE(s);
+  const size_t bound = earshot_stream_bytes(s);
+  CAPTURE(lo, bound, peak);
+  CHECK(bound <= EARSHOT_STREAM_BYTES_DEFAULT);
+  CHECK(double(peak) <= double(bound));
+  std::vector<float> x(4800, 0.25f), y(4800);
+  const auto t1 = std::chrono::steady_clock::now();
+  for (int i = 0; i < 10; ++i) REQUIRE(earshot_process(s, x.data(), y.data(), 4800) == 4800);
+  const double run_ms = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - t1).count();
+  std::printf("costliest accepted: %zu-byte file, dilation %d, bound %.1f MiB, create %.2f ms, peak %.1f MiB, 1 s of audio in %.1f ms\n",
+              bytes.size(), lo, bound / 1048576.0, ms, peak / 1048576.0, run_ms);
+  earshot_destroy(s);
+}
+
 #endif
