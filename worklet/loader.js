@@ -26,6 +26,10 @@ export const MAX_BLOCK = 65536; // EARSHOT_MAX_BLOCK, the most one earshot_proce
 // partition never changes a sample).
 export const CHUNK = MAX_BLOCK;
 
+// kMaxFileBytes (dsp/core/model.hpp, dsp/FORMAT.md): a larger file is refused
+// with the core's own text before it is copied into WebAssembly memory, which
+// never shrinks.
+export const MAX_FILE_BYTES = 256 * 1024 * 1024;
 const ERROR_CAP = 1024; // bytes for the core's creation error text
 const NAME_CAP = 256; // bytes for a control name passed to earshot_control_index
 
@@ -274,6 +278,7 @@ export class Effect {
   constructor(variant, fileBytes, hostRate) {
     const bytes = asBytes(fileBytes, 'the effect file');
     if (bytes.length === 0) throw new Error('effect file: no data'); // the core's own text (dsp/core/loader.cpp)
+    if (bytes.length > MAX_FILE_BYTES) throw new Error(`effect file: ${bytes.length} bytes exceeds the 256 MiB limit`);
     const v = variant;
     if (v.broken) v.renew();
     this.variant = v;

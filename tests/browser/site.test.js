@@ -4,11 +4,11 @@
 // stays text. Screenshots go to build/browser-tests/artifacts/.
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { mkdirSync } from 'node:fs';
+import { mkdirSync, readFileSync, writeFileSync, truncateSync } from 'node:fs';
 import { join } from 'node:path';
 import {
   ARTIFACTS, MARKUP_NAME, buildSite, serve, launch, openPage, waitForCheck, download, compareWavBits,
-  earshotBin, mustRun, fixture, tmpFile, PYTHON,
+  earshotBin, mustRun, run, fixture, tmpFile, PYTHON,
 } from './helpers.js';
 
 let built;
@@ -216,7 +216,7 @@ test('a corrupt effect file and a non-audio upload each give a clear error and l
   await page.setInputFiles('#effect-file', fixture('corrupt.nfx'));
   await page.waitForSelector('#effect-status[data-kind=error]');
   const err = await page.textContent('#effect-status');
-  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: invalid JSON/);
+  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: line 1, column \d+: /);
   assert.equal(await page.inputValue('#effect-select'), 'site:lstm');
 
   const bad = await renderUpload(page, fixture('notes.txt'));
@@ -229,6 +229,48 @@ test('a corrupt effect file and a non-audio upload each give a clear error and l
   // Still working: another effect passes its self-check and a real file renders.
   const r = await selectEffect(page, 'tcn');
   assert.equal(r.state, 'pass', r.text);
+  const good = await renderUpload(page, fixture('mono-48k-i16.wav'));
+  assert.equal(good.kind, 'ok', good.text);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a cut-short WAV, an effect file over 256 MiB and audio over the page limit are refused before reading; the page keeps working', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  // A WAV cut to half its frames: an error naming frames read and declared, not a shorter render.
+  const whole = readFileSync(fixture('mono-48k-i16.wav'));
+  const declared = whole.readUInt32LE(40) / 2; // 16-bit mono; data chunk at byte 36 (SciPy's layout)
+  const cutPath = tmpFile('cut-half.wav');
+  writeFileSync(cutPath, whole.subarray(0, 44 + Math.floor(declared / 2) * 2));
+  const cut = await renderUpload(page, cutPath);
+  assert.equal(cut.kind, 'error');
+  assert.match(cut.text, new RegExp(`'cut-half\\.wav' is cut short: read ${Math.floor(declared / 2)} of ${declared} frames`));
+  // 2^25 + 1 frames of 8-bit mono (a sparse file): over the page's limit, refused from the header.
+  const longPath = tmpFile('too-long.wav');
+  const frames = 2 ** 25 + 1;
+  const h = Buffer.alloc(44);
+  h.write('RIFF', 0, 'latin1'); h.writeUInt32LE(36 + frames + 1, 4); h.write('WAVEfmt ', 8, 'latin1');
+  h.writeUInt32LE(16, 16); h.writeUInt16LE(1, 20); h.writeUInt16LE(1, 22); h.writeUInt32LE(48000, 24);
+  h.writeUInt32LE(48000, 28); h.writeUInt16LE(1, 32); h.writeUInt16LE(8, 34); h.write('data', 36, 'latin1');
+  h.writeUInt32LE(frames, 40);
+  writeFileSync(longPath, h);
+  truncateSync(longPath, 44 + frames + 1);
+  const long = await renderUpload(page, longPath);
+  assert.equal(long.kind, 'error');
+  assert.match(long.text, /'too-long\.wav' is 33554433 frames long .*at most 33554432 frames per file/);
+  // An effect file one byte over the core's 256 MiB limit (sparse): the core's own text, file not read.
+  const bigPath = tmpFile('too-big.nfx');
+  writeFileSync(bigPath, '');
+  truncateSync(bigPath, 256 * 1024 * 1024 + 1);
+  await page.setInputFiles('#effect-file', bigPath);
+  await page.waitForSelector('#effect-status[data-kind=error]');
+  assert.equal(await page.textContent('#effect-status'),
+    "'too-big.nfx' cannot be used as an effect: effect file: 268435457 bytes exceeds the 256 MiB limit");
+  // The native tool refuses the same file before reading it too (exit 3).
+  const native = run(earshotBin(), ['info', bigPath]);
+  assert.equal(native.status, 3);
+  assert.match(native.stderr, /268435457 bytes, over the 268435456-byte \(256 MiB\) limit/);
   const good = await renderUpload(page, fixture('mono-48k-i16.wav'));
   assert.equal(good.kind, 'ok', good.text);
   await page.close();

@@ -161,3 +161,29 @@ print(json.dumps({"rate": rate, "dtype": str(x.dtype), "bits": x.view(np.uint32)
   const noData = new Uint8Array(await blob.arrayBuffer()).slice(0, 38).buffer;
   await assert.rejects(readWavHeader(read(noData), noData.byteLength, "'cut.wav'"), /'cut\.wav': no data chunk/);
 });
+
+test('a WAV cut short is an error naming frames read and declared; a streamed length takes what the file holds', async () => {
+  // The file is written by SciPy (scipy.io.wavfile): 16-bit mono, 1000 frames,
+  // data chunk at byte 36 (RIFF/WAVE layout: 12-byte RIFF header, 24-byte fmt chunk).
+  const path = tmpFile('units-cut.wav');
+  mustRun(PYTHON, ['-c', `
+import sys, numpy as np, scipy.io.wavfile as w
+w.write(sys.argv[1], 48000, (np.arange(1000) % 200 - 100).astype(np.int16))`, path]);
+  const whole = readFileSync(path);
+  const read = (buf) => async (o, n) => buf.buffer.slice(buf.byteOffset + o, buf.byteOffset + Math.min(o + n, buf.length));
+  const full = await readWavHeader(read(whole), whole.length, "'whole.wav'");
+  assert.equal(full.frames, 1000);
+  assert.equal(whole.toString('latin1', 36, 40), 'data');
+  // Cut after 400 frames and one odd byte (libsndfile would read 400 frames and say nothing).
+  const cut = whole.subarray(0, 44 + 400 * 2 + 1);
+  await assert.rejects(readWavHeader(read(cut), cut.length, "'cut.wav'"),
+    (e) => !(e.unsupported) && /^'cut\.wav' is cut short: read 400 of 1000 frames/.test(e.message));
+  // 0xffffffff (and 0): the length was unknown when the header was written; the
+  // frames are what the file holds (common practice, no source).
+  for (const marker of [0xffffffff, 0]) {
+    const streamed = Buffer.from(cut);
+    streamed.writeUInt32LE(marker, 40);
+    const h = await readWavHeader(read(streamed), streamed.length, "'streamed.wav'");
+    assert.equal(h.frames, 400, `data length ${marker}`);
+  }
+});

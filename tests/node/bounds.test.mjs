@@ -14,6 +14,8 @@ import { Effect, loadVariant } from '../../worklet/loader.js';
 import { effectFiles, prng, runNative, variant, wasmBytes, WASM_VARIANTS, WORK } from './env.mjs';
 import { build } from './nfx.mjs';
 
+const ROOT_DIR = new URL('../..', import.meta.url).pathname;
+
 // linear 1 → C, then conv1d C → 1 with kernel 2 and dilation D: 12·C floats of
 // weights and about 8·C·D bytes of convolution history per stream.
 function wideHistory(C, D) {
@@ -104,3 +106,21 @@ for (const name of WASM_VARIANTS) {
     ref.destroy();
   });
 }
+
+test('an effect file over the 256 MiB format limit is refused before it is copied into WebAssembly memory', () => {
+  // The text is the core's (dsp/core/loader.cpp), which the loader repeats so
+  // the bytes never reach the instance: its memory cannot shrink afterwards.
+  const core = readFileSync(new URL('../../dsp/core/loader.cpp', import.meta.url), 'utf8');
+  assert.match(core, /" bytes exceeds the 256 MiB limit"/);
+  const tooBig = new Uint8Array(256 * 1024 * 1024 + 1);
+  for (const name of WASM_VARIANTS) {
+    const v = variant(name);
+    const before = v.memoryBytes;
+    assert.throws(() => v.createEffect(tooBig, 48000), (e) => e.message === 'effect file: 268435457 bytes exceeds the 256 MiB limit');
+    assert.equal(v.memoryBytes, before, `${name}: memory grew`);
+    // Still usable at once.
+    const fx = v.createEffect(readFileSync(join(ROOT_DIR, 'demos', 'effects', 'gru.nfx')), 48000);
+    assert.ok(fx.latency >= 0);
+    fx.destroy();
+  }
+});

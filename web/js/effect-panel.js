@@ -4,6 +4,7 @@
 import { $, el, clear, setText, status, link, isWebAddress } from './dom.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { count, hz, bytes as fmtBytes } from './format.js';
+import { MAX_FILE_BYTES } from '../worklet/loader.js';
 
 export class EffectPanel {
   constructor(engine, site, onSelect) {
@@ -58,6 +59,11 @@ export class EffectPanel {
     if (!file) return;
     let bytes;
     let loaded;
+    if (file.size > MAX_FILE_BYTES) {
+      // Refused before reading: the core's own text, without holding the file.
+      status(this.status, 'error', `'${file.name}' cannot be used as an effect: effect file: ${file.size} bytes exceeds the 256 MiB limit`);
+      return;
+    }
     try {
       bytes = await file.arrayBuffer();
       loaded = this.engine.inspect(bytes);

@@ -6,7 +6,7 @@
 // core resamples to the model rate and back, exactly as `earshot render`
 // does); anything else is decoded by the browser straight to the model rate.
 import { $, el, clear, setText, status } from './dom.js';
-import { looksLikeWav, floatWavHeader } from './wav.js';
+import { looksLikeWav, floatWavHeader, MAX_RENDER_FRAMES } from './wav.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { drawWave } from './waveform.js';
 import { Player } from './player.js';
@@ -136,6 +136,8 @@ export class OfflinePanel {
     if (id !== this.job) return;
     if (buffer.numberOfChannels > 2)
       return this.fail(id, `'${src.name}' has ${buffer.numberOfChannels} channels; the page renders mono or stereo files only`);
+    if (buffer.length > MAX_RENDER_FRAMES)
+      return this.fail(id, `'${src.name}' is ${buffer.length} frames long once decoded; the page renders at most ${MAX_RENDER_FRAMES} frames per file (11.6 minutes at 48 kHz): use 'earshot render' for longer files`);
     const channels = [];
     for (let c = 0; c < buffer.numberOfChannels; c++) channels.push(buffer.getChannelData(c).slice());
     this.start(id, fx, settings, {

@@ -14,7 +14,7 @@
 //       or { type: 'fallback', id, reason } when a WAV needs the browser's decoder
 // Failures → { type: 'failed', id, message }.
 import { loadVariant } from '../worklet/loader.js';
-import { readWavHeader, decodeFrames, WavError } from './wav.js';
+import { readWavHeader, decodeFrames, WavError, MAX_RENDER_FRAMES } from './wav.js';
 import { integratedLoudness } from './loudness.js';
 import { testSignal, fnv1a64, floatBits } from './test-signal.js';
 
@@ -240,6 +240,8 @@ async function render(msg) {
   if (rate < 8000 || rate > 384000)
     throw new Error(`'${source.name}' has sample rate ${rate} Hz; earshot streams run at 8000 .. 384000 Hz`);
   if (frames === 0) throw new Error(`'${source.name}' holds no audio samples`);
+  if (frames > MAX_RENDER_FRAMES)
+    throw new Error(`'${source.name}' is ${frames} frames long (${(frames / rate / 60).toFixed(1)} minutes); the page renders at most ${MAX_RENDER_FRAMES} frames per file (11.6 minutes at 48 kHz): use 'earshot render' for longer files`);
 
   const variant = await variantFor(msg.wasmUrl, msg.variant);
   const bytes = new Uint8Array(msg.effect);

@@ -11,6 +11,11 @@ const FORMAT_PCM = 1;
 const FORMAT_FLOAT = 3;
 const FORMAT_EXTENSIBLE = 0xfffe;
 
+// The longest audio the page renders: 2^25 frames per channel (11.6 minutes at
+// 48 kHz). Input and output of a stereo file then take 512 MiB of float32;
+// longer files are for `earshot render`, which streams.
+export const MAX_RENDER_FRAMES = 2 ** 25;
+
 export class WavError extends Error {
   constructor(message, unsupported = false) {
     super(message);
@@ -67,9 +72,18 @@ export async function readWavHeader(read, size, name = 'the file') {
       if (channels < 1) throw new WavError(`${name}: the fmt chunk declares ${channels} channels`);
       if (blockAlign !== channels * (bits / 8)) throw new WavError(`${name}: block align ${blockAlign} does not match ${channels} × ${bits} bits`);
       if (rate < 1) throw new WavError(`${name}: sample rate ${rate} Hz`);
-      // A streamed file may say 0 or 0xffffffff: take what the file holds.
+      // A file written while streaming may say 0 or 0xffffffff (its length was
+      // unknown when the header was written; common practice, no source): take
+      // what the file holds. Any other length the file does not hold is a cut-short
+      // file, an error rather than a shorter render (the native reader agrees).
       const avail = Math.max(0, size - body);
-      const dataLen = len === 0 || len === 0xffffffff || len > avail ? avail : len;
+      const streamed = len === 0 || len === 0xffffffff;
+      if (!streamed && len > avail) {
+        const declared = Math.floor(len / blockAlign);
+        const held = Math.floor(avail / blockAlign);
+        throw new Error(`${name} is cut short: read ${held} of ${declared} frames (its data chunk declares ${len} bytes, the file holds ${avail})`);
+      }
+      const dataLen = streamed ? avail : len;
       return { format, channels, rate, bits, blockAlign, frames: Math.floor(dataLen / blockAlign), dataOffset: body };
     }
     at = body + len + (len & 1); // chunks are padded to even length
