@@ -33,13 +33,22 @@ export const MAX_FILE_BYTES = 256 * 1024 * 1024;
 const ERROR_CAP = 1024; // bytes for the core's creation error text
 const NAME_CAP = 256; // bytes for a control name passed to earshot_control_index
 
-// Every function of the C ABI; the builds export exactly these plus memory,
-// malloc, free and _initialize.
+// The stream functions of the C ABI an Effect needs. The builds export the
+// whole C ABI of dsp/include/earshot/earshot.h (these, earshot_create_bounded,
+// earshot_stream_bytes and LISTENING_FUNCTIONS) plus memory, malloc, free and
+// _initialize (tests/node/exports.test.mjs).
 export const ABI_FUNCTIONS = Object.freeze([
   'earshot_create', 'earshot_process', 'earshot_control_count', 'earshot_control_index',
   'earshot_set_control', 'earshot_get_control', 'earshot_set_mix', 'earshot_set_gain',
   'earshot_reset', 'earshot_latency', 'earshot_info', 'earshot_variant',
   'earshot_nonfinite_count', 'earshot_status_text', 'earshot_destroy',
+]);
+
+// The whole-clip functions for listening tests (ITU-R BS.1770-4 loudness,
+// ITU-R BS.1534-3 anchors), reached through Variant.loudness, loudnessMatch,
+// anchor and loudnessOfChannels.
+export const LISTENING_FUNCTIONS = Object.freeze([
+  'earshot_loudness', 'earshot_loudness_lkfs', 'earshot_loudness_match', 'earshot_anchor_taps', 'earshot_anchor',
 ]);
 
 // ---------------------------------------------------------------- UTF-8
@@ -222,10 +231,10 @@ export class Variant {
   }
 
   // Calls an export; a trap marks the instance unusable and becomes an Error.
-  call(fn, a, b, c, d, e, f) {
+  call(fn, ...args) {
     if (this.broken) throw this.broken;
     try {
-      return this.exports[fn](a, b, c, d, e, f);
+      return this.exports[fn](...args);
     } catch (err) {
       return this.trapped(fn, err);
     }
@@ -265,6 +274,96 @@ export class Variant {
 
   createEffect(fileBytes, hostRate) {
     return new Effect(this, fileBytes, hostRate);
+  }
+
+  // ---- Whole clips, for listening tests (earshot.h, "Listening tests").
+  // Audio is interleaved float32 (frames × channels). Every call goes through
+  // call(), so a trap becomes an Error and the next use gets a fresh instance.
+
+  hasListening() {
+    return LISTENING_FUNCTIONS.every((f) => typeof this.exports[f] === 'function');
+  }
+
+  // Copies `interleaved` into fresh WebAssembly memory with `extraBytes` of
+  // room after it, runs fn(p, q) and frees both (a trapped instance is dropped
+  // whole instead).
+  withAudio(interleaved, extraBytes, fn) {
+    if (this.broken) this.renew();
+    const p = this.malloc(Math.max(interleaved.length * 4, 4));
+    let q = 0;
+    try {
+      q = this.malloc(Math.max(extraBytes, 16));
+      this.refresh();
+      this.f32.set(interleaved, p >> 2);
+      return fn(p, q);
+    } finally {
+      if (!this.broken) {
+        this.free(q);
+        this.free(p);
+      }
+    }
+  }
+
+  // A non-zero EARSHOT_* status becomes an Error carrying it as .status.
+  checkStatus(status, what) {
+    if (status === 0) return;
+    const e = new Error(`${what}: ${this.statusText(status)}`);
+    e.status = status;
+    throw e;
+  }
+
+  // Integrated loudness in LKFS (−Infinity when no block passes the gate).
+  loudness(interleaved, channels, rate) {
+    const frames = interleaved.length / channels;
+    return this.withAudio(interleaved, 8, (p, q) => {
+      this.checkStatus(this.call('earshot_loudness', p, frames, channels, rate, 0, q), 'loudness');
+      this.refresh();
+      return new Float64Array(this.memory.buffer, q, 1)[0];
+    });
+  }
+
+  // A copy matched to targetLkfs, and the gain applied in dB.
+  loudnessMatch(interleaved, channels, rate, targetLkfs) {
+    const frames = interleaved.length / channels;
+    return this.withAudio(interleaved, 8, (p, q) => {
+      this.checkStatus(this.call('earshot_loudness_match', p, frames, channels, rate, 0, targetLkfs, q),
+        `matching to ${targetLkfs} LKFS`);
+      this.refresh();
+      const gainDb = new Float64Array(this.memory.buffer, q, 1)[0];
+      return { data: this.f32.slice(p >> 2, (p >> 2) + interleaved.length), gainDb };
+    });
+  }
+
+  // The low-pass anchor whose pass band ends at passbandHz, time-aligned.
+  anchor(interleaved, channels, rate, passbandHz) {
+    const frames = interleaved.length / channels;
+    return this.withAudio(interleaved, interleaved.length * 4, (p, q) => {
+      this.checkStatus(this.call('earshot_anchor', p, q, frames, channels, rate, passbandHz), `the ${passbandHz} Hz anchor`);
+      this.refresh();
+      return this.f32.slice(q >> 2, (q >> 2) + interleaved.length);
+    });
+  }
+
+  // Integrated loudness of planar channels (earshot_loudness_lkfs): NaN when
+  // the core refuses the arguments; throws when memory for the interleaved
+  // copy cannot be had.
+  loudnessOfChannels(channels, rate) {
+    if (this.broken) this.renew();
+    const C = channels.length;
+    const n = channels[0].length;
+    const p = this.malloc(Math.max(n * C * 4, 4));
+    try {
+      this.refresh();
+      const f = this.f32;
+      const base = p >> 2;
+      for (let c = 0; c < C; c++) {
+        const ch = channels[c];
+        for (let t = 0; t < n; t++) f[base + t * C + c] = ch[t];
+      }
+      return this.call('earshot_loudness_lkfs', p, n, C, rate);
+    } finally {
+      if (!this.broken) this.free(p);
+    }
   }
 }
 

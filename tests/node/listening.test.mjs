@@ -8,6 +8,7 @@ import { readFileSync, rmSync } from 'node:fs';
 import { join } from 'node:path';
 import { test } from 'node:test';
 
+import { loadVariant } from '../../worklet/loader.js';
 import { firstDifference, prng, readF32, runNative, variant, WASM_VARIANTS, WORK, writeF32 } from './env.mjs';
 
 function clip(frames, channels, rate, seed) {
@@ -22,30 +23,25 @@ function clip(frames, channels, rate, seed) {
   return x;
 }
 
+// Through the loader's methods (worklet/loader.js), as the page calls them; a
+// refusal is an Error carrying the core's status code.
+function statusOf(fn) {
+  try {
+    return { st: 0, value: fn() };
+  } catch (e) {
+    if (e.status === undefined) throw e;
+    return { st: e.status };
+  }
+}
+
 function wasmLoudness(V, x, channels, rate) {
-  const p = V.malloc(x.length * 4 || 4);
-  const out = V.malloc(8);
-  V.refresh();
-  V.f32.set(x, p >> 2);
-  const st = V.call('earshot_loudness', p, x.length / channels, channels, rate, 0, out);
-  V.refresh();
-  const lkfs = new Float64Array(V.memory.buffer, out, 1)[0];
-  V.free(p);
-  V.free(out);
-  return { st, lkfs };
+  const r = statusOf(() => V.loudness(x, channels, rate));
+  return r.st === 0 ? { st: 0, lkfs: r.value } : { st: r.st };
 }
 
 function wasmAnchor(V, x, channels, rate, pass) {
-  const p = V.malloc(x.length * 4);
-  const q = V.malloc(x.length * 4);
-  V.refresh();
-  V.f32.set(x, p >> 2);
-  const st = V.call('earshot_anchor', p, q, x.length / channels, channels, rate, pass);
-  V.refresh();
-  const y = V.f32.slice(q >> 2, (q >> 2) + x.length);
-  V.free(p);
-  V.free(q);
-  return { st, y };
+  const r = statusOf(() => V.anchor(x, channels, rate, pass));
+  return r.st === 0 ? { st: 0, y: r.value } : { st: r.st };
 }
 
 let k = 0;
@@ -108,6 +104,34 @@ for (const v of WASM_VARIANTS) {
     const x = new Float32Array(1000);
     assert.equal(wasmAnchor(V, x, 1, 8000, 7000).st, nativeRun('anchor', x, [1, 8000, 7000]).st);
     assert.notEqual(wasmAnchor(V, x, 1, 8000, 7000).st, 0); // 9/7 · 7000 Hz is above 4 kHz Nyquist
+  });
+}
+
+for (const v of WASM_VARIANTS) {
+  test(`${v}: loudness matching through the loader scales by the core's gain, and a trap there is caught`, () => {
+    const V = variant(v);
+    const x = clip(48000, 2, 48000, 30);
+    const before = V.loudness(x, 2, 48000);
+    const { data, gainDb } = V.loudnessMatch(x, 2, 48000, -23);
+    // The core multiplies every sample by one float gain 10^(gainDb/20) (earshot.h).
+    const g = Math.fround(10 ** (gainDb / 20));
+    assert.ok(Math.abs(gainDb - (-23 - before)) < 1e-9, `gain ${gainDb} dB for ${before} LKFS`);
+    for (let i = 0; i < x.length; i += 997) assert.equal(data[i], Math.fround(x[i] * g), `sample ${i}`);
+    assert.ok(Math.abs(V.loudness(data, 2, 48000) - -23) < 0.01);
+    assert.throws(() => V.loudnessMatch(new Float32Array(4800), 1, 48000, -23), (e) => e.status !== undefined && /matching to -23 LKFS/.test(e.message));
+
+    // A trap inside a listening function (simulated: the export throws the
+    // RuntimeError a trap raises) marks the instance broken and is an Error
+    // naming the function; the next call gets a fresh instance and the same answer.
+    const fresh = loadVariant(V.module, { name: v });
+    const real = fresh.exports;
+    fresh.exports = { ...real, earshot_anchor: () => { throw new WebAssembly.RuntimeError('unreachable'); } };
+    assert.throws(() => fresh.anchor(x, 2, 48000, 3500), /trapped in earshot_anchor/);
+    assert.ok(fresh.broken);
+    const y = fresh.anchor(x, 2, 48000, 3500);
+    assert.equal(fresh.generation, 1);
+    assert.notEqual(fresh.exports, real, 'a new instance has its own exports');
+    assert.equal(firstDifference(y, V.anchor(x, 2, 48000, 3500)), -1);
   });
 }
 

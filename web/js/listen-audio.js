@@ -1,30 +1,10 @@
 // Stimulus preparation with the WebAssembly core on the page: rendering a
 // clip through an effect, the BS.1534-3 anchors (earshot_anchor), BS.1770-4
-// loudness matching (earshot_loudness_match), and the stimulus hash
-// (FNV-1a 64 over the float32 little-endian samples as played).
+// loudness matching (earshot_loudness_match); the stimulus hash is
+// js/test-signal.js's fnv1a64.
 // Audio here is interleaved Float32Array { data, channels, rate, frames }.
 
-// FNV-1a 64 over the bytes of `f32` (little-endian float32), as the results
-// format and `earshot verify` define it. 64-bit arithmetic in two 32-bit
-// halves: prime 2^40 + 0x1b3, offset basis 0xcbf29ce484222325.
-export function fnv1a64Float32(f32) {
-  const bytes = new Uint8Array(f32.buffer, f32.byteOffset, f32.byteLength);
-  const le = new Uint8Array(new Uint16Array([1]).buffer)[0] === 1;
-  let hi = 0xcbf29ce4 >>> 0;
-  let lo = 0x84222325 >>> 0;
-  for (let i = 0; i < bytes.length; i++) {
-    const b = le ? bytes[i] : bytes[(i & ~3) + 3 - (i & 3)];
-    lo = (lo ^ b) >>> 0;
-    const l0 = lo & 0xffff;
-    const l1 = lo >>> 16;
-    const t0 = l0 * 0x1b3;
-    const t1 = l1 * 0x1b3 + (t0 >>> 16);
-    const nhi = (Math.imul(hi, 0x1b3) + (t1 >>> 16) + (lo << 8)) >>> 0;
-    lo = (((t1 & 0xffff) << 16) | (t0 & 0xffff)) >>> 0;
-    hi = nhi;
-  }
-  return hi.toString(16).padStart(8, '0') + lo.toString(16).padStart(8, '0');
-}
+import { LISTENING_FUNCTIONS } from '../worklet/loader.js';
 
 export function interleave(planar) {
   const ch = planar.length;
@@ -48,62 +28,30 @@ export function planar(audio) {
   return out;
 }
 
-// The core's functions over one interleaved clip copied into wasm memory.
+// The core's whole-clip functions (worklet/loader.js, through its guarded
+// calls) over one interleaved clip.
 export class CoreAudio {
   constructor(variant) {
     this.v = variant;
-    const missing = ['earshot_loudness', 'earshot_loudness_match', 'earshot_anchor'].filter((f) => typeof variant.exports[f] !== 'function');
-    if (missing.length) throw new Error(`this WebAssembly build lacks ${missing.join(', ')}; rebuild it from the current sources`);
-  }
-
-  withClip(audio, extraBytes, fn) {
-    const v = this.v;
-    const bytes = audio.data.length * 4;
-    const p = v.malloc(bytes);
-    const q = v.malloc(Math.max(extraBytes, 16));
-    try {
-      v.refresh();
-      v.f32.set(audio.data, p >> 2);
-      return fn(p, q);
-    } finally {
-      if (!v.broken) { v.free(q); v.free(p); }
+    if (!variant.hasListening()) {
+      const missing = LISTENING_FUNCTIONS.filter((f) => typeof variant.exports[f] !== 'function');
+      throw new Error(`this WebAssembly build lacks ${missing.join(', ')}; rebuild it from the current sources`);
     }
   }
 
-  check(status, what) {
-    if (status !== 0) throw new Error(`${what}: ${this.v.statusText(status)}`);
-  }
-
   loudness(audio) {
-    return this.withClip(audio, 8, (p, q) => {
-      const e = this.v.exports;
-      this.check(e.earshot_loudness(p, audio.frames, audio.channels, audio.rate, 0, q), 'loudness');
-      this.v.refresh();
-      return new Float64Array(this.v.memory.buffer, q, 1)[0];
-    });
+    return this.v.loudness(audio.data, audio.channels, audio.rate);
   }
 
   // A copy of `audio` matched to target LKFS, and the gain applied.
   match(audio, target) {
-    return this.withClip(audio, 8, (p, q) => {
-      const e = this.v.exports;
-      this.check(e.earshot_loudness_match(p, audio.frames, audio.channels, audio.rate, 0, target, q),
-        `matching to ${target} LKFS`);
-      this.v.refresh();
-      const gainDb = new Float64Array(this.v.memory.buffer, q, 1)[0];
-      const data = this.v.f32.slice(p >> 2, (p >> 2) + audio.data.length);
-      return { audio: { ...audio, data }, gainDb };
-    });
+    const { data, gainDb } = this.v.loudnessMatch(audio.data, audio.channels, audio.rate, target);
+    return { audio: { ...audio, data }, gainDb };
   }
 
   // The low-pass anchor of `audio` with the pass band ending at `passband` Hz.
   anchor(audio, passband) {
-    return this.withClip(audio, audio.data.length * 4, (p, q) => {
-      const e = this.v.exports;
-      this.check(e.earshot_anchor(p, q, audio.frames, audio.channels, audio.rate, passband), `the ${passband} Hz anchor`);
-      this.v.refresh();
-      return { ...audio, data: this.v.f32.slice(q >> 2, (q >> 2) + audio.data.length) };
-    });
+    return { ...audio, data: this.v.anchor(audio.data, audio.channels, audio.rate, passband) };
   }
 
   // `audio` through an effect file at the clip's rate, each channel with a

@@ -10,7 +10,8 @@ import { loadSite, fetchBytes, siteUrl } from './site.js';
 import { Engine } from './engine.js';
 import { parseWav } from './wav.js';
 import { parseConfig } from './listen-config.js';
-import { CoreAudio, interleave, fnv1a64Float32 } from './listen-audio.js';
+import { CoreAudio, interleave } from './listen-audio.js';
+import { fnv1a64 } from './test-signal.js';
 import { plan, newSeed, newParticipantId } from './listen-order.js';
 import { SyncPlayer } from './listen-player.js';
 
@@ -106,7 +107,7 @@ async function prepare(test, site, engine, core, progress) {
       if (!Number.isFinite(lufs)) throw new Error(`item '${item.id}', condition '${c.id}' is silent (or shorter than 0.4 s) and cannot be loudness-matched`);
       const m = core.match(audio, test.targetLufs);
       stimuli.set(c.id, m.audio);
-      records.push({ item: item.id, condition: c.id, hash: `fnv1a64-float32le:${fnv1a64Float32(m.audio.data)}`, source, loudness_lufs: lufs });
+      records.push({ item: item.id, condition: c.id, hash: `fnv1a64-float32le:${fnv1a64(m.audio.data)}`, source, loudness_lufs: lufs });
     }
     out.set(item.id, stimuli);
   }

@@ -171,30 +171,15 @@ function peakOf(channels) {
 // build exports it — the same figure `earshot loudness` prints natively — else
 // by web/js/loudness.js. The Worker's memory is released with the Worker.
 function loudness(variant, channels, rate) {
-  const C = channels.length;
-  const n = channels[0].length;
   if (typeof variant.exports.earshot_loudness_lkfs === 'function') {
-    let p = 0;
+    let v = NaN;
     try {
-      p = variant.malloc(n * C * 4);
-    } catch {
-      p = 0;
+      v = variant.loudnessOfChannels(channels, rate);
+    } catch (e) {
+      if (variant.broken) throw e; // a trap is an error, not a reason to measure elsewhere
+      // No room in WebAssembly memory for a copy of a long file: the JS meter.
     }
-    if (p) {
-      try {
-        variant.refresh();
-        const f = variant.f32;
-        const base = p >> 2;
-        for (let c = 0; c < C; c++) {
-          const ch = channels[c];
-          for (let t = 0; t < n; t++) f[base + t * C + c] = ch[t];
-        }
-        const v = variant.call('earshot_loudness_lkfs', p, n, C, rate);
-        if (!Number.isNaN(v)) return { lkfs: v, by: 'core' };
-      } finally {
-        variant.free(p);
-      }
-    }
+    if (!Number.isNaN(v)) return { lkfs: v, by: 'core' };
   }
   return { lkfs: integratedLoudness(channels, rate), by: 'javascript' };
 }

@@ -119,7 +119,10 @@ export function testSignal(rate, seconds) {
 
 // FNV-1a 64 over the little-endian bytes of each float32 sample, as a
 // 16-digit hex string. 64-bit arithmetic in two 32-bit halves: the prime is
-// 2^40 + 0x1b3, so h · prime = h · 0x1b3 + (h << 40) mod 2^64.
+// 2^40 + 0x1b3, so h · prime = h · 0x1b3 + (h << 40) mod 2^64. The bytes are
+// read through a Uint8Array view, in the platform's order: little-endian on
+// every platform browsers and Node run on, as WebAssembly memory is. The one
+// hash of the page: self-check, stimuli of listening tests, results files.
 export function fnv1a64(samples) {
   const bytes = new Uint8Array(samples.buffer, samples.byteOffset, samples.byteLength);
   let hi = 0xcbf29ce4; // offset basis 14695981039346656037 = 0xcbf29ce484222325
