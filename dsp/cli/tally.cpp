@@ -228,7 +228,7 @@ struct Trial {
 // file's stimuli) asks for them, the trials lack them (docs/listening.md,
 // "Incomplete participants").
 struct Missing {
-  std::string where;                    // "<file>: line L, column C: <field>"
+  std::string field;                    // where it shows, e.g. "trials[2].ratings"
   std::string item;
   std::vector<std::string> conditions;  // MUSHRA: the ratings missing; ABX/A/B: empty (no answers for the item)
   bool whole_item = false;              // no trial at all for the item
@@ -290,12 +290,6 @@ const rapidjson::Value& get_array(const JsonDocument& file, const rapidjson::Val
   const rapidjson::Value& v = member(file, obj, path, key);
   if (!v.IsArray()) fail(file, path.empty() ? key : path + "." + key, "must be an array, not " + type_name(v));
   return v;
-}
-
-// "<file>: line L, column C: <field>" of the value `field` names.
-std::string field_where(const JsonDocument& d, const std::string& field) {
-  const std::string e = json_path_error(d, field, "");
-  return e.substr(0, e.size() - 2);  // without the ": " before the empty message
 }
 
 // Input text inside a message: escaped for the terminal (text_out.hpp).
@@ -451,7 +445,7 @@ Result load(const std::string& path) {
         if (have.count({t.item, c.id}) && !seen.count(c.id)) gap.conditions.push_back(c.id);
       if (!gap.conditions.empty()) {
         gap.item = t.item;
-        gap.where = field_where(D, p + ".ratings");
+        gap.field = p + ".ratings";
         r.missing.push_back(gap);
       }
     } else {
@@ -489,7 +483,7 @@ Result load(const std::string& path) {
       Missing gap;
       gap.item = st.item;
       gap.whole_item = true;
-      gap.where = field_where(D, "trials");
+      gap.field = "trials";
       r.missing.push_back(gap);
     }
     if (r.type == "mushra") r.missing[gap_of[st.item]].conditions.push_back(st.condition);
@@ -576,15 +570,20 @@ std::string missing_text(const Result& r, const Missing& m) {
 // docs/listening.md, "Incomplete participants": refused unless
 // --keep-incomplete. Every gap is named with its file, position, participant
 // and item.
+// At most kMaxGapsListed gaps are listed: each position costs a walk over the
+// file's values, and a 64 MiB file may hold millions of gaps.
+constexpr size_t kMaxGapsListed = 20;
 void refuse_incomplete(const std::vector<Result>& rs) {
   std::string list;
-  size_t n = 0;
+  size_t n = 0, gaps = 0;
   for (const Result& r : rs) {
     if (r.missing.empty()) continue;
     ++n;
     for (const Missing& m : r.missing)
-      list += "\n  " + m.where + ": participant " + quoted(r.participant) + " has " + missing_text(r, m);
+      if (++gaps <= kMaxGapsListed)
+        list += "\n  " + json_path_error(*r.doc, m.field, "participant " + quoted(r.participant) + " has " + missing_text(r, m));
   }
+  if (gaps > kMaxGapsListed) list += "\n  ... and " + std::to_string(gaps - kMaxGapsListed) + " more";
   if (n > 0)
     throw InputError(std::to_string(n) + (n == 1 ? " participant is" : " participants are") +
                      " incomplete (--keep-incomplete tallies what they answered):" + list);
@@ -790,6 +789,15 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
     std::vector<size_t> missing;  // per condition: ratings kept incomplete assessors lack
   };
   std::vector<Row> rows;
+  // Ratings kept assessors lack, by (item, condition); item "" is the total.
+  // (Item ids are never empty: get_string refuses empty strings.)
+  std::map<std::pair<std::string, std::string>, size_t> gaps;
+  for (const Result* r : kept)
+    for (const Missing& m : r->missing)
+      for (const std::string& c : m.conditions) {
+        ++gaps[{m.item, c}];
+        ++gaps[{std::string(), c}];
+      }
   auto gather = [&](const std::string* item) {
     Row row;
     row.scope = item ? *item : "all";
@@ -801,11 +809,8 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
             for (const auto& kv : t.ratings)
               if (kv.first == c.id) v.push_back(kv.second);
       row.sums.push_back(summarize(v, confidence));
-      size_t gaps = 0;
-      for (const Result* r : kept)
-        for (const Missing& m : r->missing)
-          if (!item || m.item == *item) gaps += size_t(std::count(m.conditions.begin(), m.conditions.end(), c.id));
-      row.missing.push_back(gaps);
+      auto g = gaps.find({item ? *item : std::string(), c.id});
+      row.missing.push_back(g == gaps.end() ? 0 : g->second);
     }
     rows.push_back(row);
   };

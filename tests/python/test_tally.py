@@ -596,3 +596,17 @@ def test_incomplete_abx_participant(tmp_path):
     per = {r["participant"]: r for r in rows}
     assert per["a"]["missing_items"] == "0" and per["b"]["missing_items"] == "1" and per[""]["missing_items"] == "1"
     assert per["b"]["trials"] == "4" and per[""]["trials"] == "12"
+
+
+def test_a_long_list_of_gaps_is_cut_short(tmp_path):
+    # 40 items listed in the stimuli, one answered: 39 gaps, the first 20 listed.
+    items = [f"i{k:02d}" for k in range(40)]
+    trial = mushra_trial("i00", {c["id"]: 50.0 for c in MUSHRA_CONDITIONS})
+    f = write(tmp_path, "sparse.json", doc("s", 1, [trial], items=items))
+    p = run("tally", f)
+    assert p.returncode == INPUT
+    listed = [ln for ln in p.stderr.splitlines() if "has no trial for item" in ln]
+    assert len(listed) == 20 and "item 'i01'" in listed[0] and "item 'i20'" in listed[-1]
+    assert "... and 19 more" in p.stderr
+    p = run("tally", f, "--keep-incomplete")
+    assert p.returncode == OK and "195 ratings missing" in p.stdout  # 39 items x 5 conditions
