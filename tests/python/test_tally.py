@@ -573,6 +573,7 @@ def test_incomplete_mushra_participants_kept_on_request(tmp_path):
     assert rows[("drums", "gru")]["missing"] == "1" and rows[("drums", "gru")]["n"] == "5"
     assert rows[("gtr", "gru")]["missing"] == "0"
     # SVG: the title says who is incomplete; each box carries its missing count.
+    assert len([ET.parse(f) for f in out_svg.glob("*.svg")]) == 1 + len(ITEMS)  # every one well-formed XML
     root = ET.parse(out_svg / "all.svg").getroot()
     assert "(6 assessors, 2 incomplete: 6 ratings missing)" in root.find(f"{SVG}title").text
     boxes = {g.get("data-condition"): g for g in root.iter(f"{SVG}g") if g.get("class") == "box"}
