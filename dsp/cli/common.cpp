@@ -213,7 +213,11 @@ double json_number(const rapidjson::Value& v, const char* key, double fallback) 
 std::string json_string(const rapidjson::Value& v, const char* key, const std::string& fallback) {
   if (!v.IsObject()) return fallback;
   auto it = v.FindMember(key);
-  return it != v.MemberEnd() && it->value.IsString() ? std::string(it->value.GetString()) : fallback;
+  // With its length: a NUL inside the text ("\u0000" in JSON) is kept, for the
+  // caller to escape, rather than cutting the text short.
+  return it != v.MemberEnd() && it->value.IsString()
+             ? std::string(it->value.GetString(), it->value.GetStringLength())
+             : fallback;
 }
 
 void apply_controls(Stream& s, const std::vector<std::string>& settings) {

@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "cli.hpp"
+#include "text_out.hpp"
 #include "native.hpp"
 
 namespace earshot {
@@ -47,7 +48,9 @@ std::string num(double v) {
 
 // Columns padded to their widest cell, two spaces in from the margin; the last
 // column unpadded. `right`: which columns align right (numbers).
-void print_table(const std::vector<std::vector<std::string>>& rows, const std::vector<bool>& right) {
+void print_table(std::vector<std::vector<std::string>> rows, const std::vector<bool>& right) {
+  for (auto& r : rows)
+    for (std::string& cell : r) cell = terminal_text(cell);
   std::vector<size_t> w(rows[0].size(), 0);
   for (const auto& r : rows)
     for (size_t c = 0; c < r.size(); ++c) w[c] = std::max(w[c], r[c].size());
@@ -156,8 +159,10 @@ int cmd_info(const std::vector<std::string>& argv) {
   const rapidjson::Value* credits = member(*effect, "credits");
   if (!credits) credits = &empty;
 
-  std::printf("%s\n", json_string(info, "title", "(untitled)").c_str());
-  auto row = [](const char* k, const std::string& v) { std::printf("  %-17s %s\n", k, v.c_str()); };
+  // Every value below may hold the effect file's own text: terminal_text
+  // escapes control characters (docs/cli.md, "Untrusted text").
+  std::printf("%s\n", terminal_text(json_string(info, "title", "(untitled)")).c_str());
+  auto row = [](const char* k, const std::string& v) { std::printf("  %-17s %s\n", k, terminal_text(v).c_str()); };
   row("file", path + ", " + file_size_text(path));
   if (const rapidjson::Value* au = member(*credits, "authors"); au && au->IsArray() && au->Size() > 0) {
     std::string list;

@@ -1,24 +1,35 @@
 // Checking JSON documents field by field (the site config, the listening test
-// definition): every refusal names the file and the field, e.g.
-// "demos/site.json: effects[1].controls.drive: must be a number, got a string".
+// definition): every refusal names the file, where the field's value starts
+// and the field, in the shape of the shared reader (dsp/core/json_reader.hpp), e.g.
+// "demos/site.json: line 12, column 17: effects[1].controls.drive: must be a number, got a string".
 #pragma once
 #include <algorithm>
 #include <cerrno>
 #include <cstring>
 #include <fstream>
 #include <iterator>
+#include <memory>
 #include <string>
 #include <vector>
 
 #include "cli.hpp"  // configures rapidjson
+#include "json_reader.hpp"
+#include "text_out.hpp"
 
 namespace earshot {
 namespace cli {
 
 struct Where {
   std::string file;
+  // The parsed document, once there is one: refusals then carry the line and
+  // column where the field's value starts (json_path_error).
+  std::shared_ptr<const JsonDocument> doc;
+  // Field and message may quote the document's text: escaped for the terminal
+  // here (text_out.hpp), before a NUL could cut the message short.
   [[noreturn]] void fail(const std::string& field, const std::string& msg) const {
-    throw InputError(file + ": " + (field.empty() ? "" : field + ": ") + msg);
+    const std::string f = terminal_text(field), m = terminal_lines(msg);
+    if (doc) throw InputError(json_field_error(*doc, json_find_path(*doc, field), f, m));
+    throw InputError(file + ": " + (f.empty() ? "" : f + ": ") + m);
   }
 };
 

@@ -19,6 +19,7 @@
 #include <vector>
 
 #include "cli.hpp"
+#include "text_out.hpp"
 
 #include <rapidjson/prettywriter.h>
 #include <rapidjson/stringbuffer.h>
@@ -322,17 +323,17 @@ int guarded(const char* name, int (*fn)(const std::vector<std::string>&), int ar
     return rc;
   } catch (const UsageError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name, e.what(), name);
+    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name, terminal_lines(e.what()).c_str(), name);
     return kExitUsage;
   } catch (const InputError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot %s: %s\n", name, e.what());
+    std::fprintf(stderr, "earshot %s: %s\n", name, terminal_lines(e.what()).c_str());
     return kExitInput;
   } catch (const std::bad_alloc&) {
     std::fprintf(stderr, "earshot %s: out of memory\n", name);
     return kExitInput;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot %s: internal error: %s\n", name, e.what());
+    std::fprintf(stderr, "earshot %s: internal error: %s\n", name, terminal_lines(e.what()).c_str());
     return kExitInput;
   }
 }

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "cli.hpp"
+#include "text_out.hpp"
 
 #ifndef EARSHOT_VERSION
 #define EARSHOT_VERSION "0.1.0"
@@ -102,18 +103,18 @@ int main(int argc, char** argv) {
     return rc;
   } catch (const UsageError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name.c_str(), e.what(),
+    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name.c_str(), terminal_lines(e.what()).c_str(),
                  name.c_str());
     return kExitUsage;
   } catch (const InputError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot %s: %s\n", name.c_str(), e.what());
+    std::fprintf(stderr, "earshot %s: %s\n", name.c_str(), terminal_lines(e.what()).c_str());
     return kExitInput;
   } catch (const std::bad_alloc&) {
     std::fprintf(stderr, "earshot %s: out of memory\n", name.c_str());
     return kExitInput;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot %s: internal error: %s\n", name.c_str(), e.what());
+    std::fprintf(stderr, "earshot %s: internal error: %s\n", name.c_str(), terminal_lines(e.what()).c_str());
     return kExitInput;
   }
 }

@@ -26,6 +26,7 @@
 #include <vector>
 
 #include "cli.hpp"  // first: it configures rapidjson
+#include "text_out.hpp"
 
 #include <rapidjson/error/en.h>
 #include <rapidjson/prettywriter.h>
@@ -136,19 +137,22 @@ struct Config {
   std::vector<EffectEntry> effects;
   std::vector<ClipEntry> clips;
   rapidjson::Document doc;
+  std::shared_ptr<const JsonDocument> source;  // as read, for the positions in refusals
   std::string listening;  // the listening test definition, relative to the config's folder
 };
 
 Config parse_config(const std::string& path) {
-  const Where w{path};
+  Where w{path, nullptr};
   const std::string text = read_text_file(path, "site config");
   Config c;
   {
     // The shared reader (dsp/core/json_reader.hpp): iterative, capped, strict.
-    JsonDocument parsed;
-    const std::string error = json_read(path, text.data(), text.size(), parsed);
+    auto parsed = std::make_shared<JsonDocument>();
+    const std::string error = json_read(path, text.data(), text.size(), *parsed);
     if (!error.empty()) throw InputError(error);
-    c.doc.Swap(parsed.doc);
+    c.doc.CopyFrom(parsed->doc, c.doc.GetAllocator());
+    c.source = parsed;
+    w.doc = parsed;
   }
   if (!c.doc.IsObject()) w.fail("", std::string("the config must be a JSON object, got ") + type_name(c.doc));
   const rapidjson::Value& root = c.doc;
@@ -431,9 +435,8 @@ int cmd_site(const std::vector<std::string>& argv) {
   if (!out_opt || out_opt->empty()) throw UsageError("missing --out DIR (where to write the site)");
   const std::string config_path = a.positional[0];
   const fs::path config_dir = fs::path(config_path).parent_path().empty() ? fs::path(".") : fs::path(config_path).parent_path();
-  const Where where{config_path};
-
   Config cfg = parse_config(config_path);
+  const Where where{config_path, cfg.source};
 
   fs::path assets;
   if (const std::string* p = a.last("--assets")) {
@@ -504,7 +507,7 @@ int cmd_site(const std::vector<std::string>& argv) {
     L.ref = reference_of(L.bytes, model_rate, file.string());
     if (L.ref.nonfinite > 0)
       std::fprintf(stderr, "earshot site: warning: %s: %u block(s) of the test signal gave non-finite output\n",
-                   fx.file.c_str(), L.ref.nonfinite);
+                   terminal_text(fx.file).c_str(), L.ref.nonfinite);
   }
 
   // Clips: readable, mono or stereo, WAV or FLAC (both the page and browsers read them).
@@ -715,7 +718,7 @@ int cmd_site(const std::vector<std::string>& argv) {
       std::printf("  listening tests: %zu in listening.json (%zu file(s) copied to listening/), page listen.html\n",
                   listening.tests.size(), listening.copies.size());
     for (size_t i = 0; i < cfg.effects.size(); ++i)
-      std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", cfg.effects[i].id.c_str(), loaded[i].ref.rate,
+      std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", terminal_text(cfg.effects[i].id).c_str(), loaded[i].ref.rate,
                   hex64(loaded[i].ref.output_hash).c_str(), hex64(loaded[i].ref.signal_hash).c_str());
     std::printf("serve it: tools/serve.sh %s\n", out.string().c_str());
   }
@@ -740,17 +743,17 @@ int earshot_cmd_site(int argc, char** argv) {
     return rc;
   } catch (const UsageError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot site: %s\nRun 'earshot site --help' for usage.\n", e.what());
+    std::fprintf(stderr, "earshot site: %s\nRun 'earshot site --help' for usage.\n", terminal_lines(e.what()).c_str());
     return kExitUsage;
   } catch (const InputError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot site: %s\n", e.what());
+    std::fprintf(stderr, "earshot site: %s\n", terminal_lines(e.what()).c_str());
     return kExitInput;
   } catch (const std::bad_alloc&) {
     std::fputs("earshot site: out of memory\n", stderr);
     return kExitInput;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot site: internal error: %s\n", e.what());
+    std::fprintf(stderr, "earshot site: internal error: %s\n", terminal_lines(e.what()).c_str());
     return kExitInput;
   }
 }

@@ -55,10 +55,11 @@ class Checker {
   ListeningPlan run() {
     const std::string text = read_text_file(w_.file, "listening test definition");
     // The shared reader (dsp/core/json_reader.hpp): iterative, capped, strict.
-    JsonDocument parsed;
-    const std::string error = json_read(w_.file, text.data(), text.size(), parsed);
+    auto parsed = std::make_shared<JsonDocument>();
+    const std::string error = json_read(w_.file, text.data(), text.size(), *parsed);
     if (!error.empty()) throw InputError(error);
-    rapidjson::Document& doc = parsed.doc;
+    w_.doc = parsed;
+    rapidjson::Document& doc = parsed->doc;
     if (!doc.IsObject()) w_.fail("", std::string("must be a JSON object, got ") + type_name(doc));
     only_fields(w_, "", doc, {"format", "version", "title", "tests"});
     const rapidjson::Value* format = member(doc, "format");

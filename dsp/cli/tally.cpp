@@ -22,6 +22,7 @@
 #include <exception>
 #include <fstream>
 #include <map>
+#include <memory>
 #include <new>
 #include <set>
 #include <sstream>
@@ -30,6 +31,7 @@
 
 #include "cli.hpp"  // first: it configures rapidjson
 #include "json_reader.hpp"
+#include "text_out.hpp"
 
 #include <rapidjson/error/en.h>
 
@@ -62,6 +64,8 @@ const char* kHelp =
     "                    (created if missing; files overwritten)\n"
     "  --confidence C    confidence level of the intervals, 0.5 .. 0.999 (default 0.95)\n"
     "  --no-screening    keep every assessor (the screening is still reported)\n"
+    "  --keep-incomplete tally participants who left items or ratings out (listed,\n"
+    "                    with what they lack; refused by default)\n"
     "  -h, --help        this text\n"
     "\n"
     "exit codes: 0 success, 2 bad command line, 3 unreadable, malformed or\n"
@@ -220,8 +224,19 @@ struct Trial {
   char x = 0;                                            // abx: 'a' or 'b', which one X was
   char answer = 0;                                       // abx: 'a'/'b'; ab: 'a'/'b'/'n' (no preference)
 };
+// Answers a participant did not give: the definition (as recorded in the
+// file's stimuli) asks for them, the trials lack them (docs/listening.md,
+// "Incomplete participants").
+struct Missing {
+  std::string field;                    // where it shows, e.g. "trials[2].ratings"
+  std::string item;
+  std::vector<std::string> conditions;  // MUSHRA: the ratings missing; ABX/A/B: empty (no answers for the item)
+  bool whole_item = false;              // no trial at all for the item
+};
 struct Result {
   std::string file;
+  std::shared_ptr<const JsonDocument> doc;  // as read, for the positions in refusals
+  std::vector<Missing> missing;
   std::string test_id, type;
   std::string participant;
   uint64_t seed = 0;
@@ -230,8 +245,12 @@ struct Result {
   std::vector<Trial> trials;
 };
 
-[[noreturn]] void fail(const std::string& file, const std::string& field, const std::string& what) {
-  throw InputError(file + ": " + field + ": " + what);
+// "<file>: line L, column C: <field>: <what>", the shared reader's shape
+// (dsp/core/json_reader.hpp), at the value `field` names.
+// Field and message may quote the file's text: escaped for the terminal here
+// (text_out.hpp), before a NUL could cut the message short.
+[[noreturn]] void fail(const JsonDocument& file, const std::string& field, const std::string& what) {
+  throw InputError(json_field_error(file, json_find_path(file, field), terminal_text(field), terminal_text(what)));
 }
 
 std::string type_name(const rapidjson::Value& v) {
@@ -243,14 +262,14 @@ std::string type_name(const rapidjson::Value& v) {
   return "an object";
 }
 
-const rapidjson::Value& member(const std::string& file, const rapidjson::Value& obj, const std::string& path,
+const rapidjson::Value& member(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path,
                                const char* key) {
   auto it = obj.FindMember(key);
   if (it == obj.MemberEnd()) fail(file, path.empty() ? key : path + "." + key, "missing");
   return it->value;
 }
 
-std::string get_string(const std::string& file, const rapidjson::Value& obj, const std::string& path, const char* key) {
+std::string get_string(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path, const char* key) {
   const rapidjson::Value& v = member(file, obj, path, key);
   const std::string field = path.empty() ? key : path + "." + key;
   if (!v.IsString()) fail(file, field, "must be a string, not " + type_name(v));
@@ -259,21 +278,22 @@ std::string get_string(const std::string& file, const rapidjson::Value& obj, con
   return s;
 }
 
-const rapidjson::Value& get_object(const std::string& file, const rapidjson::Value& obj, const std::string& path,
+const rapidjson::Value& get_object(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path,
                                    const char* key) {
   const rapidjson::Value& v = member(file, obj, path, key);
   if (!v.IsObject()) fail(file, path.empty() ? key : path + "." + key, "must be an object, not " + type_name(v));
   return v;
 }
 
-const rapidjson::Value& get_array(const std::string& file, const rapidjson::Value& obj, const std::string& path,
+const rapidjson::Value& get_array(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path,
                                   const char* key) {
   const rapidjson::Value& v = member(file, obj, path, key);
   if (!v.IsArray()) fail(file, path.empty() ? key : path + "." + key, "must be an array, not " + type_name(v));
   return v;
 }
 
-std::string quoted(const std::string& s) { return "'" + s + "'"; }
+// Input text inside a message: escaped for the terminal (text_out.hpp).
+std::string quoted(const std::string& s) { return "'" + terminal_text(s) + "'"; }
 
 bool valid_hash(const std::string& h) {
   const size_t colon = h.find(':');
@@ -307,144 +327,166 @@ Result load(const std::string& path) {
   const std::string text = read_text(path);
   // The shared reader (dsp/core/json_reader.hpp): iterative, depth and size
   // capped, NUL and trailing text refused, UTF-8 validated.
-  JsonDocument parsed;
-  const std::string error = json_read(path, text.data(), text.size(), parsed);
+  auto parsed = std::make_shared<JsonDocument>();
+  const std::string error = json_read(path, text.data(), text.size(), *parsed);
   if (!error.empty()) throw InputError(error);
-  const rapidjson::Document& doc = parsed.doc;
-  if (!doc.IsObject()) fail(path, "(top level)", "must be a JSON object, not " + type_name(doc));
+  const JsonDocument& D = *parsed;
+  const rapidjson::Document& doc = parsed->doc;
+  if (!doc.IsObject()) fail(D, "(top level)", "must be a JSON object, not " + type_name(doc));
   Result r;
   r.file = path;
-  const std::string format = get_string(path, doc, "", "format");
+  r.doc = parsed;
+  const std::string format = get_string(D, doc, "", "format");
   if (format != kFormat)
-    fail(path, "format", quoted(format) + " is not an earshot results file (expected " + quoted(kFormat) + ")");
-  const rapidjson::Value& ver = member(path, doc, "", "version");
-  if (!ver.IsInt()) fail(path, "version", "must be a whole number, not " + type_name(ver));
+    fail(D, "format", quoted(format) + " is not an earshot results file (expected " + quoted(kFormat) + ")");
+  const rapidjson::Value& ver = member(D, doc, "", "version");
+  if (!ver.IsInt()) fail(D, "version", "must be a whole number, not " + type_name(ver));
   if (ver.GetInt() != kVersion)
-    fail(path, "version", std::to_string(ver.GetInt()) + " is not supported (this tally reads version " +
+    fail(D, "version", std::to_string(ver.GetInt()) + " is not supported (this tally reads version " +
                               std::to_string(kVersion) + ")");
 
-  const rapidjson::Value& test = get_object(path, doc, "", "test");
-  r.test_id = get_string(path, test, "test", "id");
-  r.type = get_string(path, test, "test", "type");
+  const rapidjson::Value& test = get_object(D, doc, "", "test");
+  r.test_id = get_string(D, test, "test", "id");
+  r.type = get_string(D, test, "test", "type");
   if (r.type != "mushra" && r.type != "abx" && r.type != "ab")
-    fail(path, "test.type", quoted(r.type) + " is not a test type (mushra, abx or ab)");
+    fail(D, "test.type", quoted(r.type) + " is not a test type (mushra, abx or ab)");
 
-  const rapidjson::Value& who = get_object(path, doc, "", "participant");
-  r.participant = get_string(path, who, "participant", "id");
-  const rapidjson::Value& seed = member(path, who, "participant", "seed");
+  const rapidjson::Value& who = get_object(D, doc, "", "participant");
+  r.participant = get_string(D, who, "participant", "id");
+  const rapidjson::Value& seed = member(D, who, "participant", "seed");
   if (!seed.IsUint64() || seed.GetUint64() > 9007199254740991ull)
-    fail(path, "participant.seed", "must be a whole number from 0 to 2^53 - 1");
+    fail(D, "participant.seed", "must be a whole number from 0 to 2^53 - 1");
   r.seed = seed.GetUint64();
 
   // Conditions.
-  const rapidjson::Value& conds = get_array(path, doc, "", "conditions");
-  if (conds.Empty()) fail(path, "conditions", "must list at least one condition");
+  const rapidjson::Value& conds = get_array(D, doc, "", "conditions");
+  if (conds.Empty()) fail(D, "conditions", "must list at least one condition");
   std::set<std::string> cond_ids;
   int n_ref = 0, n_low = 0, n_mid = 0;
   for (rapidjson::SizeType i = 0; i < conds.Size(); ++i) {
     const std::string p = "conditions[" + std::to_string(i) + "]";
-    if (!conds[i].IsObject()) fail(path, p, "must be an object, not " + type_name(conds[i]));
+    if (!conds[i].IsObject()) fail(D, p, "must be an object, not " + type_name(conds[i]));
     Condition c;
-    c.id = get_string(path, conds[i], p, "id");
-    c.role = conds[i].HasMember("role") ? get_string(path, conds[i], p, "role") : "test";
+    c.id = get_string(D, conds[i], p, "id");
+    c.role = conds[i].HasMember("role") ? get_string(D, conds[i], p, "role") : "test";
     if (c.role != "reference" && c.role != "anchor-low" && c.role != "anchor-mid" && c.role != "test")
-      fail(path, p + ".role", quoted(c.role) + " is not a role (reference, anchor-low, anchor-mid or test)");
-    if (!cond_ids.insert(c.id).second) fail(path, p + ".id", quoted(c.id) + " is listed twice");
+      fail(D, p + ".role", quoted(c.role) + " is not a role (reference, anchor-low, anchor-mid or test)");
+    if (!cond_ids.insert(c.id).second) fail(D, p + ".id", quoted(c.id) + " is listed twice");
     n_ref += c.role == "reference";
     n_low += c.role == "anchor-low";
     n_mid += c.role == "anchor-mid";
     r.conditions.push_back(c);
   }
   if (n_ref > 1 || n_low > 1 || n_mid > 1)
-    fail(path, "conditions", "at most one condition may have each of the roles reference, anchor-low, anchor-mid");
+    fail(D, "conditions", "at most one condition may have each of the roles reference, anchor-low, anchor-mid");
   if (r.type == "mushra" && n_ref != 1)
-    fail(path, "conditions", "a mushra test needs exactly one condition with role 'reference' (the hidden reference)");
+    fail(D, "conditions", "a mushra test needs exactly one condition with role 'reference' (the hidden reference)");
 
   // Stimuli: one per (item, condition).
-  const rapidjson::Value& stims = get_array(path, doc, "", "stimuli");
-  if (stims.Empty()) fail(path, "stimuli", "must list at least one stimulus");
+  const rapidjson::Value& stims = get_array(D, doc, "", "stimuli");
+  if (stims.Empty()) fail(D, "stimuli", "must list at least one stimulus");
   std::set<std::pair<std::string, std::string>> have;
   std::map<std::string, int> per_item;
   for (rapidjson::SizeType i = 0; i < stims.Size(); ++i) {
     const std::string p = "stimuli[" + std::to_string(i) + "]";
-    if (!stims[i].IsObject()) fail(path, p, "must be an object, not " + type_name(stims[i]));
+    if (!stims[i].IsObject()) fail(D, p, "must be an object, not " + type_name(stims[i]));
     Stimulus s;
-    s.item = get_string(path, stims[i], p, "item");
-    s.condition = get_string(path, stims[i], p, "condition");
-    s.hash = get_string(path, stims[i], p, "hash");
+    s.item = get_string(D, stims[i], p, "item");
+    s.condition = get_string(D, stims[i], p, "condition");
+    s.hash = get_string(D, stims[i], p, "hash");
     if (!cond_ids.count(s.condition))
-      fail(path, p + ".condition", quoted(s.condition) + " is not one of the conditions");
+      fail(D, p + ".condition", quoted(s.condition) + " is not one of the conditions");
     if (!valid_hash(s.hash))
-      fail(path, p + ".hash", quoted(s.hash) + " is not ALGORITHM:HEX (e.g. fnv1a64-float32le:0123456789abcdef)");
+      fail(D, p + ".hash", quoted(s.hash) + " is not ALGORITHM:HEX (e.g. fnv1a64-float32le:0123456789abcdef)");
     if (!have.insert({s.item, s.condition}).second)
-      fail(path, p, "item " + quoted(s.item) + " has condition " + quoted(s.condition) + " twice");
+      fail(D, p, "item " + quoted(s.item) + " has condition " + quoted(s.condition) + " twice");
     ++per_item[s.item];
     r.stimuli.push_back(s);
   }
   if (r.type == "mushra")
     for (const auto& kv : per_item)
       if (kv.second > kMaxMushraStimuli)
-        fail(path, "stimuli", "item " + quoted(kv.first) + " has " + std::to_string(kv.second) +
+        fail(D, "stimuli", "item " + quoted(kv.first) + " has " + std::to_string(kv.second) +
                                   " stimuli; a MUSHRA trial has at most 12 (ITU-R BS.1534-3)");
 
   // Trials.
-  const rapidjson::Value& trials = get_array(path, doc, "", "trials");
-  if (trials.Empty()) fail(path, "trials", "holds no answers");
+  const rapidjson::Value& trials = get_array(D, doc, "", "trials");
+  if (trials.Empty()) fail(D, "trials", "holds no answers");
   std::set<std::string> rated_items;
   for (rapidjson::SizeType i = 0; i < trials.Size(); ++i) {
     const std::string p = "trials[" + std::to_string(i) + "]";
     const rapidjson::Value& tv = trials[i];
-    if (!tv.IsObject()) fail(path, p, "must be an object, not " + type_name(tv));
+    if (!tv.IsObject()) fail(D, p, "must be an object, not " + type_name(tv));
     Trial t;
-    t.item = get_string(path, tv, p, "item");
-    if (!per_item.count(t.item)) fail(path, p + ".item", quoted(t.item) + " has no stimuli");
+    t.item = get_string(D, tv, p, "item");
+    if (!per_item.count(t.item)) fail(D, p + ".item", quoted(t.item) + " has no stimuli");
     if (r.type == "mushra") {
       if (!rated_items.insert(t.item).second)
-        fail(path, p + ".item", quoted(t.item) + " was already rated in an earlier trial");
-      const rapidjson::Value& ratings = get_object(path, tv, p, "ratings");
+        fail(D, p + ".item", quoted(t.item) + " was already rated in an earlier trial");
+      const rapidjson::Value& ratings = get_object(D, tv, p, "ratings");
       std::set<std::string> seen;
       for (auto m = ratings.MemberBegin(); m != ratings.MemberEnd(); ++m) {
         const std::string cid(m->name.GetString(), m->name.GetStringLength());
         const std::string f = p + ".ratings." + cid;
-        if (!seen.insert(cid).second) fail(path, f, "rated twice");
+        if (!seen.insert(cid).second) fail(D, f, "rated twice");
         if (!have.count({t.item, cid}))
-          fail(path, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
-        if (!m->value.IsNumber()) fail(path, f, "must be a number, not " + type_name(m->value));
+          fail(D, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
+        if (!m->value.IsNumber()) fail(D, f, "must be a number, not " + type_name(m->value));
         const double v = m->value.GetDouble();
         if (!(v >= 0 && v <= 100)) {
           char buf[40];
           std::snprintf(buf, sizeof buf, "%.10g", v);
-          fail(path, f, std::string(buf) + " is outside the scale 0 .. 100");
+          fail(D, f, std::string(buf) + " is outside the scale 0 .. 100");
         }
         t.ratings.push_back({cid, v});
       }
+      Missing gap;
       for (const Condition& c : r.conditions)
-        if (have.count({t.item, c.id}) && !seen.count(c.id))
-          fail(path, p + ".ratings", "no rating for condition " + quoted(c.id) + ", which item " + quoted(t.item) +
-                                         " has");
+        if (have.count({t.item, c.id}) && !seen.count(c.id)) gap.conditions.push_back(c.id);
+      if (!gap.conditions.empty()) {
+        gap.item = t.item;
+        gap.field = p + ".ratings";
+        r.missing.push_back(gap);
+      }
     } else {
-      t.a = get_string(path, tv, p, "a");
-      t.b = get_string(path, tv, p, "b");
-      if (t.a == t.b) fail(path, p, "a and b are the same condition " + quoted(t.a));
+      t.a = get_string(D, tv, p, "a");
+      t.b = get_string(D, tv, p, "b");
+      if (t.a == t.b) fail(D, p, "a and b are the same condition " + quoted(t.a));
       for (const std::string* c : {&t.a, &t.b})
         if (!have.count({t.item, *c}))
-          fail(path, p + (c == &t.a ? ".a" : ".b"),
+          fail(D, p + (c == &t.a ? ".a" : ".b"),
                "item " + quoted(t.item) + " has no stimulus of condition " + quoted(*c));
-      const std::string answer = get_string(path, tv, p, "answer");
+      const std::string answer = get_string(D, tv, p, "answer");
       if (r.type == "abx") {
-        const std::string x = get_string(path, tv, p, "x");
-        if (x != "a" && x != "b") fail(path, p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
+        const std::string x = get_string(D, tv, p, "x");
+        if (x != "a" && x != "b") fail(D, p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
         if (answer != "a" && answer != "b")
-          fail(path, p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
+          fail(D, p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
         t.x = x[0];
         t.answer = answer[0];
       } else {
         if (answer != "a" && answer != "b" && answer != "none")
-          fail(path, p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
+          fail(D, p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
         t.answer = answer == "none" ? 'n' : answer[0];
       }
     }
     r.trials.push_back(t);
+  }
+  // Items of the stimuli without any trial, in the stimuli's order.
+  std::set<std::string> answered;
+  for (const Trial& t : r.trials) answered.insert(t.item);
+  std::map<std::string, size_t> gap_of;
+  for (const Stimulus& st : r.stimuli) {
+    if (answered.count(st.item)) continue;
+    if (!gap_of.count(st.item)) {
+      gap_of[st.item] = r.missing.size();
+      Missing gap;
+      gap.item = st.item;
+      gap.whole_item = true;
+      gap.field = "trials";
+      r.missing.push_back(gap);
+    }
+    if (r.type == "mushra") r.missing[gap_of[st.item]].conditions.push_back(st.condition);
   }
   return r;
 }
@@ -456,25 +498,25 @@ void check_consistent(const std::vector<Result>& rs) {
   for (const Result& r : rs) {
     auto it = participants.find(r.participant);
     if (it != participants.end())
-      fail(r.file, "participant.id", quoted(r.participant) + " also appears in " + it->second +
+      fail(*r.doc, "participant.id", quoted(r.participant) + " also appears in " + it->second +
                                          " (the same participant twice: remove one file)");
     participants[r.participant] = r.file;
     if (&r == &f) continue;
     if (r.test_id != f.test_id)
-      fail(r.file, "test.id", quoted(r.test_id) + " differs from " + quoted(f.test_id) + " in " + f.file +
+      fail(*r.doc, "test.id", quoted(r.test_id) + " differs from " + quoted(f.test_id) + " in " + f.file +
                                   " (results of different tests)");
     if (r.type != f.type)
-      fail(r.file, "test.type", quoted(r.type) + " differs from " + quoted(f.type) + " in " + f.file);
+      fail(*r.doc, "test.type", quoted(r.type) + " differs from " + quoted(f.type) + " in " + f.file);
     if (r.conditions.size() != f.conditions.size())
-      fail(r.file, "conditions", std::to_string(r.conditions.size()) + " conditions, but " + f.file + " has " +
+      fail(*r.doc, "conditions", std::to_string(r.conditions.size()) + " conditions, but " + f.file + " has " +
                                      std::to_string(f.conditions.size()));
     for (size_t i = 0; i < f.conditions.size(); ++i) {
       const std::string p = "conditions[" + std::to_string(i) + "]";
       if (r.conditions[i].id != f.conditions[i].id)
-        fail(r.file, p + ".id", quoted(r.conditions[i].id) + " differs from " + quoted(f.conditions[i].id) + " in " +
+        fail(*r.doc, p + ".id", quoted(r.conditions[i].id) + " differs from " + quoted(f.conditions[i].id) + " in " +
                                     f.file);
       if (r.conditions[i].role != f.conditions[i].role)
-        fail(r.file, p + ".role", quoted(r.conditions[i].role) + " differs from " + quoted(f.conditions[i].role) +
+        fail(*r.doc, p + ".role", quoted(r.conditions[i].role) + " differs from " + quoted(f.conditions[i].role) +
                                       " in " + f.file);
     }
     std::map<std::pair<std::string, std::string>, const Stimulus*> first;
@@ -485,18 +527,83 @@ void check_consistent(const std::vector<Result>& rs) {
       const std::string p = "stimuli[" + std::to_string(i) + "]";
       auto it2 = first.find({s.item, s.condition});
       if (it2 == first.end())
-        fail(r.file, p, "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " is not in " + f.file);
+        fail(*r.doc, p, "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " is not in " + f.file);
       if (it2->second->hash != s.hash)
-        fail(r.file, p + ".hash", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " has hash " +
+        fail(*r.doc, p + ".hash", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " has hash " +
                                       s.hash + " but " + f.file + " has " + it2->second->hash +
                                       " (the participants heard different audio)");
       seen.insert({s.item, s.condition});
     }
     for (const Stimulus& s : f.stimuli)
       if (!seen.count({s.item, s.condition}))
-        fail(r.file, "stimuli", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " of " + f.file +
+        fail(*r.doc, "stimuli", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " of " + f.file +
                                     " is missing");
   }
+}
+
+// ---- incomplete participants ------------------------------------------------------
+
+// How many ratings (MUSHRA) or items without answers (ABX, A/B) `r` lacks.
+size_t missing_count(const Result& r) {
+  size_t n = 0;
+  for (const Missing& m : r.missing) n += r.type == "mushra" ? m.conditions.size() : 1;
+  return n;
+}
+
+std::string quoted_list(const std::vector<std::string>& v) {
+  std::string o;
+  for (const std::string& x : v) o += (o.empty() ? "" : ", ") + quoted(x);
+  return o;
+}
+
+// One gap in words, e.g. "no rating for condition 'gru', which item 'keys' has".
+std::string missing_text(const Result& r, const Missing& m) {
+  if (r.type != "mushra") return "no answers for item " + quoted(m.item);
+  const std::string n = std::to_string(m.conditions.size());
+  if (m.whole_item)
+    return "no trial for item " + quoted(m.item) + " (" + n + (m.conditions.size() == 1 ? " rating" : " ratings") +
+           " missing: " + quoted_list(m.conditions) + ")";
+  return std::string("no rating for ") + (m.conditions.size() == 1 ? "condition " : "conditions ") +
+         quoted_list(m.conditions) + ", which item " + quoted(m.item) + " has";
+}
+
+// docs/listening.md, "Incomplete participants": refused unless
+// --keep-incomplete. Every gap is named with its file, position, participant
+// and item.
+// At most kMaxGapsListed gaps are listed: each position costs a walk over the
+// file's values, and a 64 MiB file may hold millions of gaps.
+constexpr size_t kMaxGapsListed = 20;
+void refuse_incomplete(const std::vector<Result>& rs) {
+  std::string list;
+  size_t n = 0, gaps = 0;
+  for (const Result& r : rs) {
+    if (r.missing.empty()) continue;
+    ++n;
+    for (const Missing& m : r.missing)
+      if (++gaps <= kMaxGapsListed)
+        list += "\n  " + json_path_error(*r.doc, m.field, "participant " + quoted(r.participant) + " has " + missing_text(r, m));
+  }
+  if (gaps > kMaxGapsListed) list += "\n  ... and " + std::to_string(gaps - kMaxGapsListed) + " more";
+  if (n > 0)
+    throw InputError(std::to_string(n) + (n == 1 ? " participant is" : " participants are") +
+                     " incomplete (--keep-incomplete tallies what they answered):" + list);
+}
+
+// With --keep-incomplete: who is incomplete and what they lack, before the statistics.
+void report_incomplete(const std::vector<Result>& rs) {
+  bool any = false;
+  for (const Result& r : rs) any = any || !r.missing.empty();
+  if (!any) return;
+  const char* unit = rs[0].type == "mushra" ? " rating" : " item";
+  std::printf("incomplete participants (kept: --keep-incomplete)\n");
+  for (const Result& r : rs) {
+    if (r.missing.empty()) continue;
+    const size_t k = missing_count(r);
+    std::printf("  %s (%s): %zu%s%s missing\n", terminal_text(r.participant).c_str(), terminal_text(r.file).c_str(),
+                k, unit, k == 1 ? "" : "s");
+    for (const Missing& m : r.missing) std::printf("    %s\n", missing_text(r, m).c_str());
+  }
+  std::printf("\n");
 }
 
 // ---- output helpers ----------------------------------------------------------------
@@ -510,16 +617,6 @@ std::string csv_num(double v) {
   return buf;
 }
 
-std::string csv_field(const std::string& s) {
-  if (s.find_first_of(",\"\n\r") == std::string::npos) return s;
-  std::string o = "\"";
-  for (char c : s) {
-    if (c == '"') o += '"';
-    o += c;
-  }
-  return o + "\"";
-}
-
 std::string p_text(double p) {
   char buf[32];
   if (p < 0.0001)
@@ -527,20 +624,6 @@ std::string p_text(double p) {
   else
     std::snprintf(buf, sizeof buf, "%.4f", p);
   return buf;
-}
-
-std::string xml_escape(const std::string& s) {
-  std::string o;
-  for (char c : s) {
-    switch (c) {
-      case '&': o += "&amp;"; break;
-      case '<': o += "&lt;"; break;
-      case '>': o += "&gt;"; break;
-      case '"': o += "&quot;"; break;
-      default: o += c;
-    }
-  }
-  return o;
 }
 
 std::string svg_num(double v) {
@@ -598,7 +681,7 @@ Screening screen(const Result& r, const std::string& ref_id, const std::string& 
 }
 
 std::string box_plot_svg(const std::string& title, const std::vector<Condition>& conds,
-                         const std::vector<Summary>& sums) {
+                         const std::vector<Summary>& sums, const std::vector<size_t>& missing) {
   const double left = 110, top = 50, plot_h = 400, slot = 90, box_w = 44;
   const double width = std::max(left + slot * double(conds.size()) + 30, 560.0), height = top + plot_h + 80;
   auto y = [&](double v) { return top + plot_h * (1 - v / 100); };
@@ -606,10 +689,10 @@ std::string box_plot_svg(const std::string& title, const std::vector<Condition>&
   o << "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" << svg_num(width) << "\" height=\"" << svg_num(height)
     << "\" viewBox=\"0 0 " << svg_num(width) << " " << svg_num(height) << "\" font-family=\"sans-serif\""
     << " font-size=\"12\">\n";
-  o << "<title>" << xml_escape(title) << "</title>\n";
+  o << "<title>" << xml_text(title) << "</title>\n";
   o << "<rect x=\"0\" y=\"0\" width=\"" << svg_num(width) << "\" height=\"" << svg_num(height)
     << "\" fill=\"#ffffff\"/>\n";
-  o << "<text x=\"" << svg_num(left) << "\" y=\"24\" font-size=\"15\" fill=\"#1b1b1b\">" << xml_escape(title)
+  o << "<text x=\"" << svg_num(left) << "\" y=\"24\" font-size=\"15\" fill=\"#1b1b1b\">" << xml_text(title)
     << "</text>\n";
   // The five labelled bands of the BS.1534 scale, lightly shaded in turn.
   static const char* bands[] = {"Bad", "Poor", "Fair", "Good", "Excellent"};
@@ -631,11 +714,12 @@ std::string box_plot_svg(const std::string& title, const std::vector<Condition>&
     const Summary& s = sums[i];
     const double cx = left + slot * (double(i) + 0.5);
     o << "<text x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 20) << "\" text-anchor=\"middle\""
-      << " fill=\"#1b1b1b\">" << xml_escape(conds[i].id) << "</text>\n";
+      << " fill=\"#1b1b1b\">" << xml_text(conds[i].id) << "</text>\n";
     o << "<text x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 36) << "\" text-anchor=\"middle\""
       << " fill=\"#5a5f5c\">n = " << s.n << "</text>\n";
     if (s.n == 0) continue;
-    o << "<g class=\"box\" data-condition=\"" << xml_escape(conds[i].id) << "\" data-n=\"" << s.n
+    o << "<g class=\"box\" data-condition=\"" << xml_text(conds[i].id) << "\" data-n=\"" << s.n
+      << "\" data-missing=\"" << missing[i]
       << "\" data-q1=\"" << csv_num(s.q1) << "\" data-median=\"" << csv_num(s.median) << "\" data-q3=\""
       << csv_num(s.q3) << "\" data-whisker-low=\"" << csv_num(s.whisker_lo) << "\" data-whisker-high=\""
       << csv_num(s.whisker_hi) << "\" data-mean=\"" << csv_num(s.mean) << "\">\n";
@@ -675,18 +759,19 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
   }
   const bool screening = !a.has("--no-screening");
   std::vector<const Result*> kept;
-  std::printf("MUSHRA test '%s': %zu results files\n\n", rs[0].test_id.c_str(), rs.size());
-  std::printf("post-screening (ITU-R BS.1534-3): hidden reference '%s', mid anchor %s%s\n", ref_id.c_str(),
-              mid_id.empty() ? "(none declared: that criterion is not applied)" : ("'" + mid_id + "'").c_str(),
+  std::printf("MUSHRA test '%s': %zu results files\n\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  report_incomplete(rs);
+  std::printf("post-screening (ITU-R BS.1534-3): hidden reference %s, mid anchor %s%s\n", quoted(ref_id).c_str(),
+              mid_id.empty() ? "(none declared: that criterion is not applied)" : quoted(mid_id).c_str(),
               screening ? "" : "; --no-screening: every assessor is kept");
   int n_excluded = 0;
   for (const Result& r : rs) {
     const Screening s = screen(r, ref_id, mid_id);
     if (s.excluded) {
       ++n_excluded;
-      std::printf("  %s %s (%s, seed %llu):\n", screening ? "excluded" : "would exclude", r.participant.c_str(),
-                  r.file.c_str(), (unsigned long long)r.seed);
-      for (const std::string& why : s.reasons) std::printf("    %s\n", why.c_str());
+      std::printf("  %s %s (%s, seed %llu):\n", screening ? "excluded" : "would exclude",
+                  terminal_text(r.participant).c_str(), terminal_text(r.file).c_str(), (unsigned long long)r.seed);
+      for (const std::string& why : s.reasons) std::printf("    %s\n", terminal_text(why).c_str());
     }
     if (!s.excluded || !screening) kept.push_back(&r);
   }
@@ -701,8 +786,18 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
   struct Row {
     std::string scope;  // "all" or an item
     std::vector<Summary> sums;
+    std::vector<size_t> missing;  // per condition: ratings kept incomplete assessors lack
   };
   std::vector<Row> rows;
+  // Ratings kept assessors lack, by (item, condition); item "" is the total.
+  // (Item ids are never empty: get_string refuses empty strings.)
+  std::map<std::pair<std::string, std::string>, size_t> gaps;
+  for (const Result* r : kept)
+    for (const Missing& m : r->missing)
+      for (const std::string& c : m.conditions) {
+        ++gaps[{m.item, c}];
+        ++gaps[{std::string(), c}];
+      }
   auto gather = [&](const std::string* item) {
     Row row;
     row.scope = item ? *item : "all";
@@ -714,6 +809,8 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
             for (const auto& kv : t.ratings)
               if (kv.first == c.id) v.push_back(kv.second);
       row.sums.push_back(summarize(v, confidence));
+      auto g = gaps.find({item ? *item : std::string(), c.id});
+      row.missing.push_back(g == gaps.end() ? 0 : g->second);
     }
     rows.push_back(row);
   };
@@ -722,33 +819,37 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
 
   const std::string ci_head = format_fixed(100 * confidence, 0) + "% CI (t)";
   for (const Row& row : rows) {
-    std::printf("%s\n", row.scope == "all" ? "all items" : ("item " + row.scope).c_str());
+    std::printf("%s\n", row.scope == "all" ? "all items" : ("item " + terminal_text(row.scope)).c_str());
     std::printf("  %-16s %-10s %5s %7s %17s %6s %7s %16s %12s\n", "condition", "role", "n", "mean", ci_head.c_str(),
                 "sd", "median", "IQR (Q1 .. Q3)", "range");
     for (size_t i = 0; i < conds.size(); ++i) {
       const Summary& s = row.sums[i];
-      if (s.n == 0) continue;
+      if (s.n == 0 && row.missing[i] == 0) continue;
       const std::string ci = std::isnan(s.ci_lo) ? "-" : num(s.ci_lo, 1) + " .. " + num(s.ci_hi, 1);
       const std::string iqr = num(s.q1, 1) + " .. " + num(s.q3, 1);
       const std::string range = num(s.min, 0) + " .. " + num(s.max, 0);
-      std::printf("  %-16s %-10s %5zu %7s %17s %6s %7s %16s %12s\n", conds[i].id.c_str(), conds[i].role.c_str(), s.n,
+      std::printf("  %-16s %-10s %5zu %7s %17s %6s %7s %16s %12s\n", terminal_text(conds[i].id).c_str(), conds[i].role.c_str(), s.n,
                   num(s.mean, 1).c_str(), ci.c_str(), num(s.sd, 1).c_str(), num(s.median, 1).c_str(), iqr.c_str(),
                   range.c_str());
     }
+    std::string gaps;
+    for (size_t i = 0; i < conds.size(); ++i)
+      if (row.missing[i] > 0) gaps += (gaps.empty() ? "" : ", ") + terminal_text(conds[i].id) + " " + std::to_string(row.missing[i]);
+    if (!gaps.empty()) std::printf("  ratings missing (incomplete assessors kept): %s\n", gaps.c_str());
     std::printf("\n");
   }
   if (kept.empty()) std::printf("no assessor is left after the post-screening: there are no statistics\n");
 
   if (const std::string* csv = a.last("--csv")) {
-    std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max\n";
+    std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max,missing\n";
     for (const Row& row : rows)
       for (size_t i = 0; i < conds.size(); ++i) {
         const Summary& s = row.sums[i];
-        if (s.n == 0) continue;
-        o += csv_field(row.scope) + "," + csv_field(conds[i].id) + "," + conds[i].role + "," + std::to_string(s.n) +
+        if (s.n == 0 && row.missing[i] == 0) continue;
+        o += csv_cell(row.scope) + "," + csv_cell(conds[i].id) + "," + conds[i].role + "," + std::to_string(s.n) +
              "," + csv_num(s.mean) + "," + csv_num(s.sd) + "," + csv_num(s.ci_lo) + "," + csv_num(s.ci_hi) + "," +
              csv_num(confidence) + "," + csv_num(s.median) + "," + csv_num(s.q1) + "," + csv_num(s.q3) + "," +
-             csv_num(s.min) + "," + csv_num(s.max) + "\n";
+             csv_num(s.min) + "," + csv_num(s.max) + "," + std::to_string(row.missing[i]) + "\n";
       }
     write_file(*csv, o);
   }
@@ -757,9 +858,20 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
     for (const Row& row : rows) {
       std::string name = row.scope == "all" ? "all" : "item-" + safe_name(row.scope);
       while (!names.insert(name).second) name += "_";
-      const std::string title = "MUSHRA " + rs[0].test_id + ": " + (row.scope == "all" ? "all items" : "item " + row.scope) +
-                                " (" + std::to_string(kept.size()) + " assessors)";
-      write_file(*dir + "/" + name + ".svg", box_plot_svg(title, conds, row.sums));
+      size_t gaps = 0, incomplete = 0;
+      for (size_t g : row.missing) gaps += g;
+      for (const Result* r : kept)
+        for (const Missing& m : r->missing)
+          if (row.scope == "all" || m.item == row.scope) {
+            ++incomplete;
+            break;
+          }
+      std::string title = "MUSHRA " + rs[0].test_id + ": " + (row.scope == "all" ? "all items" : "item " + row.scope) +
+                          " (" + std::to_string(kept.size()) + " assessors";
+      if (incomplete > 0)
+        title += ", " + std::to_string(incomplete) + " incomplete: " + std::to_string(gaps) +
+                 (gaps == 1 ? " rating" : " ratings") + " missing";
+      write_file(*dir + "/" + name + ".svg", box_plot_svg(title + ")", conds, row.sums, row.missing));
     }
   }
   return kExitOk;
@@ -801,24 +913,29 @@ int tally_abx(const std::vector<Result>& rs, const Args& a) {
     }
     for (const auto& kv : mine) per[kv.first].push_back({&r, kv.second});
   }
-  std::printf("ABX test '%s': %zu results files\n", rs[0].test_id.c_str(), rs.size());
+  std::printf("ABX test '%s': %zu results files\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  report_incomplete(rs);
   std::printf("p: one-tailed exact binomial test, P(X >= correct) with X ~ Binomial(trials, 1/2)\n\n");
   std::printf("  %-34s %-22s %8s %7s %9s\n", "pair", "participant", "correct", "trials", "p");
-  std::string csv = "pair_a,pair_b,participant,seed,correct,trials,p_one_tailed\n";
+  // missing_items: items without answers, of that participant or, pooled, of all (--keep-incomplete).
+  size_t all_missing = 0;
+  for (const Result& r : rs) all_missing += missing_count(r);
+  std::string csv = "pair_a,pair_b,participant,seed,correct,trials,p_one_tailed,missing_items\n";
   for (const auto& k : order) {
     const Count& c = pooled[k];
-    const std::string pair = k.first + " vs " + k.second;
+    const std::string pair = terminal_text(k.first) + " vs " + terminal_text(k.second);
     const double p = binom_half_upper(c.correct, c.trials);
     std::printf("  %-34s %-22s %8ld %7ld %9s\n", pair.c_str(), "(all)", c.correct, c.trials, p_text(p).c_str());
-    csv += csv_field(k.first) + "," + csv_field(k.second) + ",," + "," + std::to_string(c.correct) + "," +
-           std::to_string(c.trials) + "," + csv_num(p) + "\n";
+    csv += csv_cell(k.first) + "," + csv_cell(k.second) + ",," + "," + std::to_string(c.correct) + "," +
+           std::to_string(c.trials) + "," + csv_num(p) + "," + std::to_string(all_missing) + "\n";
     for (const auto& pr : per[k]) {
       const double pp = binom_half_upper(pr.second.correct, pr.second.trials);
-      std::printf("  %-34s %-22s %8ld %7ld %9s\n", "", pr.first->participant.c_str(), pr.second.correct,
+      std::printf("  %-34s %-22s %8ld %7ld %9s\n", "", terminal_text(pr.first->participant).c_str(), pr.second.correct,
                   pr.second.trials, p_text(pp).c_str());
-      csv += csv_field(k.first) + "," + csv_field(k.second) + "," + csv_field(pr.first->participant) + "," +
+      csv += csv_cell(k.first) + "," + csv_cell(k.second) + "," + csv_cell(pr.first->participant) + "," +
              std::to_string(pr.first->seed) + "," + std::to_string(pr.second.correct) + "," +
-             std::to_string(pr.second.trials) + "," + csv_num(pp) + "\n";
+             std::to_string(pr.second.trials) + "," + csv_num(pp) + "," + std::to_string(missing_count(*pr.first)) +
+             "\n";
     }
   }
   if (const std::string* f = a.last("--csv")) write_file(*f, csv);
@@ -847,19 +964,24 @@ int tally_ab(const std::vector<Result>& rs, const Args& a) {
       else
         ++c.second;
     }
-  std::printf("A/B preference test '%s': %zu results files\n", rs[0].test_id.c_str(), rs.size());
+  std::printf("A/B preference test '%s': %zu results files\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  report_incomplete(rs);
   std::printf("p: two-sided exact binomial test of the preferences against 1/2; 'no preference'\n"
               "answers are counted but left out of the test\n\n");
   std::printf("  %-34s %10s %10s %8s %9s\n", "pair (first vs second)", "prefer 1st", "prefer 2nd", "no pref",
               "p");
-  std::string csv = "pair_a,pair_b,prefer_a,prefer_b,no_preference,p_two_sided\n";
+  // missing_items: items without answers over all participants (--keep-incomplete).
+  size_t all_missing = 0;
+  for (const Result& r : rs) all_missing += missing_count(r);
+  std::string csv = "pair_a,pair_b,prefer_a,prefer_b,no_preference,p_two_sided,missing_items\n";
   for (const auto& k : order) {
     const Count& c = counts[k];
     const double p = binom_half_two_sided(c.first, c.first + c.second);
-    const std::string pair = k.first + " vs " + k.second;
+    const std::string pair = terminal_text(k.first) + " vs " + terminal_text(k.second);
     std::printf("  %-34s %10ld %10ld %8ld %9s\n", pair.c_str(), c.first, c.second, c.none, p_text(p).c_str());
-    csv += csv_field(k.first) + "," + csv_field(k.second) + "," + std::to_string(c.first) + "," +
-           std::to_string(c.second) + "," + std::to_string(c.none) + "," + csv_num(p) + "\n";
+    csv += csv_cell(k.first) + "," + csv_cell(k.second) + "," + std::to_string(c.first) + "," +
+           std::to_string(c.second) + "," + std::to_string(c.none) + "," + csv_num(p) + "," +
+           std::to_string(all_missing) + "\n";
   }
   if (const std::string* f = a.last("--csv")) write_file(*f, csv);
   return kExitOk;
@@ -870,7 +992,8 @@ int cmd_tally(const std::vector<std::string>& argv) {
                                    {"--csv", true},
                                    {"--svg", true},
                                    {"--confidence", true},
-                                   {"--no-screening", false}});
+                                   {"--no-screening", false},
+                                   {"--keep-incomplete", false}});
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
     return kExitOk;
@@ -881,6 +1004,7 @@ int cmd_tally(const std::vector<std::string>& argv) {
   std::vector<Result> rs;
   for (const std::string& p : a.positional) rs.push_back(load(p));
   check_consistent(rs);
+  if (!a.has("--keep-incomplete")) refuse_incomplete(rs);
   if (rs[0].type != "mushra") {
     if (a.has("--svg")) throw UsageError("--svg draws MUSHRA box plots; these are " + rs[0].type + " results");
     if (a.has("--no-screening")) throw UsageError("--no-screening applies to MUSHRA results only");
@@ -915,17 +1039,17 @@ int earshot_cmd_tally(int argc, char** argv) {
     return rc;
   } catch (const UsageError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot tally: %s\nRun 'earshot tally --help' for usage.\n", e.what());
+    std::fprintf(stderr, "earshot tally: %s\nRun 'earshot tally --help' for usage.\n", terminal_lines(e.what()).c_str());
     return kExitUsage;
   } catch (const InputError& e) {
     std::fflush(stdout);
-    std::fprintf(stderr, "earshot tally: %s\n", e.what());
+    std::fprintf(stderr, "earshot tally: %s\n", terminal_lines(e.what()).c_str());
     return kExitInput;
   } catch (const std::bad_alloc&) {
     std::fputs("earshot tally: out of memory\n", stderr);
     return kExitInput;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot tally: internal error: %s\n", e.what());
+    std::fprintf(stderr, "earshot tally: internal error: %s\n", terminal_lines(e.what()).c_str());
     return kExitInput;
   }
 }

@@ -16,6 +16,7 @@
 #include <vector>
 
 #include "cli.hpp"  // first: it configures rapidjson
+#include "text_out.hpp"
 
 #include <rapidjson/stringbuffer.h>
 #include <rapidjson/writer.h>
@@ -342,7 +343,8 @@ int cmd_verify(const std::vector<std::string>& argv) {
     return pass ? kExitOk : kExitCheckFailed;
   }
 
-  std::printf("%s (%s)\n", title.c_str(), path.c_str());
+  // The title is the effect file's own text (docs/cli.md, "Untrusted text").
+  std::printf("%s (%s)\n", terminal_text(title).c_str(), terminal_text(path).c_str());
   std::printf("signal   %s s at %.0f Hz (%zu samples): %s; hash %s\n", format_fixed(seconds, 2).c_str(), rate,
               x.size(), kTestSignalSummary, hex64(signal_hash).c_str());
   std::printf("blocks   512, 1, 65536, irregular (1 .. 1500); controls at their defaults\n");

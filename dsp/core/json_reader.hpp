@@ -219,13 +219,60 @@ inline JsonPosition json_value_position(const JsonDocument& d, const rapidjson::
   return json_position(d.text.data(), d.text.size(), found);
 }
 
-// "<name>: <path> (line L, column C): <message>", e.g.
-// "demos/site.json: effects[1].controls.drive (line 12, column 17): must be a number, got a string".
+// "<name>: line L, column C: <path>: <message>", the shape of every reader
+// error above, e.g.
+// "demos/site.json: line 12, column 17: effects[1].controls.drive: must be a number, got a string".
 inline std::string json_field_error(const JsonDocument& d, const rapidjson::Value* v,
                                     const std::string& path, const std::string& message) {
   JsonPosition p = json_value_position(d, v);
-  return d.name + ": " + path + " (line " + std::to_string(p.line) + ", column " +
-         std::to_string(p.column) + "): " + message;
+  return d.name + ": line " + std::to_string(p.line) + ", column " + std::to_string(p.column) + ": " +
+         (path.empty() ? "" : path + ": ") + message;
+}
+
+// The value a field path such as "tests[0].items[2].stimuli.ref" names in
+// `d`, or the deepest value on the way when the rest is absent (a missing
+// field is reported at its parent). A key holding '.' or '[' is matched
+// whole: at each object the longest member name that the path continues
+// with is taken.
+inline const rapidjson::Value* json_find_path(const JsonDocument& d, const std::string& path) {
+  const rapidjson::Value* v = &d.doc;
+  std::size_t i = 0;
+  while (i < path.size()) {
+    if (path[i] == '[') {
+      const std::size_t close = path.find(']', i);
+      if (close == std::string::npos || !v->IsArray()) break;
+      std::size_t k = 0;
+      bool digits = close > i + 1;
+      for (std::size_t j = i + 1; j < close; ++j) {
+        if (path[j] < '0' || path[j] > '9' || k > 100000000) digits = false;
+        else k = k * 10 + std::size_t(path[j] - '0');
+      }
+      if (!digits || k >= v->Size()) break;
+      v = &(*v)[rapidjson::SizeType(k)];
+      i = close + 1;
+      continue;
+    }
+    if (path[i] == '.') ++i;
+    if (!v->IsObject()) break;
+    const rapidjson::Value* best = nullptr;
+    std::size_t best_len = 0;
+    for (const auto& m : v->GetObject()) {
+      const std::size_t n = m.name.GetStringLength();
+      if (n < best_len || path.compare(i, n, m.name.GetString(), n) != 0) continue;
+      if (i + n < path.size() && path[i + n] != '.' && path[i + n] != '[') continue;
+      best = &m.value;
+      best_len = n;
+    }
+    if (!best) break;
+    v = best;
+    i += best_len;
+  }
+  return v;
+}
+
+// json_field_error at the value `path` names (see json_find_path).
+inline std::string json_path_error(const JsonDocument& d, const std::string& path, const std::string& message) {
+  return json_field_error(d, json_find_path(d, path), path, message);
 }
 
 }  // namespace earshot

@@ -63,7 +63,7 @@ const TCN = '../fixtures/tcn-film.nfx';
 const BAD = [
   ['not-json', '{"title": "x",\n "effects": [}', /not-json\.json: line 2, column 14/],
   ['not-object', '[1, 2]', /the config must be a JSON object, got an array/],
-  ['no-title', { effects: [{ file: FX }] }, /no-title\.json: title: missing/],
+  ['no-title', { effects: [{ file: FX }] }, /no-title\.json: line 1, column 1: title: missing/],
   ['empty-title', { title: '', effects: [{ file: FX }] }, /title: is empty/],
   ['unknown-top', { title: 't', effects: [{ file: FX }], efects: [] }, /unknown field 'efects' \(allowed: version, title,/],
   ['version', { version: 2, title: 't', effects: [{ file: FX }] }, /version: must be 1/],

@@ -179,6 +179,8 @@ for (const [name, def, message, pageField] of BAD) {
     const r = build(name, def);
     assert.equal(r.status, 3, `exit ${r.status}: ${r.stderr}`);
     assert.match(r.stderr, new RegExp(`^earshot site: ${r.defPath.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}: `));
+    // Every refusal reads like the shared JSON reader's: file, line and column, field.
+    assert.match(r.stderr, new RegExp(`^earshot site: ${r.defPath.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}: line \\d+, column \\d+: `));
     assert.match(r.stderr, message);
     assert.equal(existsSync(r.out), false, 'nothing is written for a refused definition');
     if (pageField) {
@@ -196,7 +198,7 @@ test('a listening field that names no file, is not a string, or is misspelt is r
   writeFileSync(r.configPath, JSON.stringify(config));
   r = run(earshotBin(), ['site', r.configPath, '--out', join(DIR, 'missing-2')]);
   assert.equal(r.status, 3);
-  assert.match(r.stderr, /missing\.site\.json: listening: no listening test definition at '.*nowhere\.json'/);
+  assert.match(r.stderr, /missing\.site\.json: line \d+, column \d+: listening: no listening test definition at '.*nowhere\.json'/);
   config.listening = 3;
   writeFileSync(join(DIR, 'missing.site.json'), JSON.stringify(config));
   r = run(earshotBin(), ['site', join(DIR, 'missing.site.json'), '--out', join(DIR, 'missing-2')]);

@@ -44,6 +44,18 @@ TEST_CASE("json_reader: field errors name the path and where the value starts") 
   REQUIRE(json_read("site.json", text.data(), text.size(), d) == "");
   const rapidjson::Value& v = d.doc["effects"][1]["controls"]["drive"];
   CHECK(earshot::json_field_error(d, &v, "effects[1].controls.drive", "must be a number, got a string") ==
-        "site.json: effects[1].controls.drive (line 3, column 36): must be a number, got a string");
+        "site.json: line 3, column 36: effects[1].controls.drive: must be a number, got a string");
   CHECK(earshot::json_value_position(d, &d.doc["effects"][1]).column == 3);
+  // A path finds its value; a missing field is reported where its parent starts
+  // (the "{" after `"controls": ` is character 16 of line 3);
+  // a key holding '.' is matched whole.
+  CHECK(earshot::json_find_path(d, "effects[1].controls.drive") == &v);
+  CHECK(earshot::json_path_error(d, "effects[1].controls.tone", "missing") ==
+        "site.json: line 3, column 16: effects[1].controls.tone: missing");
+  CHECK(earshot::json_find_path(d, "effects[7]") == &d.doc["effects"]);
+  JsonDocument k;
+  std::string keyed = "{\"a.b\": {\"c\": 1}, \"a\": {\"b\": 2}}";
+  REQUIRE(json_read("k.json", keyed.data(), keyed.size(), k) == "");
+  CHECK(earshot::json_find_path(k, "a.b.c") == &k.doc["a.b"]["c"]);
+  CHECK(earshot::json_find_path(k, "a.b") == &k.doc["a.b"]);
 }

@@ -491,3 +491,123 @@ def test_mixed_types_and_usage_errors(tmp_path):
     assert p.returncode == INPUT and "is a folder" in p.stderr
     p = run("tally", m, "--svg", m)
     assert p.returncode == USAGE and "not a folder" in p.stderr
+
+
+# ---- positions and incomplete participants ------------------------------------------------------
+
+def line_col(text, offset):
+    """1-based line and column in characters, as dsp/core/json_reader.hpp counts them."""
+    return text.count("\n", 0, offset) + 1, offset - (text.rfind("\n", 0, offset) + 1) + 1
+
+
+def test_field_errors_give_file_line_column_and_field(tmp_path):
+    # "<file>: line L, column C: <field>: <what>", the shared reader's shape, at the
+    # place the value starts (docs/listening.md).
+    d = base_mushra()
+    d["trials"][1]["ratings"]["lstm"] = 101
+    f = write(tmp_path, "range.json", d)
+    text = f.read_text()
+    start = text.index('"trials"')
+    for _ in range(2):
+        start = text.index('"ratings"', start) + 1
+    off = text.index('"lstm": 101', start) + len('"lstm": ')
+    line, col = line_col(text, off)
+    p = run("tally", f)
+    assert p.returncode == INPUT
+    assert f"{f}: line {line}, column {col}: trials[1].ratings.lstm: 101 is outside the scale 0 .. 100" in p.stderr, \
+        p.stderr
+    # A missing field is placed at the object that lacks it.
+    d = base_mushra()
+    del d["participant"]["id"]
+    f = write(tmp_path, "noid.json", d)
+    text = f.read_text()
+    line, col = line_col(text, text.index("{", text.index('"participant"')))
+    p = run("tally", f)
+    assert p.returncode == INPUT
+    assert f"{f}: line {line}, column {col}: participant.id: missing" in p.stderr, p.stderr
+
+
+def incomplete_panel(tmp_path):
+    docs = mushra_panel(5)
+    del docs["p2"]["trials"][3]                     # skipped item 'drums' (its stimuli are listed)
+    del docs["p3"]["trials"][2]["ratings"]["gru"]   # skipped one slider of item 'keys'
+    files = [write(tmp_path, f"{pid}.json", d) for pid, d in docs.items()]
+    return docs, files
+
+
+def test_incomplete_mushra_participants_are_refused_by_default(tmp_path):
+    docs, files = incomplete_panel(tmp_path)
+    p = run("tally", *files)
+    assert p.returncode == INPUT, (p.stdout, p.stderr)
+    assert p.stdout == ""
+    assert "2 participants are incomplete" in p.stderr and "--keep-incomplete" in p.stderr
+    t2 = (tmp_path / "p2.json").read_text()
+    line, col = line_col(t2, t2.index("[", t2.index('"trials"')))
+    assert (f"p2.json: line {line}, column {col}: trials: participant 'p2' has no trial for item 'drums' "
+            "(5 ratings missing: 'reference', 'lp3500', 'lp7000', 'lstm', 'gru')") in p.stderr, p.stderr
+    t3 = (tmp_path / "p3.json").read_text()
+    off = t3.index('"trials"')
+    for _ in range(3):
+        off = t3.index('"ratings"', off) + 1
+    line, col = line_col(t3, t3.index("{", off))
+    assert (f"p3.json: line {line}, column {col}: trials[2].ratings: participant 'p3' has no rating for "
+            "condition 'gru', which item 'keys' has") in p.stderr, p.stderr
+
+
+def test_incomplete_mushra_participants_kept_on_request(tmp_path):
+    docs, files = incomplete_panel(tmp_path)
+    out_csv, out_svg = tmp_path / "s.csv", tmp_path / "svg"
+    p = run("tally", *files, "--keep-incomplete", "--csv", out_csv, "--svg", out_svg)
+    assert p.returncode == OK, p.stderr
+    assert "incomplete participants (kept: --keep-incomplete)" in p.stdout
+    assert "p2 (" in p.stdout and "5 ratings missing" in p.stdout
+    assert "p3 (" in p.stdout and "1 rating missing" in p.stdout
+    assert "ratings missing (incomplete assessors kept): reference 1, lp3500 1, lp7000 1, lstm 1, gru 2" in p.stdout
+    keep = ["p1", "p2", "p3", "p4", "p5", "p6"]  # p-ref and p-mid are screened out (BS.1534-3)
+    rows = {(r["scope"], r["condition"]): r for r in read_csv(out_csv)}
+    for cond, missing in [("reference", 1), ("gru", 2), ("lstm", 1)]:
+        got = np.array([t["ratings"][cond] for pid in keep for t in docs[pid]["trials"] if cond in t["ratings"]])
+        r = rows[("all", cond)]
+        assert int(r["n"]) == len(got) == 24 - missing and int(r["missing"]) == missing
+        assert close(r["mean"], float(np.mean(got)))  # NumPy over the ratings given
+    assert rows[("drums", "gru")]["missing"] == "1" and rows[("drums", "gru")]["n"] == "5"
+    assert rows[("gtr", "gru")]["missing"] == "0"
+    # SVG: the title says who is incomplete; each box carries its missing count.
+    assert len([ET.parse(f) for f in out_svg.glob("*.svg")]) == 1 + len(ITEMS)  # every one well-formed XML
+    root = ET.parse(out_svg / "all.svg").getroot()
+    assert "(6 assessors, 2 incomplete: 6 ratings missing)" in root.find(f"{SVG}title").text
+    boxes = {g.get("data-condition"): g for g in root.iter(f"{SVG}g") if g.get("class") == "box"}
+    assert boxes["gru"].get("data-missing") == "2" and boxes["lstm"].get("data-missing") == "1"
+    title = ET.parse(out_svg / "item-drums.svg").getroot().find(f"{SVG}title").text
+    assert "(6 assessors, 1 incomplete: 5 ratings missing)" in title
+
+
+def test_incomplete_abx_participant(tmp_path):
+    full = abx_trials("gtr", "reference", "lstm", 3, 4, 0) + abx_trials("bass", "reference", "lstm", 2, 4, 1)
+    a = write(tmp_path, "a.json", doc("a", 1, full, "abx", items=["gtr", "bass"]))
+    b = write(tmp_path, "b.json", doc("b", 2, full[:4], "abx", items=["gtr", "bass"]))  # never answered 'bass'
+    p = run("tally", a, b)
+    assert p.returncode == INPUT
+    assert "1 participant is incomplete" in p.stderr
+    assert "b.json: line" in p.stderr and "trials: participant 'b' has no answers for item 'bass'" in p.stderr
+    p = run("tally", a, b, "--keep-incomplete", "--csv", tmp_path / "x.csv")
+    assert p.returncode == OK, p.stderr
+    assert "b (" in p.stdout and "1 item missing" in p.stdout
+    rows = read_csv(tmp_path / "x.csv")
+    per = {r["participant"]: r for r in rows}
+    assert per["a"]["missing_items"] == "0" and per["b"]["missing_items"] == "1" and per[""]["missing_items"] == "1"
+    assert per["b"]["trials"] == "4" and per[""]["trials"] == "12"
+
+
+def test_a_long_list_of_gaps_is_cut_short(tmp_path):
+    # 40 items listed in the stimuli, one answered: 39 gaps, the first 20 listed.
+    items = [f"i{k:02d}" for k in range(40)]
+    trial = mushra_trial("i00", {c["id"]: 50.0 for c in MUSHRA_CONDITIONS})
+    f = write(tmp_path, "sparse.json", doc("s", 1, [trial], items=items))
+    p = run("tally", f)
+    assert p.returncode == INPUT
+    listed = [ln for ln in p.stderr.splitlines() if "has no trial for item" in ln]
+    assert len(listed) == 20 and "item 'i01'" in listed[0] and "item 'i20'" in listed[-1]
+    assert "... and 19 more" in p.stderr
+    p = run("tally", f, "--keep-incomplete")
+    assert p.returncode == OK and "195 ratings missing" in p.stdout  # 39 items x 5 conditions
