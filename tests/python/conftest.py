@@ -1,9 +1,10 @@
-"""Shared fixtures for the Python tests: the package on sys.path, the native core
-(skipped with a reason when it is not built), a deterministic test signal, and the
-parity report that test_parity*.py fills (printed at the end, written to
-build/parity-report.txt)."""
+"""Shared fixtures for the Python tests: the package on sys.path, the build folder
+(BUILD: $EARSHOT_BUILD, else build/native of this checkout) and need_built(), the
+native core, a deterministic test signal, and the parity report that
+test_parity*.py fills (printed at the end, written to build/parity-report.txt)."""
 
 import os
+import pathlib
 import sys
 
 import pytest
@@ -17,14 +18,34 @@ from earshot.signals import programme as make_signal  # noqa: E402,F401
 REPORT_PATH = os.path.join(ROOT, "build", "parity-report.txt")
 _report_rows = []
 
+BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD") or os.path.join(ROOT, "build", "native"))
+
+
+def missing_build(message):
+    """A build the tests need is missing: a skip on a developer's machine that has
+    not built it, a failure when EARSHOT_BUILD or CI is set (tools/test.sh and CI
+    build first, so there a missing build is a defect, never a reason to skip)."""
+    message += " (build it as DEVELOPERS.md says, or set EARSHOT_BUILD to the build folder)"
+    if os.environ.get("EARSHOT_BUILD") or os.environ.get("CI"):
+        pytest.fail(message)
+    pytest.skip(message)
+
+
+def need_built(path):
+    """Returns `path` (a program of the build) when it exists, else missing_build()."""
+    path = pathlib.Path(path)
+    if not path.is_file():
+        missing_build(f"{path} is not built")
+    return path
+
 
 @pytest.fixture(scope="session")
 def core():
-    """The native core's ctypes library, or a skip naming the missing path."""
+    """The native core's ctypes library; missing_build() naming the path when absent."""
     try:
         return earshot.native.library()
     except OSError as e:
-        pytest.skip(f"native core not available: {e}")
+        missing_build(f"native core not available: {e}")
 
 
 @pytest.fixture(scope="session")

@@ -5,8 +5,8 @@ mix, gains), verify's hashes against an independent FNV-1a and its test signal
 against a NumPy re-derivation, bench's figures for consistency, and a clear error
 with a documented exit code for every bad argument and file.
 
-Drives $EARSHOT_BUILD/earshot (default /work/main/build/native); skipped when it is
-not built. Effect files are written here with struct/json/numpy (dsp/FORMAT.md
+Drives $EARSHOT_BUILD/earshot (default build/native; conftest.need_built says
+what happens when it is missing). Effect files are written here with struct/json/numpy (dsp/FORMAT.md
 container), audio with scipy.io.wavfile and the `wave` module, FLAC/AIFF read back
 through sox.
 """
@@ -26,7 +26,7 @@ from scipy import signal
 from scipy.io import wavfile
 from scipy.optimize import minimize_scalar
 
-BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD", "/work/main/build/native"))
+from conftest import BUILD, need_built  # noqa: E402
 EARSHOT = BUILD / "earshot"
 
 # Exit codes documented in docs/cli.md and `earshot --help`.
@@ -35,8 +35,7 @@ OK, CHECK_FAILED, USAGE, INPUT = 0, 1, 2, 3
 
 @pytest.fixture(scope="module", autouse=True)
 def _built():
-    if not EARSHOT.is_file():
-        pytest.skip(f"{EARSHOT} is not built (set EARSHOT_BUILD to the build folder)")
+    need_built(EARSHOT)
 
 
 def run(*args, check_rc=None):

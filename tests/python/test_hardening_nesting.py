@@ -16,7 +16,8 @@ import subprocess
 import pytest
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
-BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD", ROOT / "build" / "native"))
+from conftest import BUILD, need_built  # noqa: E402
+
 EARSHOT = BUILD / "earshot"
 INPUT = 3  # docs/cli.md
 DEEP = "[" * 1_000_000
@@ -25,8 +26,7 @@ MESSAGE = "line 1, column 129: nesting deeper than 128 levels"
 
 @pytest.fixture(scope="module", autouse=True)
 def _built():
-    if not EARSHOT.is_file():
-        pytest.fail(f"{EARSHOT} is not built (set EARSHOT_BUILD to the build folder)")
+    need_built(EARSHOT)
 
 
 def run(*args):

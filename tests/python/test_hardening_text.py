@@ -4,7 +4,7 @@ untrusted text on its way out of the CLI (dsp/cli/text_out.hpp, docs/cli.md
 with Python's csv module (RFC 4180), terminal output free of control characters,
 SVG parsed by Python's xml.etree.ElementTree (XML 1.0, section 2.2 `Char`).
 
-Drives $EARSHOT_BUILD/earshot (default /work/main/build/native). Exit codes from
+Drives $EARSHOT_BUILD/earshot (default build/native). Exit codes from
 docs/cli.md (3 = bad input). JSON grammar from RFC 8259; UTF-8 from RFC 3629.
 """
 import csv
@@ -18,15 +18,14 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
-BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD", "/work/main/build/native"))
+from conftest import BUILD, need_built  # noqa: E402
 EARSHOT = BUILD / "earshot"
 INPUT = 3  # docs/cli.md
 
 
 @pytest.fixture(scope="module", autouse=True)
 def _built():
-    if not EARSHOT.is_file():
-        pytest.skip(f"{EARSHOT} is not built (set EARSHOT_BUILD to the build folder)")
+    need_built(EARSHOT)
 
 
 def run(*args):

@@ -9,8 +9,8 @@ scipy.signal.convolve, `earshot anchors`, and a clear error with a documented ex
 code for every bad argument and file.
 
 Needs the core library ($EARSHOT_LIB, default build/native/libearshot.so) and the
-CLI ($EARSHOT_BUILD/earshot, default /work/main/build/native); each part is skipped
-when its binary is not built.
+CLI ($EARSHOT_BUILD/earshot, default build/native); conftest.need_built says what
+happens when one is missing.
 """
 import ctypes
 import json
@@ -25,7 +25,7 @@ from scipy.io import wavfile
 
 import ebur128_ref
 
-BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD", "/work/main/build/native"))
+from conftest import BUILD, need_built  # noqa: E402
 EARSHOT = BUILD / "earshot"
 
 # libsndfile's float WAVs carry a PEAK chunk that scipy.io.wavfile skips with a warning.
@@ -223,8 +223,7 @@ def test_abi_refusals(lib):
 
 @pytest.fixture(scope="module")
 def cli():
-    if not EARSHOT.is_file():
-        pytest.skip(f"{EARSHOT} is not built (set EARSHOT_BUILD to the build folder)")
+    need_built(EARSHOT)
     return EARSHOT
 
 

@@ -4,7 +4,7 @@ rounding, with the documented delay, and that the prototype meets its
 documented passband and stopband figures under scipy.signal.freqz.
 
 Runs earshot-resample-tool from $EARSHOT_BUILD (default
-/work/main/build/native); skipped when it is not built.
+build/native; conftest.need_built says what happens when it is missing).
 """
 import math
 import os
@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
-BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD", "/work/main/build/native"))
+from conftest import BUILD, need_built  # noqa: E402
 TOOL = BUILD / "earshot-resample-tool"
 
 PAIRS = [(44100, 48000), (48000, 44100), (48000, 96000), (22050, 48000), (96000, 48000)]
@@ -31,8 +31,7 @@ U32 = 2.0 ** -24
 
 @pytest.fixture(scope="module", autouse=True)
 def _tool_built():
-    if not TOOL.is_file():
-        pytest.skip(f"{TOOL} is not built (set EARSHOT_BUILD to the build folder)")
+    need_built(TOOL)
 
 
 def taps(fr, to):

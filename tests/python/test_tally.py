@@ -6,8 +6,8 @@ value 12 of 16 -> p = 0.038), the SVG box plots against NumPy quartiles and Tuke
 whiskers, and a clear error naming the file and field for every malformed or
 mismatched results file.
 
-Drives $EARSHOT_BUILD/earshot (default /work/main/build/native); skipped when it is
-not built. Results files are written here as the format of docs/listening.md.
+Drives $EARSHOT_BUILD/earshot (default build/native; conftest.need_built says
+what happens when it is missing). Results files are written here as the format of docs/listening.md.
 """
 import copy
 import csv
@@ -22,7 +22,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-BUILD = pathlib.Path(os.environ.get("EARSHOT_BUILD", "/work/main/build/native"))
+from conftest import BUILD, need_built  # noqa: E402
 EARSHOT = BUILD / "earshot"
 OK, USAGE, INPUT = 0, 2, 3  # docs/cli.md
 SVG = "{http://www.w3.org/2000/svg}"
@@ -30,8 +30,7 @@ SVG = "{http://www.w3.org/2000/svg}"
 
 @pytest.fixture(scope="module", autouse=True)
 def _built():
-    if not EARSHOT.is_file():
-        pytest.skip(f"{EARSHOT} is not built (set EARSHOT_BUILD to the build folder)")
+    need_built(EARSHOT)
 
 
 def run(*args):
