@@ -216,7 +216,7 @@ test('a corrupt effect file and a non-audio upload each give a clear error and l
   await page.setInputFiles('#effect-file', fixture('corrupt.nfx'));
   await page.waitForSelector('#effect-status[data-kind=error]');
   const err = await page.textContent('#effect-status');
-  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: invalid JSON/);
+  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: line 1, column 2: Missing a name for object member\./);
   assert.equal(await page.inputValue('#effect-select'), 'site:lstm');
 
   const bad = await renderUpload(page, fixture('notes.txt'));
