@@ -12,6 +12,10 @@
 // Port messages in:  { type: 'settings', settings } · { type: 'level', db }
 //                    { type: 'record', seconds } (restarts the stream's state,
 //                      then captures its input and output, before level and limiter)
+//                    { type: 'stop' } (frees the effect; process() then returns
+//                      false, so the browser stops calling it: a disconnected
+//                      node whose process() returns true goes on being called
+//                      in Chromium, and its instance is never collected)
 // Port messages out: { type: 'ready', ... } · { type: 'error', message, fatal }
 //                    { type: 'meters', ... } every ~50 ms · { type: 'recorded', ... }
 import { loadVariant } from './loader.js';
@@ -56,6 +60,7 @@ class EarshotLive extends AudioWorkletProcessor {
     this.wall0 = 0;
     this.frames = 0;
     this.record = null;
+    this.stopped = false;
     this.port.onmessage = (e) => this.onMessage(e.data);
     try {
       const variant = loadVariant(o.wasm, { name: o.variant });
@@ -101,6 +106,13 @@ class EarshotLive extends AudioWorkletProcessor {
   }
 
   onMessage(m) {
+    if (m && m.type === 'stop') {
+      this.stopped = true;
+      this.record = null;
+      if (this.fx) this.fx.destroy();
+      this.fx = null;
+      return;
+    }
     if (!m || !this.fx) return;
     if (m.type === 'settings') this.apply(m.settings, false);
     else if (m.type === 'level') this.levelTarget = Math.pow(10, m.db / 20);
@@ -118,6 +130,7 @@ class EarshotLive extends AudioWorkletProcessor {
   }
 
   process(inputs, outputs) {
+    if (this.stopped) return false;
     const out = outputs[0];
     if (!out || out.length === 0) return true;
     const n = out[0].length;

@@ -72,7 +72,7 @@ const BAD = [
   ['effect-typo', { title: 't', effects: [{ file: FX, nmae: 'x' }] }, /effects\[0\]: unknown field 'nmae'/],
   ['effect-no-file', { title: 't', effects: [{ name: 'x' }] }, /effects\[0\]\.file: missing/],
   ['effect-missing', { title: 't', effects: [{ file: 'nowhere.nfx' }] }, /effects\[0\]\.file: cannot read effect file '.*nowhere\.nfx': No such file/],
-  ['effect-corrupt', { title: 't', effects: [{ file: FX }, { file: '../fixtures/corrupt.nfx' }] }, /effects\[1\]\.file: .*corrupt\.nfx: effect file header: line 1, column \d+: /],
+  ['effect-corrupt', { title: 't', effects: [{ file: FX }, { file: '../fixtures/corrupt.nfx' }] }, /effects\[1\]\.file: .*corrupt\.nfx: effect file header: line 1, column 2: Missing a name for object member\./],
   ['dup-id', { title: 't', effects: [{ file: FX }, { file: FX }] }, /effects\[1\]\.id: 'lstm-12' is used by an earlier effect/],
   ['bad-id', { title: 't', effects: [{ file: FX, id: 'a b' }] }, /effects\[0\]\.id: 'a b' may hold only/],
   ['no-control', { title: 't', effects: [{ file: TCN, controls: { drvie: 1 } }] }, /effects\[0\]\.controls\.drvie: the effect '.*' has no control named 'drvie' \(its controls: drive, tone\)/],

@@ -19,9 +19,11 @@ import torch
 
 REPO = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 sys.path.insert(0, os.path.join(REPO, "python"))
+sys.path.insert(0, os.path.join(REPO, "tests", "data", "effects"))
 
 import earshot  # noqa: E402
 from earshot import models  # noqa: E402
+import make_corpus  # noqa: E402  (writes safetensors directly: shapes the exporter would not make)
 
 CONTROLS = [{"name": "drive", "min": 0, "max": 1, "default": 0.5, "smoothing_ms": 20},
             {"name": "tone", "unit": "dB", "min": -12, "max": 12, "default": 0, "smoothing_ms": 10}]
@@ -59,6 +61,21 @@ def main():
     bad = bytearray(good)
     bad[8:20] = b"{not json!!!"
     replace_into(os.path.join(out, "corrupt.nfx"), lambda p: open(p, "wb").write(bytes(bad)))
+
+    # Stream memory (dsp/FORMAT.md, "Stream memory"): small files, large
+    # streams. wide-history: five kernel-2 convolutions over 1 024 channels at
+    # dilation 65 536, 2.5 GiB of history at 48 kHz (more than a WebAssembly
+    # instance can grow to), refused by the 64 MiB limit. wide-history-60mib:
+    # one such convolution over 120 channels, 60.1 MiB, just under the limit.
+    conv = {"type": "conv1d", "out": 1, "kernel": 2, "dilation": 65536}
+    wide = []
+    for i in range(5):
+        wide += [make_corpus.lin(f"wide{i}", 1, 1024), dict(conv, name=f"far{i}", **{"in": 1024})]
+    for name, layers in (("wide-history", wide),
+                         ("wide-history-60mib", [make_corpus.lin("wide", 1, 120), dict(conv, name="far", **{"in": 120})])):
+        desc = make_corpus.effect(layers, title=name)
+        replace_into(os.path.join(out, name + ".nfx"),
+                     lambda p, n=name, d=desc: open(p, "wb").write(make_corpus.file_bytes(n, d)))
 
     rng = np.random.default_rng(11)
 

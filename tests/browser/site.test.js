@@ -216,7 +216,7 @@ test('a corrupt effect file and a non-audio upload each give a clear error and l
   await page.setInputFiles('#effect-file', fixture('corrupt.nfx'));
   await page.waitForSelector('#effect-status[data-kind=error]');
   const err = await page.textContent('#effect-status');
-  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: line 1, column \d+: /);
+  assert.match(err, /'corrupt\.nfx' cannot be used as an effect: effect file header: line 1, column 2: Missing a name for object member\./);
   assert.equal(await page.inputValue('#effect-select'), 'site:lstm');
 
   const bad = await renderUpload(page, fixture('notes.txt'));
@@ -331,6 +331,52 @@ test('the live processor starts at the low listening level and its limiter holds
   assert.ok(quiet < 0.1, `at the default level the output peaks at ${quiet}`);
   assert.ok(loud <= ceiling * (1 + 1e-6), `with +24 dB in, the output peaks at ${loud} > ${ceiling}`);
   assert.ok(loud > 0.5 * ceiling, `the limiter should let a loud signal through near its ceiling, got ${loud}`);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('a stopped live processor is no longer called, so an effect switch leaves one processor running', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  // As the live panel switches effects (web/js/live-panel.js, connectNode):
+  // at 0.5 s the first node is sent 'stop' and disconnected, and a second
+  // node takes its place. Chromium goes on calling a disconnected node whose
+  // process() returns true (seen here: to the end of the render), so without
+  // 'stop' the first processor's meters run to 2 s. (A processor's meters
+  // count its own frames: the second one's run from 0 to 1.5 s.)
+  const seen = await page.evaluate(async () => {
+    const [wasm, effect] = await Promise.all(['wasm/earshot-simd.wasm', 'effects/lstm.nfx'].map((u) => fetch(u).then((r) => r.arrayBuffer())));
+    const ctx = new OfflineAudioContext(1, 2 * 48000, 48000);
+    await ctx.audioWorklet.addModule('worklet/processor.js');
+    const osc = new OscillatorNode(ctx, { frequency: 330 });
+    const last = { first: 0, second: 0 };
+    const make = (key) => {
+      const node = new AudioWorkletNode(ctx, 'earshot-live', {
+        outputChannelCount: [1], channelCount: 1, channelCountMode: 'explicit',
+        processorOptions: { wasm, variant: 'simd', effect, settings: { controls: {}, mix: 1, inputDb: 0, outputDb: 0, bypass: false } },
+      });
+      node.port.onmessage = (e) => {
+        if (e.data.type === 'meters') last[key] = Math.max(last[key], e.data.seconds);
+      };
+      osc.connect(node);
+      node.connect(ctx.destination);
+      return node;
+    };
+    const first = make('first');
+    ctx.suspend(0.5).then(() => {
+      first.port.postMessage({ type: 'stop' });
+      osc.disconnect();
+      first.disconnect();
+      make('second');
+      ctx.resume();
+    });
+    osc.start();
+    await ctx.startRendering();
+    await new Promise((r) => setTimeout(r, 500)); // let the last meters arrive
+    return last;
+  });
+  assert.ok(seen.second > 1.4, `the second processor metered to ${seen.second} s of 1.5 s`);
+  assert.ok(seen.first < 1.0, `the stopped processor was still called at ${seen.first} s (stopped at 0.5 s)`);
   await page.close();
   assert.deepEqual(problems, []);
 });

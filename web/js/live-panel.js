@@ -84,6 +84,7 @@ export class LivePanel {
     const fx = this.effect;
     if (this.node) {
       this.node.port.onmessage = null;
+      this.node.port.postMessage({ type: 'stop' });
       this.source.disconnect();
       this.node.disconnect();
       this.node = null;
@@ -154,6 +155,7 @@ export class LivePanel {
   async stop(message) {
     if (this.node) {
       this.node.port.onmessage = null;
+      this.node.port.postMessage({ type: 'stop' });
       this.node.disconnect();
       this.node = null;
     }

@@ -22,6 +22,9 @@ const SLICE = 1 << 16; // frames read and processed per step
 const PEAK_BUCKETS = 2048; // waveform resolution sent to the page
 const variants = new Map(); // wasm URL → Promise<Variant>
 
+// One Variant per build for the Worker's life. After a trap its instance is
+// renewed from the compiled module by the loader when the next effect is
+// created (worklet/loader.js, Variant.renew), so the next job works.
 function variantFor(url, name) {
   let v = variants.get(url);
   if (!v) {
@@ -31,15 +34,12 @@ function variantFor(url, name) {
       const module = await WebAssembly.compile(await res.arrayBuffer());
       return loadVariant(module, { name });
     })();
+    v.catch(() => {
+      if (variants.get(url) === v) variants.delete(url); // a failed load is tried again by the next job
+    });
     variants.set(url, v);
   }
-  return v.then((variant) => {
-    if (variant.broken) {
-      variants.delete(url);
-      return variantFor(url, name);
-    }
-    return variant;
-  });
+  return v;
 }
 
 // An effect streaming at hostRate, or at its own model rate when hostRate is 0.
