@@ -271,3 +271,153 @@ def test_truncated_audio_is_an_error_never_a_shorter_result(tmp_path):
         assert not (tmp_path / "o.wav").exists()
         assert not (tmp_path / "anch").exists() or list((tmp_path / "anch").iterdir()) == []
     assert leftovers(tmp_path) == []
+
+
+# ---- 4: the site builder stays inside its folders ---------------------------------------------------
+
+def site_setup(tmp_path):
+    """A config folder with one effect and one clip, a folder outside it with a sentinel
+    file, fake WebAssembly builds (the builder checks only their magic) and the options."""
+    cfg = tmp_path / "cfg"
+    cfg.mkdir()
+    shutil.copy(FX, cfg / "gru.nfx")
+    write_wav(cfg / "c.wav", sine(24000))
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    shutil.copy(FX, outside / "gru.nfx")
+    write_wav(outside / "c.wav", sine(24000))
+    (outside / "sentinel.txt").write_text("keep")
+    wasm = tmp_path / "w.wasm"
+    wasm.write_bytes(b"\0asm\1\0\0\0")
+    args = ["--assets", ROOT, "--wasm-simd", wasm, "--wasm-scalar", wasm, "--quiet"]
+    return cfg, outside, args
+
+
+def site_config(cfg, effects=("gru.nfx",), clips=("c.wav",), listening=None, name="site.json"):
+    d = {"version": 1, "title": "t", "effects": [{"file": f, "id": f"e{k}"} for k, f in enumerate(effects)],
+         "clips": [{"file": f} for f in clips]}
+    if listening:
+        d["listening"] = listening
+    (cfg / name).write_text(json.dumps(d))
+    return cfg / name
+
+
+def listening_definition(cfg, stimulus_file):
+    d = {"format": "earshot-listening-tests", "version": 1,
+         "tests": [{"id": "m", "type": "mushra", "target_lufs": -23, "anchors": False,
+                    "conditions": [{"id": "ref", "role": "reference"}],
+                    "items": [{"id": "one", "stimuli": {"ref": {"file": stimulus_file}}}]}]}
+    (cfg / "listening.json").write_text(json.dumps(d))
+    return "listening.json"
+
+
+@pytest.mark.parametrize("case", ["dotdot-effect", "absolute-effect", "symlink-effect", "dotdot-clip",
+                                  "symlink-clip", "dotdot-listening", "dotdot-stimulus", "symlink-stimulus"])
+def test_site_paths_outside_the_config_folder_are_refused(tmp_path, case):
+    """Every path of a site config and of its listening definition resolves (realpath, after
+    symlinks) inside the config's folder, else exit 3 naming the file, the field and the
+    resolved path; nothing is built. --allow-root OUTSIDE is the explicit opt-in."""
+    cfg, outside, args = site_setup(tmp_path)
+    os.symlink(outside / "gru.nfx", cfg / "link.nfx")
+    os.symlink(outside / "c.wav", cfg / "link.wav")
+    (cfg / "sub").mkdir()
+    kind, what = case.split("-")
+    rel = {"dotdot": "../outside/", "absolute": str(outside) + "/", "symlink": "link"}[kind]
+    config_file, field, bad = cfg / "site.json", None, None
+    if what == "effect":
+        bad = rel + ("gru.nfx" if kind != "symlink" else ".nfx")
+        site_config(cfg, effects=("gru.nfx", bad))
+        field = "effects[1].file"
+    elif what == "clip":
+        bad = rel + ("c.wav" if kind != "symlink" else ".wav")
+        site_config(cfg, clips=(bad,))
+        field = "clips[0].file"
+    elif what == "listening":
+        (outside / "l.json").write_text("{}")
+        bad = "sub/../../outside/l.json"
+        site_config(cfg, listening=bad)
+        field = "listening"
+    else:
+        bad = rel + ("c.wav" if kind != "symlink" else ".wav")
+        site_config(cfg, listening=listening_definition(cfg, bad))
+        config_file, field = cfg / "listening.json", "tests[0].items[0].stimuli.ref.file"
+    out = tmp_path / "site"
+    p = run("site", cfg / "site.json", "--out", out, *args)
+    assert p.returncode == INPUT, p.stderr
+    assert f"{config_file}: {field}: '{bad}'" in p.stderr, p.stderr
+    assert str(outside.resolve()) in p.stderr, "the resolved path is named"
+    assert not out.exists()
+    p = run("site", cfg / "site.json", "--out", out, "--allow-root", outside, *args)
+    if kind == "absolute":  # refused whatever the roots
+        assert p.returncode == INPUT and "absolute path" in p.stderr, p.stderr
+    elif what != "listening":  # l.json is no definition; the others build once allowed
+        assert p.returncode == OK, p.stderr
+
+
+def test_site_rebuild_never_follows_a_symlink_in_the_output_folder(tmp_path):
+    """An earlier site whose clips/ is replaced by a symlink to an outside folder holding a
+    file of the same name as the bundled clip, plus a symlink to that folder: a rebuild with
+    --force leaves the outside folder byte-identical and writes a real clips/ folder."""
+    cfg, outside, args = site_setup(tmp_path)
+    site_config(cfg)
+    out = tmp_path / "site"
+    assert run("site", cfg / "site.json", "--out", out, *args).returncode == OK
+    assert (out / "clips" / "c.wav").is_file()
+    shutil.rmtree(out / "clips")
+    os.symlink(outside, out / "clips")
+    os.symlink(outside, out / "elsewhere")
+    (outside / "c.wav").write_text("sentinel clip")
+    before = {p.name: p.read_bytes() for p in outside.iterdir()}
+    p = run("site", cfg / "site.json", "--out", out, "--force", *args)
+    assert p.returncode == OK, p.stderr
+    assert {p.name: p.read_bytes() for p in outside.iterdir()} == before
+    assert not (out / "clips").is_symlink() and (out / "clips" / "c.wav").read_bytes() == (cfg / "c.wav").read_bytes()
+    assert leftovers(tmp_path) == [] and sorted(x.name for x in tmp_path.iterdir()) == ["cfg", "outside", "site",
+                                                                                         "w.wasm"]
+
+
+def test_site_output_folder_that_is_a_symlink_or_holds_an_input_is_refused(tmp_path):
+    """--out a symlink to a folder: exit 2, the folder it points to untouched. --out an
+    earlier site that now holds the config: exit 2 naming it, even with --force."""
+    cfg, outside, args = site_setup(tmp_path)
+    site_config(cfg)
+    os.symlink(outside, tmp_path / "link")
+    before = sorted(p.name for p in outside.iterdir())
+    p = run("site", cfg / "site.json", "--out", tmp_path / "link", *args)
+    assert p.returncode == USAGE and "symbolic link" in p.stderr and str(tmp_path / "link") in p.stderr, p.stderr
+    assert sorted(p.name for p in outside.iterdir()) == before
+
+    out = tmp_path / "site"
+    assert run("site", cfg / "site.json", "--out", out, *args).returncode == OK
+    shutil.copytree(cfg, out / "cfg")
+    p = run("site", out / "cfg" / "site.json", "--out", out, "--force", *args)
+    assert p.returncode == USAGE and "is or holds the config" in p.stderr, p.stderr
+    assert (out / "cfg" / "site.json").is_file()
+
+
+def test_site_failed_rebuild_leaves_the_old_site_as_it_was(tmp_path):
+    """A rebuild that fails after building (the old site has a folder where the new one
+    writes site.json): exit 3 and every file of the old site byte-identical."""
+    cfg, outside, args = site_setup(tmp_path)
+    site_config(cfg)
+    out = tmp_path / "site"
+    assert run("site", cfg / "site.json", "--out", out, *args).returncode == OK
+    (out / "site.json").unlink()
+    (out / "site.json").mkdir()
+    (out / "site.json" / "mine.txt").write_text("mine")
+    before = {str(p.relative_to(out)): p.read_bytes() for p in out.rglob("*") if p.is_file()}
+    p = run("site", cfg / "site.json", "--out", out, "--force", *args)
+    assert p.returncode == INPUT and "mine.txt" in p.stderr, p.stderr
+    assert {str(p.relative_to(out)): p.read_bytes() for p in out.rglob("*") if p.is_file()} == before
+    assert sorted(x.name for x in tmp_path.iterdir()) == ["cfg", "outside", "site", "w.wasm"]
+
+
+def test_site_truncated_clip_is_refused(tmp_path):
+    """A bundled clip whose WAV data chunk runs past the end of the file: exit 3 naming the
+    field and 'read N of M frames' (libsndfile alone reports the shorter length)."""
+    cfg, outside, args = site_setup(tmp_path)
+    whole = (cfg / "c.wav").read_bytes()
+    (cfg / "c.wav").write_bytes(whole[:len(whole) // 2])
+    site_config(cfg)
+    p = run("site", cfg / "site.json", "--out", tmp_path / "site", *args)
+    assert p.returncode == INPUT and "clips[0].file" in p.stderr and "of 24000 frames" in p.stderr, p.stderr
