@@ -346,7 +346,7 @@ std::vector<unsigned char> read_wasm(const fs::path& p, const std::string& optio
 class SiteFolder {
  public:
   SiteFolder(const fs::path& out, bool force, const std::vector<std::pair<std::string, fs::path>>& inputs)
-      : out_(out) {
+      : shown_(out.string()) {
     std::error_code ec;
     struct stat st;
     existed_ = ::lstat(out.c_str(), &st) == 0;
@@ -372,6 +372,7 @@ class SiteFolder {
         throw UsageError("--out '" + out.string() + "' is or holds the " + in.first + " '" + in.second.string() +
                          "'; choose a folder outside it");
     }
+    out_ = real;  // the swap works on the resolved folder (so "." or "dir/" work too)
     const fs::path parent = real.parent_path();
     fs::create_directories(parent, ec);
     if (ec) throw InputError("cannot create '" + parent.string() + "': " + ec.message());
@@ -407,27 +408,27 @@ class SiteFolder {
     struct stat st;
     const bool there = ::lstat(out_.c_str(), &st) == 0;
     if (there != existed_ || (there && !S_ISDIR(st.st_mode)))
-      throw InputError("--out '" + out_.string() + "' changed while the site was built; nothing was replaced");
+      throw InputError("--out '" + shown_ + "' changed while the site was built; nothing was replaced");
     if (there) carry_over();
     if (!there) {
       if (std::rename(build_.c_str(), out_.c_str()) != 0)
-        throw InputError("cannot move the built site into '" + out_.string() + "': " + std::strerror(errno));
+        throw InputError("cannot move the built site into '" + shown_ + "': " + std::strerror(errno));
       build_.clear();
       return;
     }
     if (::renameat2(AT_FDCWD, build_.c_str(), AT_FDCWD, out_.c_str(), RENAME_EXCHANGE) == 0) return;
     if (errno != EINVAL && errno != ENOSYS)
-      throw InputError("cannot swap the built site into '" + out_.string() + "': " + std::strerror(errno));
+      throw InputError("cannot swap the built site into '" + shown_ + "': " + std::strerror(errno));
     // No atomic exchange on this file system: move the old site aside, then the new one in.
     std::string tmpl = build_.string() + "-old-XXXXXX";
     std::vector<char> buf(tmpl.begin(), tmpl.end());
     buf.push_back('\0');
     if (!::mkdtemp(buf.data()) || std::rename(out_.c_str(), buf.data()) != 0)
-      throw InputError("cannot move the old site '" + out_.string() + "' aside: " + std::strerror(errno));
+      throw InputError("cannot move the old site '" + shown_ + "' aside: " + std::strerror(errno));
     if (std::rename(build_.c_str(), out_.c_str()) != 0) {
       const int err = errno;
       std::rename(buf.data(), out_.c_str());
-      throw InputError("cannot move the built site into '" + out_.string() + "': " + std::strerror(err));
+      throw InputError("cannot move the built site into '" + shown_ + "': " + std::strerror(err));
     }
     build_ = buf.data();
   }
@@ -460,9 +461,10 @@ class SiteFolder {
                          "rebuilt site: " + (ec ? ec.message() : std::string(std::strerror(errno))) +
                          "; nothing was replaced");
     }
-    if (ec) throw InputError("cannot list '" + out_.string() + "': " + ec.message() + "; nothing was replaced");
+    if (ec) throw InputError("cannot list '" + shown_ + "': " + ec.message() + "; nothing was replaced");
   }
 
+  std::string shown_;  // DIR as given, for messages
   fs::path out_, build_;
   bool existed_ = false;
 };
@@ -693,7 +695,8 @@ int cmd_site(const std::vector<std::string>& argv) {
   }
 
   // Write: into a fresh folder beside DIR, swapped in at the end (SiteFolder).
-  const fs::path out = *out_opt;
+  fs::path out = fs::path(*out_opt).lexically_normal();
+  if (!out.has_filename() && out.has_relative_path()) out = out.parent_path();  // "dir/" names "dir"
   std::vector<std::pair<std::string, fs::path>> inputs = {{"config file", config_path}, {"config folder", root},
                                                           {"page source", assets / "web"},
                                                           {"worklet source", assets / "worklet"}};

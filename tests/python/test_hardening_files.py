@@ -368,7 +368,7 @@ def test_site_rebuild_never_follows_a_symlink_in_the_output_folder(tmp_path):
     os.symlink(outside, out / "elsewhere")
     (outside / "c.wav").write_text("sentinel clip")
     before = {p.name: p.read_bytes() for p in outside.iterdir()}
-    p = run("site", cfg / "site.json", "--out", out, "--force", *args)
+    p = run("site", cfg / "site.json", "--out", f"{out}/", "--force", *args)  # "DIR/" names DIR
     assert p.returncode == OK, p.stderr
     assert {p.name: p.read_bytes() for p in outside.iterdir()} == before
     assert not (out / "clips").is_symlink() and (out / "clips" / "c.wav").read_bytes() == (cfg / "c.wav").read_bytes()
