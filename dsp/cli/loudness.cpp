@@ -261,11 +261,8 @@ int cmd_anchors(const std::vector<std::string>& argv) {
   for (const std::string& v : a.all("--passband")) bands.push_back(parse_number("--passband", v, 1000, 20000));
   if (bands.empty()) bands = {3500, 7000};
   struct stat st;
-  if (stat(dir.c_str(), &st) == 0) {
-    if (!S_ISDIR(st.st_mode)) throw UsageError("--out '" + dir + "' exists and is not a folder");
-  } else if (mkdir(dir.c_str(), 0777) != 0) {
-    throw InputError("cannot create folder '" + dir + "': " + std::strerror(errno));
-  }
+  const bool have_dir = stat(dir.c_str(), &st) == 0;
+  if (have_dir && !S_ISDIR(st.st_mode)) throw UsageError("--out '" + dir + "' exists and is not a folder");
   // Every output name first, so a clash or an existing file stops the run before anything is written.
   std::vector<std::string> names;
   std::vector<std::pair<std::string, std::string>> inputs;
@@ -282,6 +279,8 @@ int cmd_anchors(const std::vector<std::string>& argv) {
       check_overwrite(out, a.has("--force"));
       names.push_back(out);
     }
+  if (!have_dir && mkdir(dir.c_str(), 0777) != 0)
+    throw InputError("cannot create folder '" + dir + "': " + std::strerror(errno));
   // Every anchor is held in its temporary file until all are made: a failed run writes none.
   std::vector<std::unique_ptr<OutputFile>> outs;
   std::vector<std::string> lines;
