@@ -400,9 +400,9 @@ class Checker {
 
   Where w_;
   fs::path dir_;
-  std::vector<fs::path> roots_;
   const std::vector<ListeningEffect>& effects_;
   const std::vector<ListeningClip>& clips_;
+  std::vector<fs::path> roots_;  // resolved folders every path must stay inside
   std::map<fs::path, Entry> files_;
   std::set<std::string> names_;
   ListeningPlan plan_;
