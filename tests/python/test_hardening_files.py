@@ -229,7 +229,8 @@ def test_outputs_that_are_an_input_are_refused_even_with_force(tmp_path, link):
 def truncated_files(folder):
     """(path, declared frames) of damaged files: WAV 16-bit, WAV float, RF64, each cut in
     half; a WAV whose data chunk declares 0x7ffffff0 bytes; a FLAC cut inside its frames
-    (sox writes it; libsndfile's FLAC decoder reports the short read)."""
+    (sox writes it; libsndfile's FLAC decoder reports the short read); a 16-bit AIFF cut
+    inside its sound data."""
     folder = pathlib.Path(folder)
     out = []
     for name, kw in [("i16.wav", {}), ("f32.wav", {"encoding": "float"}), ("rf64.wav", {"container": "RF64"})]:
@@ -247,6 +248,12 @@ def truncated_files(folder):
     subprocess.run(["sox", "-n", "-r", "48000", "-c", "1", str(flac), "synth", "1", "sine", "440"], check=True)
     flac.write_bytes(flac.read_bytes()[:20000])
     out.append((flac, 48000))
+    # AIFF (sox writes it): the COMM chunk declares 48000 frames (AIFF 1.3), the SSND data is cut.
+    aiff = folder / "cut.aiff"
+    subprocess.run(["sox", "-n", "-r", "48000", "-c", "1", "-b", "16", str(aiff), "synth", "1", "sine", "440"],
+                   check=True)
+    aiff.write_bytes(aiff.read_bytes()[:50000])
+    out.append((aiff, 48000))
     return out
 
 
