@@ -24,7 +24,7 @@ for drive in 0.2 0.8; do
   out="build/demo/$(basename "${clip%.wav}")-drive$drive.wav"
   ctl=()
   "$bin" info --json "$fx" | grep -Eq '"name": ?"drive"' && ctl=(--control "drive=$drive")
-  "$bin" render "$fx" "$clip" "$out" "${ctl[@]}"
+  "$bin" render "$fx" "$clip" "$out" --force "${ctl[@]}"
   echo "demo: wrote $out"
 done
 

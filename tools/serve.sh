@@ -32,7 +32,7 @@ if [ -z "$dir" ]; then
     cmake --preset "$v" >/dev/null && cmake --build --preset "$v" -j2
   done
   dir=build/site-demo
-  build/native/earshot site demos/site.json --out "$dir"
+  build/native/earshot site demos/site.json --out "$dir" --force
   [ "$build_only" = 1 ] && exit 0
 fi
 [ -f "$dir/index.html" ] && [ -f "$dir/site.json" ] || {

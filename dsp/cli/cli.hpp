@@ -76,6 +76,15 @@ struct Audio {
 // wrong: unreadable, 1..32 channels, 8000..384000 Hz, non-finite samples.
 Audio read_audio(const std::string& path);
 
+// libsndfile shortens a WAV whose data chunk runs past the end of the file to
+// what is there, without an error. This reads the header itself (RIFF, RIFX,
+// RF64 data chunk and ds64 size; AIFF/AIFC COMM frame count) and throws
+// InputError "'<path>': read N of M frames ..." when the header declares more
+// frames than libsndfile reports (`frames`). Other containers, and encodings
+// other than 8..32-bit integer and 32/64-bit float PCM, are not checked here
+// (FLAC's STREAMINFO count is libsndfile's own, so a short read shows it).
+void check_declared_length(const std::string& path, int format, int channels, int64_t frames);
+
 // ---- effect file and stream ------------------------------------------------
 
 // Reads a whole effect file; InputError naming the file and the OS reason.

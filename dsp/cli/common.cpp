@@ -279,6 +279,90 @@ std::string hex64(uint64_t v) {
 
 // ---- audio files -----------------------------------------------------------
 
+namespace {
+
+// Bytes per sample of the uncompressed encodings whose frame count follows
+// from the data size; 0 for any other.
+int sample_bytes(int format) {
+  switch (format & SF_FORMAT_SUBMASK) {
+    case SF_FORMAT_PCM_S8:
+    case SF_FORMAT_PCM_U8: return 1;
+    case SF_FORMAT_PCM_16: return 2;
+    case SF_FORMAT_PCM_24: return 3;
+    case SF_FORMAT_PCM_32:
+    case SF_FORMAT_FLOAT: return 4;
+    case SF_FORMAT_DOUBLE: return 8;
+    default: return 0;
+  }
+}
+
+uint64_t read_le(const unsigned char* p, int n) {
+  uint64_t v = 0;
+  for (int i = n - 1; i >= 0; --i) v = (v << 8) | p[i];
+  return v;
+}
+
+uint64_t read_be(const unsigned char* p, int n) {
+  uint64_t v = 0;
+  for (int i = 0; i < n; ++i) v = (v << 8) | p[i];
+  return v;
+}
+
+// The frame count the header declares, or -1 when it gives none to check.
+// WAV: RIFF/RIFX/RF64 chunks (EBU Tech 3306 for RF64's ds64); AIFF: the COMM
+// chunk's numSampleFrames (AIFF 1.3). Chunks are padded to even sizes.
+int64_t declared_frames(const std::string& path, int format, int channels) {
+  const int major = format & SF_FORMAT_TYPEMASK;
+  const int bytes = sample_bytes(format);
+  if (bytes == 0 || channels < 1) return -1;
+  const bool wav = major == SF_FORMAT_WAV || major == SF_FORMAT_WAVEX || major == SF_FORMAT_RF64;
+  const bool aiff = major == SF_FORMAT_AIFF;
+  if (!wav && !aiff) return -1;
+  std::unique_ptr<std::FILE, int (*)(std::FILE*)> f(std::fopen(path.c_str(), "rb"), std::fclose);
+  if (!f) return -1;
+  unsigned char head[12];
+  if (std::fread(head, 1, 12, f.get()) != 12) return -1;
+  const std::string magic(reinterpret_cast<const char*>(head), 4), kind(reinterpret_cast<const char*>(head) + 8, 4);
+  const bool big = magic == "RIFX" || magic == "FORM";
+  const bool rf64 = magic == "RF64";
+  if (wav && !((magic == "RIFF" || magic == "RIFX" || rf64) && kind == "WAVE")) return -1;
+  if (aiff && !(magic == "FORM" && (kind == "AIFF" || kind == "AIFC"))) return -1;
+  uint64_t ds64_data = 0;
+  for (int guard = 0; guard < 4096; ++guard) {
+    unsigned char ch[8];
+    if (std::fread(ch, 1, 8, f.get()) != 8) return -1;
+    const std::string id(reinterpret_cast<const char*>(ch), 4);
+    const uint64_t size = big ? read_be(ch + 4, 4) : read_le(ch + 4, 4);
+    if (wav && id == "ds64") {
+      unsigned char d[16];
+      if (size < 16 || std::fread(d, 1, 16, f.get()) != 16) return -1;
+      ds64_data = read_le(d + 8, 8);
+      if (std::fseek(f.get(), long(size - 16 + (size & 1)), SEEK_CUR) != 0) return -1;
+      continue;
+    }
+    if (wav && id == "data") {
+      const uint64_t data = rf64 && size == 0xffffffffu ? ds64_data : size;
+      return int64_t(data / uint64_t(bytes * channels));
+    }
+    if (aiff && id == "COMM") {
+      unsigned char c[6];
+      if (size < 6 || std::fread(c, 1, 6, f.get()) != 6) return -1;
+      return int64_t(read_be(c + 2, 4));
+    }
+    if (size > uint64_t(0x7fffffff) || std::fseek(f.get(), long(size + (size & 1)), SEEK_CUR) != 0) return -1;
+  }
+  return -1;
+}
+
+}  // namespace
+
+void check_declared_length(const std::string& path, int format, int channels, int64_t frames) {
+  const int64_t declared = declared_frames(path, format, channels);
+  if (declared > frames)
+    throw InputError("'" + path + "': read " + std::to_string(frames) + " of " + std::to_string(declared) +
+                     " frames: the file ends before the audio data its header declares (truncated or damaged)");
+}
+
 Audio read_audio(const std::string& path) {
   struct stat st;
   if (stat(path.c_str(), &st) != 0)
@@ -298,6 +382,7 @@ Audio read_audio(const std::string& path) {
     throw InputError("'" + path + "' has a sample rate of " + std::to_string(a.rate) +
                      " Hz; 8000 to 384000 Hz are supported");
   if (info.frames < 0) throw InputError("'" + path + "': libsndfile reports no length");
+  check_declared_length(path, info.format, info.channels, int64_t(info.frames));
   a.frames = size_t(info.frames);
   a.samples.resize(a.frames * size_t(a.channels));
   const sf_count_t got = a.frames ? sf_readf_float(f.get(), a.samples.data(), sf_count_t(a.frames)) : 0;

@@ -20,6 +20,7 @@
 
 #include "cli.hpp"
 #include "text_out.hpp"
+#include "output_file.hpp"
 
 #include <rapidjson/prettywriter.h>
 #include <rapidjson/stringbuffer.h>
@@ -48,8 +49,9 @@ const char* kLoudnessHelp =
     "  --weights LIST    channel weights, comma-separated, one per channel, 0 .. 10\n"
     "  --match LUFS      write a copy of the (single) FILE scaled to this loudness,\n"
     "                    -70 .. 0, to --out as 32-bit float WAV\n"
-    "  --out FILE        where --match writes (must not exist unless --force)\n"
-    "  --force           overwrite --out\n"
+    "  --out FILE        where --match writes (must not exist unless --force; never\n"
+    "                    FILE itself, also through a link)\n"
+    "  --force           replace an existing --out\n"
     "  -h, --help        this text\n"
     "\n"
     "exit codes: 0 success, 2 bad command line, 3 unreadable or invalid audio file,\n"
@@ -74,35 +76,23 @@ const char* kAnchorsHelp =
     "  --passband HZ     write one low-pass copy NAME-lpHZ.wav per value instead of\n"
     "                    the two standard anchors (repeatable; 1000 .. 20000, and\n"
     "                    9/7 of it must not exceed half the sample rate)\n"
-    "  --force           overwrite existing files\n"
+    "  --force           replace existing anchor files\n"
     "  -h, --help        this text\n"
     "\n"
     "exit codes: 0 success, 2 bad command line, 3 unreadable or invalid audio file,\n"
     "            or a write failure\n";
 
-struct SndCloser {
-  void operator()(SNDFILE* f) const {
-    if (f) sf_close(f);
-  }
-};
-using SndPtr = std::unique_ptr<SNDFILE, SndCloser>;
-
-bool exists(const std::string& path) {
-  struct stat st;
-  return stat(path.c_str(), &st) == 0;
-}
-
-void write_float_wav(const std::string& path, const Audio& a, const std::vector<float>& samples) {
+// Writes the temporary file of `out` (output_file.hpp); the caller commits it.
+void write_float_wav(OutputFile& out, const Audio& a, const std::vector<float>& samples) {
   SF_INFO info;
   std::memset(&info, 0, sizeof info);
   info.channels = a.channels;
   info.samplerate = a.rate;
   info.format = SF_FORMAT_WAV | SF_FORMAT_FLOAT;
-  SndPtr f(sf_open(path.c_str(), SFM_WRITE, &info));
-  if (!f) throw InputError("cannot write audio file '" + path + "': " + sf_strerror(nullptr));
-  const sf_count_t put = a.frames ? sf_writef_float(f.get(), samples.data(), sf_count_t(a.frames)) : 0;
-  if (put != sf_count_t(a.frames)) throw InputError("cannot write audio file '" + path + "': " + sf_strerror(f.get()));
-  if (sf_close(f.release()) != 0) throw InputError("cannot finish audio file '" + path + "'");
+  SNDFILE* f = out.sound(info);
+  const sf_count_t put = a.frames ? sf_writef_float(f, samples.data(), sf_count_t(a.frames)) : 0;
+  if (put != sf_count_t(a.frames))
+    throw InputError("cannot write audio file '" + out.target() + "': " + sf_strerror(f));
 }
 
 double peak_dbfs(const std::vector<float>& x) {
@@ -153,14 +143,10 @@ int cmd_loudness(const std::vector<std::string>& argv) {
     if (a.positional.size() != 1) throw UsageError("--match takes exactly one FILE");
     if (!a.has("--out")) throw UsageError("--match needs --out FILE");
     out_path = *a.last("--out");
-    // Same file by device and inode after following symlinks (also catches hard links), not by spelling.
-    struct stat si, so;
-    if (out_path == a.positional[0] ||
-        (::stat(a.positional[0].c_str(), &si) == 0 && ::stat(out_path.c_str(), &so) == 0 && si.st_dev == so.st_dev &&
-         si.st_ino == so.st_ino))
+    if (out_path == a.positional[0])
       throw UsageError("--out '" + out_path + "' is the same file as FILE '" + a.positional[0] + "'; choose another");
-    if (exists(out_path) && !a.has("--force"))
-      throw UsageError("--out '" + out_path + "' exists; add --force to overwrite it");
+    refuse_same_file("--out", out_path, {{"FILE", a.positional[0]}});
+    check_overwrite(out_path, a.has("--force"));
   } else if (a.has("--out")) {
     throw UsageError("--out is only used with --match");
   }
@@ -195,7 +181,9 @@ int cmd_loudness(const std::vector<std::string>& argv) {
                                             &gain);
       if (ms != EARSHOT_OK) throw InputError(status_message(path, ms));
       peak_after = peak_dbfs(au.samples);
-      write_float_wav(out_path, au, au.samples);
+      OutputFile out(out_path, "audio file");
+      write_float_wav(out, au, au.samples);
+      out.commit();
       if (peak_after > 0)
         std::fprintf(stderr,
                      "earshot loudness: note: '%s' peaks at %+.2f dBFS after matching; the float WAV keeps the "
@@ -274,13 +262,12 @@ int cmd_anchors(const std::vector<std::string>& argv) {
   for (const std::string& v : a.all("--passband")) bands.push_back(parse_number("--passband", v, 1000, 20000));
   if (bands.empty()) bands = {3500, 7000};
   struct stat st;
-  if (stat(dir.c_str(), &st) == 0) {
-    if (!S_ISDIR(st.st_mode)) throw UsageError("--out '" + dir + "' exists and is not a folder");
-  } else if (mkdir(dir.c_str(), 0777) != 0) {
-    throw InputError("cannot create folder '" + dir + "': " + std::strerror(errno));
-  }
+  const bool have_dir = stat(dir.c_str(), &st) == 0;
+  if (have_dir && !S_ISDIR(st.st_mode)) throw UsageError("--out '" + dir + "' exists and is not a folder");
   // Every output name first, so a clash or an existing file stops the run before anything is written.
   std::vector<std::string> names;
+  std::vector<std::pair<std::string, std::string>> inputs;
+  for (const std::string& ref : a.positional) inputs.emplace_back("REF", ref);
   for (const std::string& ref : a.positional)
     for (double b : bands) {
       char suffix[32];
@@ -289,9 +276,15 @@ int cmd_anchors(const std::vector<std::string>& argv) {
       if (std::find(names.begin(), names.end(), out) != names.end())
         throw UsageError("two outputs would both be '" + out + "' (references with the same name, or a repeated "
                          "--passband)");
-      if (exists(out) && !a.has("--force")) throw UsageError("'" + out + "' exists; add --force to overwrite it");
+      refuse_same_file("anchor", out, inputs);
+      check_overwrite(out, a.has("--force"));
       names.push_back(out);
     }
+  if (!have_dir && mkdir(dir.c_str(), 0777) != 0)
+    throw InputError("cannot create folder '" + dir + "': " + std::strerror(errno));
+  // Every anchor is held in its temporary file until all are made: a failed run writes none.
+  std::vector<std::unique_ptr<OutputFile>> outs;
+  std::vector<std::string> lines;
   size_t k = 0;
   for (const std::string& ref : a.positional) {
     const Audio au = read_audio(ref);
@@ -303,12 +296,17 @@ int cmd_anchors(const std::vector<std::string>& argv) {
                          format_fixed(b * 9 / 7, 0) + " Hz) at or below half the sample rate (" +
                          format_fixed(au.rate / 2.0, 0) + " Hz)");
       if (rc != EARSHOT_OK) throw InputError(status_message(ref, rc));
-      write_float_wav(names[k], au, y);
-      std::printf("%s  (%.0f Hz low-pass, %d taps, %d ch, %d Hz)\n", names[k].c_str(), b,
-                  earshot_anchor_taps(double(au.rate), b, nullptr, 0), au.channels, au.rate);
+      outs.emplace_back(new OutputFile(names[k], "audio file"));
+      write_float_wav(*outs.back(), au, y);
+      char line[128];
+      std::snprintf(line, sizeof line, "  (%.0f Hz low-pass, %d taps, %d ch, %d Hz)\n", b,
+                    earshot_anchor_taps(double(au.rate), b, nullptr, 0), au.channels, au.rate);
+      lines.push_back(names[k] + line);
       ++k;
     }
   }
+  for (auto& o : outs) o->commit();
+  for (const std::string& l : lines) std::fputs(l.c_str(), stdout);
   return kExitOk;
 }
 

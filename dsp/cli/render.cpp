@@ -16,6 +16,7 @@
 #include <vector>
 
 #include "cli.hpp"
+#include "output_file.hpp"
 
 namespace earshot {
 namespace cli {
@@ -34,6 +35,10 @@ const char* kHelp =
     ".aif/.aiff), or IN's container when OUT has no extension. Sample format:\n"
     "32-bit float for WAV and AIFF (the exact core output, bit for bit), 24-bit\n"
     "integer for FLAC; --encoding changes it (integer formats clip at full scale).\n"
+    "\n"
+    "OUT is written to a temporary file beside it and renamed into place when the\n"
+    "render is complete: a failed render leaves no partial file. An existing OUT is\n"
+    "refused unless --force; OUT may never be IN (also through a link).\n"
     "\n"
     "Latency: by default the stream latency is trimmed from the start and the tail\n"
     "is flushed with silence, so OUT has IN's length and lines up with it in time.\n"
@@ -55,6 +60,7 @@ const char* kHelp =
     "                        when stderr is a terminal and IN is over 10 s)\n"
     "  --no-progress         never show it\n"
     "  --quiet               no summary line\n"
+    "  --force               replace an existing OUT\n"
     MAX_STREAM_HELP
     "  -h, --help            this text\n";
 
@@ -97,12 +103,6 @@ const char* encoding_name(int sub) {
   }
 }
 
-bool same_file(const std::string& a, const std::string& b) {
-  struct stat sa, sb;
-  return ::stat(a.c_str(), &sa) == 0 && ::stat(b.c_str(), &sb) == 0 && sa.st_dev == sb.st_dev &&
-         sa.st_ino == sb.st_ino;
-}
-
 // A one-line bar on stderr, redrawn when the percentage changes.
 class Progress {
  public:
@@ -142,7 +142,8 @@ int cmd_render(const std::vector<std::string>& argv) {
                                    {"--encoding", true},
                                    {"--progress", false},
                                    {"--no-progress", false},
-                                   {"--quiet", false}});
+                                   {"--quiet", false},
+                                   {"--force", false}});
   apply_stream_limit(a);
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
@@ -204,8 +205,10 @@ int cmd_render(const std::vector<std::string>& argv) {
   if (rate < 8000 || rate > 384000)
     throw InputError("audio file '" + in_path + "' has sample rate " + std::to_string(rate) +
                      " Hz; earshot streams run at 8000 .. 384000 Hz");
-  if (same_file(in_path, out_path))
-    throw UsageError("OUT '" + out_path + "' is the same file as IN; choose another output file");
+  refuse_same_file("OUT", out_path, {{"IN", in_path}, {"FILE", fx_path}});
+  check_overwrite(out_path, a.has("--force"));
+  // libsndfile shortens a WAV whose data runs past the end of the file: refused, never a shorter output.
+  if (in_info.seekable) check_declared_length(in_path, in_info.format, channels, int64_t(in_info.frames));
 
   // Streams, settings, then reset: the render starts at the settings, unramped.
   std::vector<std::unique_ptr<Stream>> streams;
@@ -252,30 +255,11 @@ int cmd_render(const std::vector<std::string>& argv) {
       throw UsageError(std::string("OUT '") + out_path + "': " + container_name(out_major) + " cannot hold " +
                        encoding_name(sub) + " samples" + (encoding ? "; choose another --encoding" : ""));
   }
-  // Written to a unique temporary file beside OUT and renamed over it only after the whole run succeeded,
-  // so a failed run leaves an existing OUT untouched and no partial file.
-  struct TempOut {
-    std::string path;
-    bool keep = false;
-    ~TempOut() {
-      if (!keep && !path.empty()) std::remove(path.c_str());
-    }
-  } temp;
-  {
-    std::string tmpl = out_path + ".earshot-tmp-XXXXXX";
-    std::vector<char> buf(tmpl.begin(), tmpl.end());
-    buf.push_back('\0');
-    const int fd = mkstemp(buf.data());
-    if (fd < 0) throw InputError("cannot write audio file '" + out_path + "': cannot create a temporary file beside it");
-    const mode_t mask = umask(0);  // mkstemp makes 0600; OUT gets the usual 0666 & ~umask
-    umask(mask);
-    fchmod(fd, 0666 & ~mask);
-    ::close(fd);
-    temp.path = buf.data();
-  }
-  SndPtr out(sf_open(temp.path.c_str(), SFM_WRITE, &out_info));
-  if (!out) throw InputError("cannot write audio file '" + out_path + "': " + sf_strerror(nullptr));
-  if (sub != SF_FORMAT_FLOAT) sf_command(out.get(), SFC_SET_CLIPPING, nullptr, SF_TRUE);
+  // Written to a temporary file beside OUT and renamed over it only after the whole run succeeded
+  // (output_file.hpp), so a failed run leaves an existing OUT untouched and no partial file.
+  OutputFile out_file(out_path, "audio file");
+  SNDFILE* const out = out_file.sound(out_info);
+  if (sub != SF_FORMAT_FLOAT) sf_command(out, SFC_SET_CLIPPING, nullptr, SF_TRUE);
 
   const int64_t in_frames = in_info.frames;
   const bool seekable = in_info.seekable != 0 && in_frames >= 0;
@@ -290,11 +274,7 @@ int cmd_render(const std::vector<std::string>& argv) {
   int64_t to_skip = keep ? 0 : latency, written = 0, clipped = 0, done = 0;
   float peak = 0;
 
-  auto fail_write = [&]() {
-    const std::string msg = sf_strerror(out.get());
-    out.reset();
-    throw InputError("cannot write audio file '" + out_path + "': " + msg);
-  };
+  auto fail_write = [&]() { throw InputError("cannot write audio file '" + out_path + "': " + sf_strerror(out)); };
   // Runs `k` frames from chan[] through the streams and writes what is past the trim.
   auto run = [&](int k) {
     for (int c = 0; c < channels; ++c)
@@ -311,7 +291,7 @@ int cmd_render(const std::vector<std::string>& argv) {
         peak = std::max(peak, ay);
         if (ay > 1.0f) ++clipped;
       }
-    if (m > 0 && sf_writef_float(out.get(), outer.data(), m) != m) fail_write();
+    if (m > 0 && sf_writef_float(out, outer.data(), m) != m) fail_write();
     written += m;
     done += k;
     bar.update(done);
@@ -327,14 +307,13 @@ int cmd_render(const std::vector<std::string>& argv) {
   if (sf_error(in.get()) != SF_ERR_NO_ERROR) {
     const std::string msg = sf_strerror(in.get());
     bar.finish();
-    out.reset();
-    throw InputError("cannot read audio file '" + in_path + "': " + msg);
+    throw InputError("cannot read audio file '" + in_path + "': read " + std::to_string(done) + " of " +
+                     std::to_string(in_frames) + " frames: " + msg);
   }
   // libsndfile can end a damaged file early without setting an error: a short read is an error, never a
   // shorter output.
   if (seekable && done != in_frames) {
     bar.finish();
-    out.reset();
     throw InputError("'" + in_path + "': read " + std::to_string(done) + " of " + std::to_string(in_frames) +
                      " frames");
   }
@@ -346,10 +325,7 @@ int cmd_render(const std::vector<std::string>& argv) {
     left -= k;
   }
   bar.finish();
-  if (sf_close(out.release()) != 0) throw InputError("cannot write audio file '" + out_path + "': closing failed");
-  if (std::rename(temp.path.c_str(), out_path.c_str()) != 0)
-    throw InputError("cannot write audio file '" + out_path + "': renaming the temporary file failed");
-  temp.keep = true;
+  out_file.commit();
 
   unsigned nonfinite = 0;
   for (const auto& s : streams) nonfinite += earshot_nonfinite_count(s->get());

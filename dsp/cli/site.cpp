@@ -7,7 +7,9 @@
 // controls at the file's defaults, host rate = model rate, native scalar
 // variant; a 64-sample excerpt; the whole output as reference/<id>.f32).
 // The result is plain files: no server code, no special headers.
+#include <fcntl.h>
 #include <sndfile.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -34,6 +36,7 @@
 
 #include "json_fields.hpp"
 #include "json_reader.hpp"
+#include "output_file.hpp"
 #include "site_listening.hpp"
 #include "test_signal.hpp"
 
@@ -59,8 +62,15 @@ const char* kHelp =
     "(docs/listening.md). DIR works on any static web host; it\n"
     "needs no server code and no cross-origin-isolation headers.\n"
     "\n"
-    "Paths inside CONFIG are relative to CONFIG's folder. DIR must be new, empty,\n"
-    "or a site this command made before (then it is rebuilt).\n"
+    "Paths inside CONFIG (and inside its listening test definition) are relative,\n"
+    "and every one must resolve, after symlinks, inside CONFIG's folder (or an\n"
+    "--allow-root folder).\n"
+    "\n"
+    "DIR must be new, empty, or a site this command made before; replacing an\n"
+    "earlier site needs --force. The site is built in a new folder beside DIR and\n"
+    "swapped in by rename when complete, so a failed build leaves DIR as it was;\n"
+    "the old site is then removed as a whole, without following symlinks. DIR\n"
+    "must not be a symlink, nor be or hold CONFIG's folder or any input.\n"
     "\n"
     "options:\n"
     "  --out DIR           where to write the site (required)\n"
@@ -68,6 +78,9 @@ const char* kHelp =
     "                      (default: found upward from CONFIG, then from this program)\n"
     "  --wasm-simd PATH    earshot-simd.wasm (default: ASSETS/build/wasm-simd/)\n"
     "  --wasm-scalar PATH  earshot-scalar.wasm (default: ASSETS/build/wasm-scalar/)\n"
+    "  --allow-root DIR    also accept CONFIG paths that resolve inside DIR (e.g. a\n"
+    "                      shared folder of test files; repeatable)\n"
+    "  --force             replace an earlier site in DIR\n"
     "  --quiet             no summary\n"
     "  -h, --help          this text\n";
 
@@ -260,15 +273,13 @@ class SiteFiles {
   const fs::path& root() const { return root_; }
   const std::vector<std::string>& written() const { return written_; }
 
-  // Writes DIR/rel.
+  // Writes DIR/rel (through output_file.hpp).
   void write(const std::string& rel, const void* data, size_t n) {
     const fs::path p = root_ / rel;
     written_.push_back(fs::path(rel).generic_string());
-    std::ofstream f(p, std::ios::binary | std::ios::trunc);
-    if (!f) throw InputError("cannot write '" + p.string() + "': " + std::strerror(errno));
-    f.write(static_cast<const char*>(data), std::streamsize(n));
-    f.close();
-    if (!f) throw InputError("cannot write '" + p.string() + "'");
+    OutputFile f(p.string());
+    f.write(data, n);
+    f.commit();
   }
 
   // Copies the file `from` to DIR/rel.
@@ -277,9 +288,15 @@ class SiteFiles {
     if (!fs::is_regular_file(from, ec)) throw InputError("cannot read " + what + " '" + from.string() + "': not a file");
     const fs::path to = root_ / rel;
     fs::create_directories(to.parent_path(), ec);
+    if (ec) throw InputError("cannot create '" + to.parent_path().string() + "': " + ec.message());
     written_.push_back(fs::path(rel).generic_string());
-    fs::copy_file(from, to, fs::copy_options::overwrite_existing, ec);
-    if (ec) throw InputError("cannot copy " + what + " '" + from.string() + "' to '" + to.string() + "': " + ec.message());
+    std::ifstream in(from, std::ios::binary);
+    if (!in) throw InputError("cannot read " + what + " '" + from.string() + "': " + std::strerror(errno));
+    OutputFile f(to.string());
+    char buf[65536];
+    while (in.read(buf, sizeof buf) || in.gcount() > 0) f.write(buf, size_t(in.gcount()));
+    if (in.bad()) throw InputError("cannot read " + what + " '" + from.string() + "'");
+    f.commit();
   }
 
  private:
@@ -322,37 +339,139 @@ std::vector<unsigned char> read_wasm(const fs::path& p, const std::string& optio
   return b;
 }
 
-// DIR must be new, empty, or an earlier site: then the files that build wrote
-// (listed in the marker file) are removed, and nothing else.
-void prepare_out(const fs::path& out) {
-  std::error_code ec;
-  if (fs::exists(out, ec)) {
-    if (!fs::is_directory(out, ec)) throw UsageError("--out '" + out.string() + "' exists and is not a folder");
-    const bool empty = fs::is_empty(out, ec);
-    if (!empty && !fs::exists(out / kMarker, ec))
-      throw UsageError("--out '" + out.string() +
-                       "' is not empty and was not made by 'earshot site'; choose a new or empty folder");
-    if (!empty) {
-      std::ifstream list(out / kMarker);
-      std::string line;
-      while (std::getline(list, line)) {
-        if (line.empty() || line[0] == '#') continue;
-        const fs::path rel(line);
-        if (rel.is_absolute() || line.find("..") != std::string::npos) continue;
-        fs::remove(out / rel, ec);
-      }
-      for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference", "listening"})
-        if (fs::is_directory(out / sub, ec) && fs::is_empty(out / sub, ec)) fs::remove(out / sub, ec);
-      fs::remove(out / kMarker, ec);
+// The output folder DIR (docs/site.md, "Rebuilding"). DIR must be new, empty,
+// or an earlier site (its marker file present) and then --force is needed. It
+// must not be a symlink, nor be or hold CONFIG's folder or an input. The site
+// is built in a fresh folder beside DIR and swapped in by rename only when
+// complete. Files the site owner added to the old site (not in its marker
+// list) are carried into the new one as hard links, symlinks as symlinks,
+// never followed. The old site is then removed with std::filesystem::remove_all,
+// which unlinks symlinks and never follows them. Nothing outside DIR is touched.
+class SiteFolder {
+ public:
+  SiteFolder(const fs::path& out, bool force, const std::vector<std::pair<std::string, fs::path>>& inputs)
+      : shown_(out.string()) {
+    std::error_code ec;
+    struct stat st;
+    existed_ = ::lstat(out.c_str(), &st) == 0;
+    if (existed_) {
+      if (S_ISLNK(st.st_mode))
+        throw UsageError("--out '" + out.string() + "' is a symbolic link; give the folder itself (a rebuild never "
+                         "follows links)");
+      if (!S_ISDIR(st.st_mode)) throw UsageError("--out '" + out.string() + "' exists and is not a folder");
+      const bool empty = fs::is_empty(out, ec);
+      if (ec) throw InputError("cannot list '" + out.string() + "': " + ec.message());
+      if (!empty && !fs::is_regular_file(fs::symlink_status(out / kMarker, ec)))
+        throw UsageError("--out '" + out.string() +
+                         "' is not empty and was not made by 'earshot site'; choose a new or empty folder");
+      if (!empty && !force)
+        throw UsageError("--out '" + out.string() + "' holds a site built before; pass --force to replace it");
+    }
+    const fs::path real = fs::weakly_canonical(fs::absolute(out, ec), ec);
+    if (ec || real.filename().empty() || real == real.root_path())
+      throw UsageError("--out '" + out.string() + "': cannot build a site there; name a folder");
+    for (const auto& in : inputs) {
+      const fs::path r = fs::weakly_canonical(fs::absolute(in.second, ec), ec);
+      if (!ec && path_within(r, real))
+        throw UsageError("--out '" + out.string() + "' is or holds the " + in.first + " '" + in.second.string() +
+                         "'; choose a folder outside it");
+    }
+    out_ = real;  // the swap works on the resolved folder (so "." or "dir/" work too)
+    const fs::path parent = real.parent_path();
+    fs::create_directories(parent, ec);
+    if (ec) throw InputError("cannot create '" + parent.string() + "': " + ec.message());
+    std::string tmpl = (parent / (real.filename().string() + ".earshot-tmp-XXXXXX")).string();
+    std::vector<char> buf(tmpl.begin(), tmpl.end());
+    buf.push_back('\0');
+    if (!::mkdtemp(buf.data()))
+      throw InputError("cannot create a folder beside '" + out.string() + "' to build in: " + std::strerror(errno));
+    build_ = buf.data();
+    const mode_t mask = ::umask(0);  // mkdtemp makes 0700; the site gets what mkdir(0777) would give
+    ::umask(mask);
+    ::chmod(build_.c_str(), 0777 & ~mask);
+    for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference"}) {
+      fs::create_directories(build_ / sub, ec);
+      if (ec) throw InputError("cannot create '" + (build_ / sub).string() + "': " + ec.message());
     }
   }
-  fs::create_directories(out, ec);
-  if (ec) throw InputError("cannot create '" + out.string() + "': " + ec.message());
-  for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference"}) {
-    fs::create_directories(out / sub, ec);
-    if (ec) throw InputError("cannot create '" + (out / sub).string() + "': " + ec.message());
+
+  ~SiteFolder() {
+    if (build_.empty()) return;
+    std::error_code ec;
+    fs::remove_all(build_, ec);
   }
-}
+
+  SiteFolder(const SiteFolder&) = delete;
+  SiteFolder& operator=(const SiteFolder&) = delete;
+
+  const fs::path& build() const { return build_; }
+
+  // Swaps the built site into DIR; the old one (now in the build folder's
+  // place) is removed by the destructor.
+  void commit() {
+    struct stat st;
+    const bool there = ::lstat(out_.c_str(), &st) == 0;
+    if (there != existed_ || (there && !S_ISDIR(st.st_mode)))
+      throw InputError("--out '" + shown_ + "' changed while the site was built; nothing was replaced");
+    if (there) carry_over();
+    if (!there) {
+      if (std::rename(build_.c_str(), out_.c_str()) != 0)
+        throw InputError("cannot move the built site into '" + shown_ + "': " + std::strerror(errno));
+      build_.clear();
+      return;
+    }
+    if (::renameat2(AT_FDCWD, build_.c_str(), AT_FDCWD, out_.c_str(), RENAME_EXCHANGE) == 0) return;
+    if (errno != EINVAL && errno != ENOSYS)
+      throw InputError("cannot swap the built site into '" + shown_ + "': " + std::strerror(errno));
+    // No atomic exchange on this file system: move the old site aside, then the new one in.
+    std::string tmpl = build_.string() + "-old-XXXXXX";
+    std::vector<char> buf(tmpl.begin(), tmpl.end());
+    buf.push_back('\0');
+    if (!::mkdtemp(buf.data()) || std::rename(out_.c_str(), buf.data()) != 0)
+      throw InputError("cannot move the old site '" + shown_ + "' aside: " + std::strerror(errno));
+    if (std::rename(build_.c_str(), out_.c_str()) != 0) {
+      const int err = errno;
+      std::rename(buf.data(), out_.c_str());
+      throw InputError("cannot move the built site into '" + shown_ + "': " + std::strerror(err));
+    }
+    build_ = buf.data();
+  }
+
+ private:
+  // Hard-links every file of the old site that its last build did not write
+  // into the same place in the new one, unless the new build wrote that path.
+  void carry_over() {
+    std::set<std::string> built_before = {kMarker};
+    {
+      std::ifstream list(out_ / kMarker);
+      std::string line;
+      while (std::getline(list, line))
+        if (!line.empty() && line[0] != '#') built_before.insert(line);
+    }
+    std::error_code ec;
+    for (auto it = fs::recursive_directory_iterator(out_, ec); !ec && it != fs::recursive_directory_iterator();
+         it.increment(ec)) {
+      const fs::file_status st = it->symlink_status(ec);  // the entry itself, never its target
+      if (ec) break;
+      if (fs::is_directory(st)) continue;  // recursed into (a symlink to a folder is not)
+      const fs::path rel = it->path().lexically_relative(out_);
+      if (built_before.count(rel.generic_string())) continue;
+      const fs::path to = build_ / rel;
+      struct stat there;
+      if (::lstat(to.c_str(), &there) == 0) continue;  // the new build wrote this path
+      fs::create_directories(to.parent_path(), ec);
+      if (ec || ::linkat(AT_FDCWD, it->path().c_str(), AT_FDCWD, to.c_str(), 0) != 0)
+        throw InputError("cannot keep '" + it->path().string() + "' (a file the site builder did not write) in the "
+                         "rebuilt site: " + (ec ? ec.message() : std::string(std::strerror(errno))) +
+                         "; nothing was replaced");
+    }
+    if (ec) throw InputError("cannot list '" + shown_ + "': " + ec.message() + "; nothing was replaced");
+  }
+
+  std::string shown_;  // DIR as given, for messages
+  fs::path out_, build_;
+  bool existed_ = false;
+};
 
 // Copies web/ (recursively) into the site: index.html, style.css, js/, ...
 size_t copy_page(const fs::path& web, SiteFiles& out) {
@@ -422,6 +541,8 @@ int cmd_site(const std::vector<std::string>& argv) {
                                    {"--assets", true},
                                    {"--wasm-simd", true},
                                    {"--wasm-scalar", true},
+                                   {"--force", false},
+                                   {"--allow-root", true},
                                    {"--quiet", false}});
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
@@ -437,6 +558,20 @@ int cmd_site(const std::vector<std::string>& argv) {
   const fs::path config_dir = fs::path(config_path).parent_path().empty() ? fs::path(".") : fs::path(config_path).parent_path();
   Config cfg = parse_config(config_path);
   const Where where{config_path, cfg.source};
+  // Every path in the config resolves inside its folder (site_listening.hpp, confine).
+  std::error_code root_ec;
+  const fs::path root = fs::canonical(config_dir, root_ec);
+  if (root_ec) throw InputError("cannot resolve the folder of '" + config_path + "': " + root_ec.message());
+  std::vector<fs::path> roots = {root};
+  for (const std::string& r : a.all("--allow-root")) {
+    std::error_code ec;
+    const fs::path p = fs::canonical(r, ec);
+    if (ec || !fs::is_directory(p, ec)) throw UsageError("--allow-root '" + r + "' is not an existing folder");
+    roots.push_back(p);
+  }
+  for (const EffectEntry& fx : cfg.effects) confine(config_path, fx.field + ".file", roots, config_dir, fx.file);
+  for (const ClipEntry& cl : cfg.clips) confine(config_path, cl.field + ".file", roots, config_dir, cl.file);
+  if (!cfg.listening.empty()) confine(config_path, "listening", roots, config_dir, cfg.listening);
 
   fs::path assets;
   if (const std::string* p = a.last("--assets")) {
@@ -446,12 +581,12 @@ int cmd_site(const std::vector<std::string>& argv) {
   } else {
     assets = find_assets(config_dir);
   }
-  const std::vector<unsigned char> wasm_simd =
-      read_wasm(a.last("--wasm-simd") ? fs::path(*a.last("--wasm-simd")) : assets / "build/wasm-simd/earshot-simd.wasm",
-                "--wasm-simd", "wasm-simd");
-  const std::vector<unsigned char> wasm_scalar = read_wasm(
-      a.last("--wasm-scalar") ? fs::path(*a.last("--wasm-scalar")) : assets / "build/wasm-scalar/earshot-scalar.wasm",
-      "--wasm-scalar", "wasm-scalar");
+  const fs::path wasm_simd_path =
+      a.last("--wasm-simd") ? fs::path(*a.last("--wasm-simd")) : assets / "build/wasm-simd/earshot-simd.wasm";
+  const fs::path wasm_scalar_path =
+      a.last("--wasm-scalar") ? fs::path(*a.last("--wasm-scalar")) : assets / "build/wasm-scalar/earshot-scalar.wasm";
+  const std::vector<unsigned char> wasm_simd = read_wasm(wasm_simd_path, "--wasm-simd", "wasm-simd");
+  const std::vector<unsigned char> wasm_scalar = read_wasm(wasm_scalar_path, "--wasm-scalar", "wasm-scalar");
   for (const char* f : {"loader.js", "capabilities.js", "processor.js"}) {
     std::error_code ec;
     if (!fs::is_regular_file(assets / "worklet" / f, ec))
@@ -528,6 +663,11 @@ int cmd_site(const std::vector<std::string>& argv) {
     SNDFILE* f = sf_open(file.string().c_str(), SFM_READ, &info);
     if (!f) where.fail(cl.field + ".file", "cannot read audio file '" + file.string() + "': " + sf_strerror(nullptr));
     sf_close(f);
+    try {
+      check_declared_length(file.string(), info.format, info.channels, int64_t(info.frames));
+    } catch (const InputError& e) {
+      where.fail(cl.field + ".file", e.what());
+    }
     if (info.channels < 1 || info.channels > 2)
       where.fail(cl.field + ".file", "'" + cl.file + "' has " + std::to_string(info.channels) +
                                          " channels; the page renders mono or stereo only");
@@ -554,13 +694,23 @@ int cmd_site(const std::vector<std::string>& argv) {
     std::vector<ListeningClip> bundled(cfg.clips.size());
     for (size_t i = 0; i < cfg.clips.size(); ++i)
       bundled[i] = {(config_dir / cfg.clips[i].file).lexically_normal(), "clips/" + cfg.clips[i].id + clip_info[i].ext};
-    listening = plan_listening(def, fx, bundled);
+    listening = plan_listening(def, fx, bundled, roots);
   }
 
-  // Write.
-  const fs::path out = *out_opt;
-  prepare_out(out);
-  SiteFiles files(out);
+  // Write: into a fresh folder beside DIR, swapped in at the end (SiteFolder).
+  fs::path out = fs::path(*out_opt).lexically_normal();
+  if (!out.has_filename() && out.has_relative_path()) out = out.parent_path();  // "dir/" names "dir"
+  std::vector<std::pair<std::string, fs::path>> inputs = {{"config file", config_path}, {"config folder", root},
+                                                          {"page source", assets / "web"},
+                                                          {"worklet source", assets / "worklet"}};
+  inputs.emplace_back("WebAssembly build", wasm_simd_path);
+  inputs.emplace_back("WebAssembly build", wasm_scalar_path);
+  for (const EffectEntry& fx : cfg.effects) inputs.emplace_back("effect", config_dir / fx.file);
+  for (const ClipEntry& cl : cfg.clips) inputs.emplace_back("clip", config_dir / cl.file);
+  for (const auto& c : listening.copies) inputs.emplace_back("listening test file", c.first);
+  for (size_t i = 1; i < roots.size(); ++i) inputs.emplace_back("--allow-root folder", roots[i]);
+  SiteFolder folder(out, a.has("--force"), inputs);
+  SiteFiles files(folder.build());
   const size_t page_files = copy_page(assets / "web", files);
   for (const char* f : {"loader.js", "capabilities.js", "processor.js"})
     files.copy(assets / "worklet" / f, std::string("worklet/") + f, "worklet file");
@@ -705,6 +855,7 @@ int cmd_site(const std::vector<std::string>& argv) {
   std::string marker = "# made by 'earshot site'; the next run removes these files and rebuilds\n";
   for (const std::string& f : files.written()) marker += f + "\n";
   files.write(kMarker, marker.data(), marker.size());
+  folder.commit();
 
   if (!a.has("--quiet")) {
     std::error_code ec;

@@ -48,9 +48,16 @@ std::string number_text(double v) {
 
 class Checker {
  public:
-  Checker(const fs::path& def, const std::vector<ListeningEffect>& effects, const std::vector<ListeningClip>& clips)
+  Checker(const fs::path& def, const std::vector<ListeningEffect>& effects, const std::vector<ListeningClip>& clips,
+          const std::vector<fs::path>& roots)
       : w_{def.string()}, dir_(def.parent_path().empty() ? fs::path(".") : def.parent_path()), effects_(effects),
-        clips_(clips) {}
+        clips_(clips), roots_(roots) {
+    if (roots_.empty()) {
+      std::error_code ec;
+      roots_.push_back(fs::canonical(dir_, ec));
+      if (ec) throw InputError("cannot resolve the folder '" + dir_.string() + "': " + ec.message());
+    }
+  }
 
   ListeningPlan run() {
     const std::string text = read_text_file(w_.file, "listening test definition");
@@ -332,6 +339,7 @@ class Checker {
     const std::string rel = str(&v, field, false, 500);
     if (rel[0] == '/' || rel.find('\\') != std::string::npos)
       w_.fail(field, "'" + rel + "' must be a path relative to the definition's folder, with '/' between folders");
+    confine(w_.file, field, roots_, dir_, rel);
     const fs::path src = (dir_ / rel).lexically_normal();
     std::error_code ec;
     if (!fs::is_regular_file(src, ec)) w_.fail(field, "'" + rel + "': no such file (looked for '" + src.string() + "')");
@@ -395,6 +403,7 @@ class Checker {
   fs::path dir_;
   const std::vector<ListeningEffect>& effects_;
   const std::vector<ListeningClip>& clips_;
+  std::vector<fs::path> roots_;  // resolved folders every path must stay inside
   std::map<fs::path, Entry> files_;
   std::set<std::string> names_;
   ListeningPlan plan_;
@@ -403,8 +412,31 @@ class Checker {
 }  // namespace
 
 ListeningPlan plan_listening(const fs::path& definition, const std::vector<ListeningEffect>& effects,
-                             const std::vector<ListeningClip>& clips) {
-  return Checker(definition, effects, clips).run();
+                             const std::vector<ListeningClip>& clips, const std::vector<fs::path>& roots) {
+  return Checker(definition, effects, clips, roots).run();
+}
+
+bool path_within(const fs::path& inner, const fs::path& outer) {
+  auto o = outer.begin(), i = inner.begin();
+  for (; o != outer.end() && i != inner.end(); ++o, ++i)
+    if (*o != *i) return false;
+  return o == outer.end();
+}
+
+fs::path confine(const std::string& file, const std::string& field, const std::vector<fs::path>& roots,
+                 const fs::path& base, const std::string& rel) {
+  const Where w{file};
+  const std::string where = "the site config's folder '" + roots.at(0).string() + "'" +
+                            (roots.size() > 1 ? " or an --allow-root folder" : "");
+  if (fs::path(rel).is_absolute())
+    w.fail(field, "'" + rel + "' is an absolute path; paths must be relative and stay inside " + where);
+  std::error_code ec;
+  const fs::path resolved = fs::weakly_canonical(base / rel, ec);
+  if (ec) w.fail(field, "cannot resolve '" + rel + "': " + ec.message());
+  for (const fs::path& root : roots)
+    if (path_within(resolved, root)) return resolved;
+  w.fail(field, "'" + rel + "' resolves to '" + resolved.string() + "', outside " + where +
+                    "; every file a site uses must be inside it");
 }
 
 }  // namespace cli

@@ -39,8 +39,25 @@ struct ListeningPlan {
 };
 
 // Throws InputError "<definition>: <field>: <what is wrong>" for any fault.
+// Every audio path must resolve (after symlinks) inside one of `roots`, the
+// site config's folder and any --allow-root folder, all already resolved
+// (default: the definition's own folder).
 ListeningPlan plan_listening(const std::filesystem::path& definition, const std::vector<ListeningEffect>& effects,
-                             const std::vector<ListeningClip>& clips);
+                             const std::vector<ListeningClip>& clips,
+                             const std::vector<std::filesystem::path>& roots = {});
+
+// The confinement rule of the site builder (docs/site.md): `rel`, relative to
+// `base`, must not be absolute and must resolve (realpath, after symlinks)
+// inside one of `roots` (resolved folders; roots[0] is the config's folder).
+// Returns the resolved path; throws InputError "<file>: <field>: ..." naming
+// the resolved path otherwise. A path that does not exist yet is resolved as
+// far as it exists.
+std::filesystem::path confine(const std::string& file, const std::string& field,
+                              const std::vector<std::filesystem::path>& roots, const std::filesystem::path& base,
+                              const std::string& rel);
+
+// Whether the resolved path `inner` is `outer` or lies inside it (whole components).
+bool path_within(const std::filesystem::path& inner, const std::filesystem::path& outer);
 
 }  // namespace cli
 }  // namespace earshot

@@ -32,6 +32,7 @@
 #include "cli.hpp"  // first: it configures rapidjson
 #include "json_reader.hpp"
 #include "text_out.hpp"
+#include "output_file.hpp"
 
 #include <rapidjson/error/en.h>
 
@@ -59,9 +60,10 @@ const char* kHelp =
     "          of the test\n"
     "\n"
     "options:\n"
-    "  --csv FILE        also write the statistics as CSV (overwritten)\n"
+    "  --csv FILE        also write the statistics as CSV\n"
     "  --svg DIR         MUSHRA: write box plots, all.svg and one per item, into DIR\n"
-    "                    (created if missing; files overwritten)\n"
+    "                    (created if missing)\n"
+    "  --force           replace existing --csv and --svg files (never a RESULTS file)\n"
     "  --confidence C    confidence level of the intervals, 0.5 .. 0.999 (default 0.95)\n"
     "  --no-screening    keep every assessor (the screening is still reported)\n"
     "  --keep-incomplete tally participants who left items or ratings out (listed,\n"
@@ -638,12 +640,25 @@ std::string safe_name(const std::string& s) {
   return o;
 }
 
+// The run's output files (output_file.hpp): each is checked against the
+// overwrite policy and the results files, written to its temporary file, and
+// committed by cmd_tally only when every output is ready.
+struct Outputs {
+  bool force = false;
+  std::vector<std::pair<std::string, std::string>> inputs;  // ("RESULTS", path)
+  std::vector<std::unique_ptr<OutputFile>> pending;
+};
+Outputs& outputs() {
+  static Outputs o;
+  return o;
+}
+
 void write_file(const std::string& path, const std::string& text) {
-  std::ofstream f(path, std::ios::binary | std::ios::trunc);
-  if (!f) throw InputError("cannot write '" + path + "': " + std::strerror(errno));
-  f << text;
-  f.close();
-  if (!f) throw InputError("cannot write '" + path + "'");
+  Outputs& o = outputs();
+  refuse_same_file("output", path, o.inputs);
+  check_overwrite(path, o.force);
+  o.pending.emplace_back(new OutputFile(path));
+  o.pending.back()->write(text);
 }
 
 // ---- MUSHRA ----------------------------------------------------------------------------
@@ -993,7 +1008,8 @@ int cmd_tally(const std::vector<std::string>& argv) {
                                    {"--svg", true},
                                    {"--confidence", true},
                                    {"--no-screening", false},
-                                   {"--keep-incomplete", false}});
+                                   {"--keep-incomplete", false},
+                                   {"--force", false}});
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
     return kExitOk;
@@ -1017,9 +1033,17 @@ int cmd_tally(const std::vector<std::string>& argv) {
       throw InputError("cannot create folder '" + *dir + "': " + std::strerror(errno));
     }
   }
-  if (rs[0].type == "mushra") return tally_mushra(rs, a, confidence);
-  if (rs[0].type == "abx") return tally_abx(rs, a);
-  return tally_ab(rs, a);
+  Outputs& o = outputs();
+  struct Discard {  // an output not committed is removed, whatever ends the run
+    ~Discard() { outputs() = Outputs(); }
+  } discard;
+  o.force = a.has("--force");
+  for (const std::string& p : a.positional) o.inputs.emplace_back("RESULTS", p);
+  const int rc = rs[0].type == "mushra" ? tally_mushra(rs, a, confidence)
+                 : rs[0].type == "abx"  ? tally_abx(rs, a)
+                                        : tally_ab(rs, a);
+  for (auto& f : o.pending) f->commit();
+  return rc;
 }
 
 }  // namespace

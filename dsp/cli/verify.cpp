@@ -22,6 +22,7 @@
 #include <rapidjson/writer.h>
 
 #include "native.hpp"
+#include "output_file.hpp"
 #include "test_signal.hpp"
 
 namespace earshot {
@@ -29,7 +30,7 @@ namespace cli {
 namespace {
 
 const char* kHelp =
-    "usage: earshot verify FILE [--seconds S] [--rate HZ] [--json] [--write-signal PATH]\n"
+    "usage: earshot verify FILE [--seconds S] [--rate HZ] [--json] [--write-signal PATH [--force]]\n"
     "\n"
     "Runs every native variant this CPU supports on the standard test signal, with\n"
     "the controls at their defaults, and checks:\n"
@@ -54,6 +55,7 @@ const char* kHelp =
     "                       default: the model rate, no resampling)\n"
     "  --json               print the results as JSON\n"
     "  --write-signal PATH  also write the test signal as a float32 WAV\n"
+    "  --force              replace an existing --write-signal PATH\n"
     MAX_STREAM_HELP
     "  -h, --help           this text\n";
 
@@ -118,17 +120,17 @@ std::string sample_text(float v) {
   return buf;
 }
 
+// Through output_file.hpp: a temporary file beside PATH, renamed into place when complete.
 void write_signal(const std::string& path, const std::vector<float>& x, double rate) {
   SF_INFO info{};
   info.samplerate = int(rate);
   info.channels = 1;
   info.format = SF_FORMAT_WAV | SF_FORMAT_FLOAT;
-  SNDFILE* f = sf_open(path.c_str(), SFM_WRITE, &info);
-  if (!f) throw InputError("cannot write '" + path + "': " + sf_strerror(nullptr));
+  OutputFile out(path);
+  SNDFILE* f = out.sound(info);
   const sf_count_t n = sf_writef_float(f, x.data(), sf_count_t(x.size()));
-  const std::string err = sf_strerror(f);
-  sf_close(f);
-  if (n != sf_count_t(x.size())) throw InputError("cannot write '" + path + "': " + err);
+  if (n != sf_count_t(x.size())) throw InputError("cannot write '" + path + "': " + sf_strerror(f));
+  out.commit();
 }
 
 }  // namespace
@@ -138,7 +140,8 @@ int cmd_verify(const std::vector<std::string>& argv) {
                                    {"--seconds", true},
                                    {"--rate", true},
                                    {"--json", false},
-                                   {"--write-signal", true}});
+                                   {"--write-signal", true},
+                                   {"--force", false}});
   apply_stream_limit(a);
   if (a.has("--help")) {
     std::fputs(kHelp, stdout);
@@ -155,6 +158,10 @@ int cmd_verify(const std::vector<std::string>& argv) {
     if (rate != std::floor(rate)) throw UsageError("--rate: " + *r + " is not a whole number of Hz");
   }
   const std::string path = a.positional[0];
+  if (const std::string* p = a.last("--write-signal")) {
+    refuse_same_file("--write-signal", *p, {{"FILE", path}});
+    check_overwrite(*p, a.has("--force"));
+  }
   const std::vector<unsigned char> bytes = read_effect_file(path);
 
   std::string title;

@@ -41,7 +41,7 @@ if (!existsSync(config)) {
   process.exit(2);
 }
 const out = join(BENCH, 'site');
-mustRun(earshotBin(), ['site', config, '--out', out, '--quiet']);
+mustRun(earshotBin(), ['site', config, '--out', out, '--force', '--quiet']);
 
 function wav48(path, secs, channels, kind) {
   mustRun(PYTHON, ['-c', `

@@ -5,7 +5,7 @@ import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { existsSync, mkdirSync, readFileSync, rmSync, writeFileSync, statSync } from 'node:fs';
 import { join } from 'node:path';
-import { WORK, buildSite, earshotBin, ensureFixtures, mustRun, run } from './helpers.js';
+import { FIXTURES, WORK, buildSite, earshotBin, ensureFixtures, mustRun, run } from './helpers.js';
 
 test('the site holds the page, both builds, effects, clips and a reference equal to earshot verify', () => {
   const { out, site, config } = buildSite('builder-test');
@@ -39,7 +39,7 @@ test('a rebuild replaces what the last build wrote and keeps files the site owne
   const { out, configPath } = buildSite('builder-rebuild');
   writeFileSync(join(out, 'CNAME'), 'example.org\n');
   writeFileSync(join(out, 'effects', 'stale.nfx'), 'left by hand');
-  mustRun(earshotBin(), ['site', configPath, '--out', out, '--quiet']);
+  mustRun(earshotBin(), ['site', configPath, '--out', out, '--allow-root', FIXTURES, '--force', '--quiet']);
   assert.ok(existsSync(join(out, 'CNAME')));
   assert.ok(existsSync(join(out, 'effects', 'stale.nfx')), 'a file the builder did not write is left alone');
   assert.ok(existsSync(join(out, 'index.html')));
@@ -53,7 +53,7 @@ function tryConfig(name, config, extra = []) {
   writeFileSync(path, typeof config === 'string' ? config : JSON.stringify(config));
   const out = join(dir, `${name}-out`);
   rmSync(out, { recursive: true, force: true });
-  const r = run(earshotBin(), ['site', path, '--out', out, ...extra]);
+  const r = run(earshotBin(), ['site', path, '--out', out, '--allow-root', FIXTURES, ...extra]);
   return { ...r, path, out };
 }
 
@@ -109,11 +109,11 @@ test('bad command lines exit 2 and a foreign --out folder is left untouched', ()
   const foreign = join(WORK, 'builder-errors', 'foreign');
   mkdirSync(foreign, { recursive: true });
   writeFileSync(join(foreign, 'precious.txt'), 'mine');
-  r = run(earshotBin(), ['site', tryConfig('good', good).path, '--out', foreign]);
+  r = run(earshotBin(), ['site', tryConfig('good', good).path, '--out', foreign, '--allow-root', FIXTURES, '--force']);
   assert.equal(r.status, 2);
   assert.match(r.stderr, /is not empty and was not made by 'earshot site'/);
   assert.equal(readFileSync(join(foreign, 'precious.txt'), 'utf8'), 'mine');
-  r = run(earshotBin(), ['site', tryConfig('good2', good).path, '--out', join(WORK, 'x'), '--wasm-simd', '/nonexistent.wasm']);
+  r = run(earshotBin(), ['site', tryConfig('good2', good).path, '--out', join(WORK, 'x'), '--allow-root', FIXTURES, '--wasm-simd', '/nonexistent.wasm']);
   assert.equal(r.status, 3);
   assert.match(r.stderr, /no WebAssembly build at '\/nonexistent\.wasm'; build it with 'cmake --preset wasm-simd/);
   assert.ok(statSync(join(WORK, 'builder-errors')).isDirectory());

@@ -74,7 +74,9 @@ export function buildSite(tag, extra = {}) {
   const configPath = join(dir, 'site-config.json');
   writeFileSync(configPath, JSON.stringify(config, null, 1));
   const out = join(dir, 'site');
-  mustRun(earshotBin(), ['site', configPath, '--out', out, '--quiet']);
+  // The fixtures sit beside the config's folder: --allow-root opts them in (docs/site.md);
+  // --force replaces the site an earlier run built here.
+  mustRun(earshotBin(), ['site', configPath, '--out', out, '--allow-root', FIXTURES, '--force', '--quiet']);
   return { dir, out, config, configPath, site: JSON.parse(readFileSync(join(out, 'site.json'), 'utf8')) };
 }
 

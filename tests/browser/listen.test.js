@@ -115,7 +115,7 @@ print("fnv1a64-float32le:%016x" % h)
 
 function tallyCsv(file, tag) {
   const csv = join(WORK, 'listen-test', `${tag}.csv`);
-  const r = run(bin, ['tally', file, '--csv', csv]);
+  const r = run(bin, ['tally', file, '--csv', csv, '--force']);
   assert.equal(r.status, 0, `earshot tally failed:\n${r.stdout}\n${r.stderr}`);
   const [head, ...rows] = readFileSync(csv, 'utf8').trim().split('\n').map((l) => l.split(','));
   return { text: r.stdout, rows: rows.map((r) => Object.fromEntries(head.map((h, i) => [h, r[i]]))) };

@@ -136,7 +136,7 @@ test('live input through the AudioWorklet gives the expected processed signal', 
   const fx = join(built.out, 'effects', 'tcn.nfx');
   const controls = ['--control', 'drive=0.7', '--control', 'tone=-3'];
   const cliPath = tmpFile('live-cli.wav');
-  mustRun(earshotBin(), ['render', fx, inPath, cliPath, '--keep-latency', '--quiet', ...controls]);
+  mustRun(earshotBin(), ['render', fx, inPath, cliPath, '--keep-latency', '--quiet', '--force', ...controls]);
   const segWav = tmpFile('live-expected-input.wav');
   const a = JSON.parse(mustRun(PYTHON, ['-c', ANALYSIS, inPath, outPath, cliPath, fixture('live-44k-i16.wav'), segWav]).stdout);
   console.log(`# live: ${JSON.stringify(a)}`);
@@ -148,7 +148,7 @@ test('live input through the AudioWorklet gives the expected processed signal', 
 
   // 3: the known file (with the device's gaps), rendered natively.
   const refPath = tmpFile('live-ref.wav');
-  mustRun(earshotBin(), ['render', fx, segWav, refPath, '--keep-latency', '--quiet', ...controls]);
+  mustRun(earshotBin(), ['render', fx, segWav, refPath, '--keep-latency', '--quiet', '--force', ...controls]);
   const e = JSON.parse(mustRun(PYTHON, ['-c', ESR, outPath, refPath]).stdout);
   assert.ok(e.esr_db <= -60, `live output vs the known file rendered natively: ESR ${e.esr_db.toFixed(1)} dB (max |error| ${e.max_abs})`);
   console.log(`# live: output vs the known file rendered natively: ESR ${e.esr_db.toFixed(1)} dB, max |error| ${e.max_abs.toExponential(2)}`);

@@ -7,7 +7,7 @@ import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { existsSync, mkdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { REPO, WORK, earshotBin, ensureFixtures, mustRun, run } from './helpers.js';
+import { FIXTURES, REPO, WORK, earshotBin, ensureFixtures, mustRun, run } from './helpers.js';
 import { parseConfig } from '../../web/js/listen-config.js';
 
 const DIR = join(WORK, 'site-listening');
@@ -76,7 +76,7 @@ function build(name, def) {
   writeFileSync(configPath, JSON.stringify(config));
   const out = join(DIR, `${name}-out`);
   rmSync(out, { recursive: true, force: true });
-  return { ...run(earshotBin(), ['site', configPath, '--out', out]), out, defPath, configPath };
+  return { ...run(earshotBin(), ['site', configPath, '--out', out, '--allow-root', FIXTURES]), out, defPath, configPath };
 }
 
 test('the site gets listening.json with site paths, the files it names, and a summary in site.json', () => {
@@ -121,7 +121,7 @@ test('the site gets listening.json with site paths, the files it names, and a su
   const config = JSON.parse(readFileSync(r.configPath, 'utf8'));
   delete config.listening;
   writeFileSync(r.configPath, JSON.stringify(config));
-  mustRun(earshotBin(), ['site', r.configPath, '--out', r.out, '--quiet']);
+  mustRun(earshotBin(), ['site', r.configPath, '--out', r.out, '--allow-root', FIXTURES, '--force', '--quiet']);
   assert.equal(existsSync(join(r.out, 'listening.json')), false);
   assert.equal(existsSync(join(r.out, 'listening')), false);
   assert.equal(JSON.parse(readFileSync(join(r.out, 'site.json'), 'utf8')).listening, undefined);
@@ -196,18 +196,18 @@ test('a listening field that names no file, is not a string, or is misspelt is r
   const config = JSON.parse(readFileSync(r.configPath, 'utf8'));
   config.listening = 'nowhere.json';
   writeFileSync(r.configPath, JSON.stringify(config));
-  r = run(earshotBin(), ['site', r.configPath, '--out', join(DIR, 'missing-2')]);
+  r = run(earshotBin(), ['site', r.configPath, '--out', join(DIR, 'missing-2'), '--allow-root', FIXTURES]);
   assert.equal(r.status, 3);
   assert.match(r.stderr, /missing\.site\.json: line \d+, column \d+: listening: no listening test definition at '.*nowhere\.json'/);
   config.listening = 3;
   writeFileSync(join(DIR, 'missing.site.json'), JSON.stringify(config));
-  r = run(earshotBin(), ['site', join(DIR, 'missing.site.json'), '--out', join(DIR, 'missing-2')]);
+  r = run(earshotBin(), ['site', join(DIR, 'missing.site.json'), '--out', join(DIR, 'missing-2'), '--allow-root', FIXTURES]);
   assert.equal(r.status, 3);
   assert.match(r.stderr, /listening: must be a string, got a number/);
   delete config.listening;
   config.listening_tests = [];
   writeFileSync(join(DIR, 'missing.site.json'), JSON.stringify(config));
-  r = run(earshotBin(), ['site', join(DIR, 'missing.site.json'), '--out', join(DIR, 'missing-2')]);
+  r = run(earshotBin(), ['site', join(DIR, 'missing.site.json'), '--out', join(DIR, 'missing-2'), '--allow-root', FIXTURES]);
   assert.equal(r.status, 3);
   assert.match(r.stderr, /unknown field 'listening_tests' \(allowed: .*, listening\)/);
   assert.equal(existsSync(join(DIR, 'missing-2')), false);

@@ -157,7 +157,7 @@ test('an uploaded WAV rendered offline and downloaded is bit-identical to earsho
     const pagePath = await download(page, '#download', `offline-page-${i}.wav`);
     const cliPath = tmpFile(`offline-cli-${i}.wav`);
     mustRun(earshotBin(), ['render', join(built.out, built.site.effects[1].file), c.file, cliPath,
-      '--control', 'drive=0.35', '--control', 'tone=4.5', '--quiet', ...c.args]);
+      '--control', 'drive=0.35', '--control', 'tone=4.5', '--quiet', '--force', ...c.args]);
     const cmp = compareWavBits(pagePath, cliPath);
     assert.equal(cmp.same, true, `page vs earshot render for ${c.file}: ${JSON.stringify(cmp)}`);
     assert.equal(cmp.dtypes[0], 'float32');

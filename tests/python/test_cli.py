@@ -374,7 +374,8 @@ def test_render_mix_and_gains(fx, tmp_path):
     wavfile.write(tmp_path / "in.wav", rate, x)
 
     def render(*opts):
-        run("render", fx["half"], tmp_path / "in.wav", tmp_path / "o.wav", *opts, check_rc=OK)
+        # The same OUT each time: --force replaces it (an existing OUT is refused without it).
+        run("render", fx["half"], tmp_path / "in.wav", tmp_path / "o.wav", "--force", *opts, check_rc=OK)
         return read_wav(tmp_path / "o.wav")[1].astype(np.float64)
 
     assert np.array_equal(render("--mix", "0"), x)  # dry only: dry·1 + wet·0
@@ -437,7 +438,8 @@ def test_render_progress_bar_only_when_asked(fx, tmp_path):
     p = run("render", fx["half"], tmp_path / "in.wav", tmp_path / "o.wav", "--block", "1000", check_rc=OK)
     assert p.stderr == ""  # stderr is a pipe here: no bar
     assert p.stdout.startswith("wrote ")
-    p = run("render", fx["half"], tmp_path / "in.wav", tmp_path / "o.wav", "--progress", "--quiet", check_rc=OK)
+    p = run("render", fx["half"], tmp_path / "in.wav", tmp_path / "o.wav", "--progress", "--quiet", "--force",
+            check_rc=OK)
     assert "rendering [" in p.stderr and "100%" in p.stderr and p.stdout == ""
 
 
