@@ -16,10 +16,15 @@ import subprocess
 import pytest
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
-EARSHOT = pathlib.Path(os.environ.get("EARSHOT_BUILD", ROOT / "build" / "native")) / "earshot"
+from conftest import BUILD, need_built  # noqa: E402
+
+EARSHOT = BUILD / "earshot"
 FX = ROOT / "demos" / "effects" / "gru.nfx"
 
-pytestmark = pytest.mark.skipif(not EARSHOT.exists(), reason="earshot CLI not built")
+
+@pytest.fixture(scope="module", autouse=True)
+def _built():
+    need_built(EARSHOT)
 
 
 def test_render_failure_keeps_existing_out(tmp_path):
