@@ -3,7 +3,8 @@
 #   bash tools/fuzz.sh NAME|all SECONDS [extra libFuzzer args]
 # Builds the `fuzz` preset (ASan + UBSan) if needed; FUZZ_PRESET=fuzz-nosan for
 # a build without sanitizers. The checked-in seed corpus is copied to a scratch
-# folder first and never modified. Prints executions, exec/s and coverage
+# folder first and never modified; the effect harness also starts from every
+# file of the conformance corpus tests/data/effects. Prints executions, exec/s and coverage
 # (cov:/ft: of libFuzzer's last status line); exits non-zero on a crash, leak,
 # timeout or OOM, and names the input that caused it (kept in fuzz-out/).
 set -uo pipefail
@@ -28,6 +29,14 @@ status=0
 for h in "${run[@]}"; do
   scratch=$(mktemp -d "${TMPDIR:-/tmp}/earshot-$h.XXXXXX")
   cp -r "tests/fuzz/corpus/$h/." "$scratch/"
+  if [ "$h" = fuzz_effect ]; then
+    # Every file of the conformance corpus (tests/data/effects) is a seed too,
+    # behind the harness's 10-byte header (48 kHz, default variant).
+    for f in tests/data/effects/valid/*.nfx tests/data/effects/invalid/*.nfx; do
+      [ -f "$f" ] || continue
+      { head -c 10 /dev/zero; cat "$f"; } >"$scratch/conformance-$(basename "$f")"
+    done
+  fi
   dict=(); [ -f "tests/fuzz/$h.dict" ] && dict=(-dict="tests/fuzz/$h.dict")
   log="$out/$h.log"
   "$build/$h" "$scratch" "${dict[@]}" -max_total_time="$seconds" -rss_limit_mb=2048 -malloc_limit_mb=2048 \

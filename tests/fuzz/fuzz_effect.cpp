@@ -5,7 +5,11 @@
 // Input layout: byte 0 picks the host rate, byte 1 the variant, bytes 2..9
 // drive the control/mix/gain/reset calls and the block sizes; the rest is the
 // effect file. Each execution processes at most kMaxSamples samples so the
-// fuzzer keeps thousands of executions per second.
+// fuzzer keeps thousands of executions per second. Byte 0 below 240 means
+// 48 kHz, the rate of most models: designing a resampler takes milliseconds (13 ms for
+// 44.1 kHz, 31 ms for 22.05 kHz on the development machine) against
+// microseconds for loading and processing, and depends on the rate pair only,
+// so the other rates are taken for one input in sixteen.
 #include <cmath>
 #include <cstddef>
 #include <cstdint>
@@ -16,10 +20,11 @@
 namespace {
 
 constexpr size_t kHeader = 10;
-constexpr int kMaxSamples = 2048;  // per execution, all blocks together
+constexpr int kMaxSamples = 512;  // per execution, all blocks together
 
-// Host rates in Hz: the common model rate, and others that exercise the resampler both ways.
-constexpr double kRates[] = {48000.0, 44100.0, 96000.0, 22050.0, 8000.0, 192000.0, 47999.0, 32000.0};
+// Host rates in Hz other than 48 kHz: both directions of the resampler, a
+// near-unity ratio it refuses (47999/48000), and the range's edges.
+constexpr double kOtherRates[] = {44100.0, 96000.0, 22050.0, 8000.0, 192000.0, 47999.0, 32000.0, 384000.0};
 const char* const kVariants[] = {nullptr, "scalar", "sse4", "avx2", "avx2fma", "bogus"};
 
 float value_of(uint8_t b) {
@@ -45,7 +50,7 @@ struct Signal {
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   if (size < kHeader) return 0;
   const uint8_t* h = data;
-  const double rate = kRates[h[0] % (sizeof kRates / sizeof kRates[0])];
+  const double rate = h[0] < 240 ? 48000.0 : kOtherRates[h[0] % (sizeof kOtherRates / sizeof kOtherRates[0])];
   const char* variant = kVariants[h[1] % (sizeof kVariants / sizeof kVariants[0])];
   char error[256];
   error[0] = '\0';

@@ -1,10 +1,7 @@
 // libFuzzer harness: the listening-test results reader (`earshot tally`,
 // dsp/cli/tally.cpp load). A bad file must end in InputError; any other
 // exception, a crash or a sanitizer report is a finding.
-//
-// load() lives in tally.cpp's unnamed namespace, so the file is included here
-// rather than changed (the shared JSON reader is being rebuilt on another
-// branch; its bytes-level entry point replaces this include when it lands).
+// The reader lives in the file's unnamed namespace, so the file is included.
 #include "../../dsp/cli/tally.cpp"
 
 #include "scratch_file.hpp"

@@ -1,10 +1,7 @@
 // libFuzzer harness: the site config reader (`earshot site`, dsp/cli/site.cpp
 // parse_config). A bad config must end in InputError naming the file; any
 // other exception, a crash or a sanitizer report is a finding.
-//
-// parse_config lives in site.cpp's unnamed namespace, so the file is included
-// here rather than changed (the shared JSON reader is being rebuilt on another
-// branch; its bytes-level entry point replaces this include when it lands).
+// The reader lives in the file's unnamed namespace, so the file is included.
 #include "../../dsp/cli/site.cpp"
 
 #include "scratch_file.hpp"
