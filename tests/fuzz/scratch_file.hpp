@@ -13,14 +13,17 @@
 
 namespace earshot_fuzz {
 
+// Both lists live on the heap and are never destroyed: remove_scratch runs
+// from atexit, and a function-local static constructed after the atexit
+// registration would already be destroyed by then (C++17 [basic.start.term]/3).
 inline std::string& scratch_dir_name() {
-  static std::string dir;
-  return dir;
+  static std::string* const dir = new std::string;
+  return *dir;
 }
 
 inline std::vector<std::string>& scratch_files() {
-  static std::vector<std::string> files;
-  return files;
+  static std::vector<std::string>* const files = new std::vector<std::string>;
+  return *files;
 }
 
 inline void remove_scratch() {
