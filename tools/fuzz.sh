@@ -12,7 +12,7 @@ cd "$(dirname "$0")/.."
 [ $# -ge 2 ] || { echo "usage: tools/fuzz.sh NAME|all SECONDS [libFuzzer args]" >&2; exit 2; }
 name=$1 seconds=$2; shift 2
 preset=${FUZZ_PRESET:-fuzz}
-harnesses=(fuzz_effect fuzz_site_config fuzz_listening fuzz_results)
+harnesses=(fuzz_effect fuzz_site_config fuzz_listening fuzz_results fuzz_audio)
 [ "$name" = all ] && run=("${harnesses[@]}") || run=("$name")
 
 build=build/$preset

@@ -72,8 +72,14 @@ struct Audio {
   int format = 0;  // libsndfile's SF_INFO.format (major | subtype)
 };
 
+// The most samples (frames x channels) read_audio holds: 2^28 floats, 1 GiB,
+// 46 minutes of stereo at 48 kHz. A few MB of FLAC can decode to that much.
+constexpr int64_t kMaxAudioSamples = int64_t(1) << 28;
+
 // Reads any file libsndfile reads; InputError naming the file and what is
-// wrong: unreadable, 1..32 channels, 8000..384000 Hz, non-finite samples.
+// wrong: unreadable, 1..32 channels, 8000..384000 Hz, more than
+// kMaxAudioSamples, fewer frames than declared, non-finite samples. Memory
+// grows with the frames decoded, not with the header's claim.
 Audio read_audio(const std::string& path);
 
 // libsndfile shortens a WAV whose data chunk runs past the end of the file to

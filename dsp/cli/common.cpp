@@ -383,16 +383,33 @@ Audio read_audio(const std::string& path) {
                      " Hz; 8000 to 384000 Hz are supported");
   if (info.frames < 0) throw InputError("'" + path + "': libsndfile reports no length");
   check_declared_length(path, info.format, info.channels, int64_t(info.frames));
-  a.frames = size_t(info.frames);
-  a.samples.resize(a.frames * size_t(a.channels));
-  const sf_count_t got = a.frames ? sf_readf_float(f.get(), a.samples.data(), sf_count_t(a.frames)) : 0;
-  if (got != sf_count_t(a.frames))
-    throw InputError("'" + path + "': read " + std::to_string(got) + " of " + std::to_string(a.frames) +
+  const int64_t declared = int64_t(info.frames);
+  if (declared > kMaxAudioSamples / a.channels)
+    throw InputError("'" + path + "' declares " + std::to_string(declared) + " frames of " +
+                     std::to_string(a.channels) + " channels; at most " + std::to_string(kMaxAudioSamples) +
+                     " samples (frames x channels) are read");
+  // Read in pieces and grow with what was actually decoded: a compressed
+  // header may claim far more frames than the file holds, and memory must
+  // follow the data, never the claim.
+  const size_t ch = size_t(a.channels);
+  constexpr sf_count_t kPiece = 65536;
+  while (int64_t(a.frames) < declared) {
+    const sf_count_t want = sf_count_t(std::min<int64_t>(kPiece, declared - int64_t(a.frames)));
+    a.samples.resize((a.frames + size_t(want)) * ch);
+    const sf_count_t got = sf_readf_float(f.get(), a.samples.data() + a.frames * ch, want);
+    if (got < 0) break;
+    for (size_t i = a.frames * ch; i < (a.frames + size_t(got)) * ch; ++i)
+      if (!std::isfinite(a.samples[i]))
+        throw InputError("'" + path + "': sample " + std::to_string(i / ch) + " of channel " +
+                         std::to_string(i % ch + 1) + " is not a finite number");
+    a.frames += size_t(got);
+    if (got < want) break;
+  }
+  a.samples.resize(a.frames * ch);
+  a.samples.shrink_to_fit();
+  if (int64_t(a.frames) != declared)
+    throw InputError("'" + path + "': read " + std::to_string(a.frames) + " of " + std::to_string(declared) +
                      " frames: " + sf_strerror(f.get()));
-  for (size_t i = 0; i < a.samples.size(); ++i)
-    if (!std::isfinite(a.samples[i]))
-      throw InputError("'" + path + "': sample " + std::to_string(i / size_t(a.channels)) + " of channel " +
-                       std::to_string(i % size_t(a.channels) + 1) + " is not a finite number");
   return a;
 }
 

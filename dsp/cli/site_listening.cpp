@@ -50,7 +50,7 @@ class Checker {
  public:
   Checker(const fs::path& def, const std::vector<ListeningEffect>& effects, const std::vector<ListeningClip>& clips,
           const std::vector<fs::path>& roots)
-      : w_{def.string()}, dir_(def.parent_path().empty() ? fs::path(".") : def.parent_path()), effects_(effects),
+      : w_{def.string(), nullptr}, dir_(def.parent_path().empty() ? fs::path(".") : def.parent_path()), effects_(effects),
         clips_(clips), roots_(roots) {
     if (roots_.empty()) {
       std::error_code ec;
@@ -425,7 +425,7 @@ bool path_within(const fs::path& inner, const fs::path& outer) {
 
 fs::path confine(const std::string& file, const std::string& field, const std::vector<fs::path>& roots,
                  const fs::path& base, const std::string& rel) {
-  const Where w{file};
+  const Where w{file, nullptr};
   const std::string where = "the site config's folder '" + roots.at(0).string() + "'" +
                             (roots.size() > 1 ? " or an --allow-root folder" : "");
   if (fs::path(rel).is_absolute())

@@ -433,3 +433,52 @@ def test_site_truncated_clip_is_refused(tmp_path):
     site_config(cfg)
     p = run("site", cfg / "site.json", "--out", tmp_path / "site", *args)
     assert p.returncode == INPUT and "clips[0].file" in p.stderr and "of 24000 frames" in p.stderr, p.stderr
+
+
+# ---- 1 (audio): memory follows the decoded frames, never the header's claim ----------------------
+
+def flac_claiming(folder, total):
+    """A 1 s mono FLAC (sox) whose STREAMINFO claims `total` samples. STREAMINFO layout
+    (FLAC format specification, xiph.org, 'METADATA_BLOCK_STREAMINFO'): after 'fLaC' and
+    the 4-byte block header, 2+2+3+3 bytes of block and frame sizes, then 64 bits holding
+    sample rate (20), channels-1 (3), bits-1 (5) and the total sample count (36)."""
+    if shutil.which("sox") is None:
+        pytest.fail("sox is required (tools/setup.sh installs it)")
+    p = pathlib.Path(folder) / f"claims-{total}.flac"
+    subprocess.run(["sox", "-n", "-r", "48000", "-c", "1", "-b", "16", str(p), "synth", "1", "sine", "440"],
+                   check=True)
+    b = bytearray(p.read_bytes())
+    assert b[:4] == b"fLaC" and b[4] & 0x7F == 0  # first block is STREAMINFO
+    word = int.from_bytes(b[18:26], "big")
+    assert word & ((1 << 36) - 1) == 48000
+    word = (word & ~((1 << 36) - 1)) | total
+    b[18:26] = word.to_bytes(8, "big")
+    p.write_bytes(bytes(b))
+    return p
+
+
+def run_limited(*args, limit=512 << 20):
+    """Runs earshot with its address space capped (RLIMIT_AS) at `limit` bytes."""
+    import resource
+
+    def cap():
+        resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
+    return subprocess.run([str(EARSHOT), *map(str, args)], capture_output=True, text=True, preexec_fn=cap,
+                          timeout=60)
+
+
+def test_small_flac_claiming_many_frames_costs_what_it_holds(tmp_path):
+    """A ~20 KB FLAC claiming 2^27 frames (512 MiB of float if allocated up front): under a
+    512 MiB address-space cap, loudness and anchors refuse it with 'read 48000 of 134217728
+    frames' (exit 3) instead of failing to allocate. One claiming 2^31 frames is refused by
+    the documented sample limit (docs/cli.md) before any reading."""
+    p = flac_claiming(tmp_path, 1 << 27)
+    for args in (["loudness", p], ["anchors", p, "--out", tmp_path / "anch"]):
+        r = run_limited(*args)
+        assert r.returncode == INPUT, (args, r.returncode, r.stderr)
+        assert p.name in r.stderr and "read 48000 of 134217728 frames" in r.stderr, r.stderr
+    q = flac_claiming(tmp_path, 1 << 31)
+    r = run_limited("loudness", q)
+    assert r.returncode == INPUT, r.stderr
+    assert "declares 2147483648 frames" in r.stderr and "at most 268435456 samples" in r.stderr, r.stderr
+    assert leftovers(tmp_path) == []
