@@ -58,6 +58,13 @@ Args parse_args(const std::vector<std::string>& argv, const std::vector<OptionSp
 // Strict number parsing: the whole text must be the number, finite, in range.
 // `what` names the option in the error, e.g. "--block".
 double parse_number(const std::string& what, const std::string& text, double lo, double hi);
+// --rate HZ: 0 when absent, else a whole number of Hz from EARSHOT_MIN_RATE to
+// EARSHOT_MAX_RATE (UsageError naming the option otherwise).
+double parse_rate_option(const Args& a);
+// Whether a file's sample rate is one streams run at, and the phrase that says
+// which are ("earshot streams run at 8000 .. 384000 Hz").
+inline bool stream_rate_ok(double hz) { return hz >= EARSHOT_MIN_RATE && hz <= EARSHOT_MAX_RATE; }
+std::string stream_rates_text();
 long parse_integer(const std::string& what, const std::string& text, long lo, long hi);
 
 // ---- audio files -----------------------------------------------------------
@@ -77,7 +84,7 @@ struct Audio {
 constexpr int64_t kMaxAudioSamples = int64_t(1) << 28;
 
 // Reads any file libsndfile reads; InputError naming the file and what is
-// wrong: unreadable, 1..32 channels, 8000..384000 Hz, more than
+// wrong: unreadable, 1..32 channels, a rate outside stream_rate_ok, more than
 // kMaxAudioSamples, fewer frames than declared, non-finite samples. Memory
 // grows with the frames decoded, not with the header's claim.
 Audio read_audio(const std::string& path);

@@ -35,6 +35,19 @@ const std::string* Args::last(const std::string& name) const {
   return v;
 }
 
+double parse_rate_option(const Args& a) {
+  const std::string* r = a.last("--rate");
+  if (!r) return 0;
+  const double rate = parse_number("--rate", *r, EARSHOT_MIN_RATE, EARSHOT_MAX_RATE);
+  if (rate != std::floor(rate)) throw UsageError("--rate: " + *r + " is not a whole number of Hz");
+  return rate;
+}
+
+std::string stream_rates_text() {
+  return "earshot streams run at " + std::to_string(EARSHOT_MIN_RATE) + " .. " + std::to_string(EARSHOT_MAX_RATE) +
+         " Hz";
+}
+
 std::vector<std::string> Args::all(const std::string& name) const {
   std::vector<std::string> v;
   for (const auto& o : options)
@@ -378,9 +391,10 @@ Audio read_audio(const std::string& path) {
   a.format = info.format;
   if (a.channels < 1 || a.channels > 32)
     throw InputError("'" + path + "' has " + std::to_string(a.channels) + " channels; 1 to 32 are supported");
-  if (a.rate < 8000 || a.rate > 384000)
-    throw InputError("'" + path + "' has a sample rate of " + std::to_string(a.rate) +
-                     " Hz; 8000 to 384000 Hz are supported");
+  if (!stream_rate_ok(a.rate))
+    throw InputError("'" + path + "' has a sample rate of " + std::to_string(a.rate) + " Hz; " +
+                     std::to_string(EARSHOT_MIN_RATE) + " to " + std::to_string(EARSHOT_MAX_RATE) +
+                     " Hz are supported");
   if (info.frames < 0) throw InputError("'" + path + "': libsndfile reports no length");
   check_declared_length(path, info.format, info.channels, int64_t(info.frames));
   const int64_t declared = int64_t(info.frames);

@@ -126,9 +126,7 @@ int cmd_info(const std::vector<std::string>& argv) {
     throw UsageError(a.positional.empty() ? "missing the effect FILE" : "expected one effect FILE, got " +
                                                                            std::to_string(a.positional.size()) +
                                                                            " arguments");
-  double rate = 0;
-  if (const std::string* r = a.last("--rate")) rate = parse_number("--rate", *r, 8000, 384000);
-  if (rate != 0 && rate != std::floor(rate)) throw UsageError("--rate: " + *a.last("--rate") + " is not a whole number of Hz");
+  const double rate = parse_rate_option(a);
   std::string variant;
   if (const std::string* v = a.last("--variant")) {
     variant = *v;
@@ -143,7 +141,7 @@ int cmd_info(const std::vector<std::string>& argv) {
     Stream probe(bytes, rate != 0 ? rate : 48000, variant, path);
     model_rate = json_number(probe.info(), "model_rate", 48000);
   }
-  const bool model_rate_whole = model_rate == std::floor(model_rate) && model_rate >= 8000 && model_rate <= 384000;
+  const bool model_rate_whole = model_rate == std::floor(model_rate) && stream_rate_ok(model_rate);
   const double host = rate != 0 ? rate : (model_rate_whole ? model_rate : 48000);
   Stream s(bytes, host, variant, path);
   const rapidjson::Document info = s.info();

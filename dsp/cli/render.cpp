@@ -202,9 +202,9 @@ int cmd_render(const std::vector<std::string>& argv) {
   if (channels < 1 || channels > 2)
     throw InputError("audio file '" + in_path + "' has " + std::to_string(channels) +
                      " channels; earshot renders mono or stereo (1 or 2 channels) only");
-  if (rate < 8000 || rate > 384000)
-    throw InputError("audio file '" + in_path + "' has sample rate " + std::to_string(rate) +
-                     " Hz; earshot streams run at 8000 .. 384000 Hz");
+  if (!stream_rate_ok(rate))
+    throw InputError("audio file '" + in_path + "' has sample rate " + std::to_string(rate) + " Hz; " +
+                     stream_rates_text());
   refuse_same_file("OUT", out_path, {{"IN", in_path}, {"FILE", fx_path}});
   check_overwrite(out_path, a.has("--force"));
   // libsndfile shortens a WAV whose data runs past the end of the file: refused, never a shorter output.

@@ -671,9 +671,9 @@ int cmd_site(const std::vector<std::string>& argv) {
     if (info.channels < 1 || info.channels > 2)
       where.fail(cl.field + ".file", "'" + cl.file + "' has " + std::to_string(info.channels) +
                                          " channels; the page renders mono or stereo only");
-    if (info.samplerate < 8000 || info.samplerate > 384000)
+    if (!stream_rate_ok(info.samplerate))
       where.fail(cl.field + ".file", "'" + cl.file + "' has sample rate " + std::to_string(info.samplerate) +
-                                         " Hz; earshot streams run at 8000 .. 384000 Hz");
+                                         " Hz; " + stream_rates_text());
     clip_info[i] = {info.samplerate, info.channels, int64_t(info.frames), ext};
   }
 

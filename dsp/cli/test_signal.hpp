@@ -22,25 +22,12 @@
 #include <cstring>
 #include <vector>
 
+#include "../core/detmath.hpp"
+
 namespace earshot {
 namespace cli {
 
 namespace signal_detail {
-
-// e^x by range reduction to r = x − n·ln 2, |r| ≤ ln 2 / 2, and its Taylor
-// series (24 terms reach double precision there); the 2^n scaling is exact.
-inline double exp_det(double x) {
-  const double ln2 = 0.69314718055994530942;
-  const double k = x / ln2;
-  const int n = int(k >= 0 ? k + 0.5 : k - 0.5);
-  const double r = x - n * ln2;
-  double term = 1, sum = 1;
-  for (int i = 1; i < 24; ++i) {
-    term = term * r / i;
-    sum += term;
-  }
-  return std::ldexp(sum, n);
-}
 
 // sin(2π·p) for a phase p in cycles, p ∈ [0, 1): folded to |x| ≤ π/2, then the
 // Taylor series to x^23 (remainder below 1e-20).
@@ -84,7 +71,7 @@ inline std::vector<float> test_signal(double rate, double seconds) {
   const double top = test_signal_sweep_top(rate);
   int octaves = 0;
   for (double f = 20; f < top; f *= 2) ++octaves;
-  const double ratio = n_sweep > 1 ? exp_det(octaves * 0.69314718055994530942 / double(n_sweep - 1)) : 1.0;
+  const double ratio = n_sweep > 1 ? detmath::exp(octaves * 0.69314718055994530942 / double(n_sweep - 1)) : 1.0;
   const int64_t fade = int64_t(0.010 * rate + 0.5);
   double inc = 20.0 / rate, phase = 0;
   for (int64_t i = 0; i < n_sweep; ++i) {
@@ -98,7 +85,7 @@ inline std::vector<float> test_signal(double rate, double seconds) {
 
   // Tones: restruck every 0.5 s with phase 0 and envelope 1.
   const int64_t period = int64_t(0.5 * rate + 0.5);
-  const double decay = exp_det(-1.0 / (0.150 * rate));
+  const double decay = detmath::exp(-1.0 / (0.150 * rate));
   double env = 1, p1 = 0, p3 = 0;
   for (int64_t i = 0; i < n_active; ++i) {
     if (period > 0 && i % period == 0) env = 1, p1 = 0, p3 = 0;
@@ -121,7 +108,7 @@ inline std::vector<float> test_signal(double rate, double seconds) {
 
   double peak = 0;
   for (double v : s) peak = std::fmax(peak, std::fabs(v));
-  const double scale = peak > 0 ? exp_det(-6.0 / 20.0 * 2.30258509299404568402) / peak : 0.0;
+  const double scale = peak > 0 ? detmath::exp(-6.0 / 20.0 * 2.30258509299404568402) / peak : 0.0;
   std::vector<float> out(s.size());
   for (size_t i = 0; i < s.size(); ++i) out[i] = float(s[i] * scale);
   return out;

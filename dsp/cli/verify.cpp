@@ -152,11 +152,7 @@ int cmd_verify(const std::vector<std::string>& argv) {
                                           : "expected one effect FILE, got " + std::to_string(a.positional.size()) +
                                                 " arguments");
   const double seconds = a.has("--seconds") ? parse_number("--seconds", *a.last("--seconds"), 0.1, 600) : 3.0;
-  double rate = 0;
-  if (const std::string* r = a.last("--rate")) {
-    rate = parse_number("--rate", *r, 8000, 384000);
-    if (rate != std::floor(rate)) throw UsageError("--rate: " + *r + " is not a whole number of Hz");
-  }
+  double rate = parse_rate_option(a);
   const std::string path = a.positional[0];
   if (const std::string* p = a.last("--write-signal")) {
     refuse_same_file("--write-signal", *p, {{"FILE", path}});

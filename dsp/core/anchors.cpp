@@ -16,7 +16,7 @@ constexpr int kMaxChannels = 32;
 
 int check(double rate, double passband_hz) {
   if (!(rate - rate == 0) || !(passband_hz - passband_hz == 0)) return EARSHOT_ERR_NOT_FINITE;
-  if (!(rate >= 8000 && rate <= 384000) || double(int64_t(rate)) != rate) return EARSHOT_ERR_RANGE;
+  if (!(rate >= EARSHOT_MIN_RATE && rate <= EARSHOT_MAX_RATE) || double(int64_t(rate)) != rate) return EARSHOT_ERR_RANGE;
   if (!(passband_hz >= kPassbandMinHz && passband_hz <= kPassbandMaxHz)) return EARSHOT_ERR_RANGE;
   if (passband_hz * 9.0 / 7.0 > rate / 2.0) return EARSHOT_ERR_RANGE;  // mask must fit below Nyquist
   return EARSHOT_OK;

@@ -19,6 +19,7 @@
 #include <string>
 #include <vector>
 
+#include "detmath.hpp"
 #include "earshot/earshot.h"
 #include "model.hpp"
 #include "resampler.hpp"
@@ -69,22 +70,9 @@ struct Ramp {
   }
 };
 
-// exp in double with + − × ÷ only (and exact scaling by 2ⁿ), so dB→gain is
-// the same on every platform. |x| ≤ 20 here.
-double exp_det(double x) {
-  const double ln2 = 0.69314718055994530942;
-  const double k = x / ln2;
-  const int n = int(k >= 0 ? k + 0.5 : k - 0.5);
-  const double r = x - n * ln2;
-  double term = 1, sum = 1;
-  for (int i = 1; i < 24; ++i) {
-    term = term * r / i;
-    sum += term;
-  }
-  return std::ldexp(sum, n);  // exact
-}
-
-float db_to_gain(float db) { return float(exp_det(double(db) * 0.11512925464970228420)); }  // ln(10)/20
+// dB → gain with detmath::exp (+ − × ÷ only), so it is the same on every
+// platform; |db| ≤ 60 here.
+float db_to_gain(float db) { return float(detmath::exp(double(db) * 0.11512925464970228420)); }  // ln(10)/20
 
 bool finite_all(const float* x, int n) {
   // x − x is 0 for finite x and NaN otherwise; summing the flags stays exact.
@@ -476,8 +464,10 @@ std::string make_info(const earshot_stream& s) {
 earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
                        size_t max_stream_bytes, char* error, size_t error_cap) {
   std::string err;
-  if (!(host_rate >= 8000 && host_rate <= 384000) || host_rate != std::floor(host_rate)) {
-    write_error(error, error_cap, "host sample rate must be a whole number of Hz from 8000 to 384000");
+  if (!(host_rate >= EARSHOT_MIN_RATE && host_rate <= EARSHOT_MAX_RATE) || host_rate != std::floor(host_rate)) {
+    write_error(error, error_cap,
+                ("host sample rate must be a whole number of Hz from " + std::to_string(EARSHOT_MIN_RATE) + " to " +
+                 std::to_string(EARSHOT_MAX_RATE)));
     return nullptr;
   }
   auto model = load_model(bytes, len, err);

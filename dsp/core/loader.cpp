@@ -6,6 +6,7 @@
 #include <cstring>
 #include <set>
 
+#include "earshot/earshot.h"
 #include "model.hpp"
 #include "json_reader.hpp"
 
@@ -103,8 +104,9 @@ class Builder {
                    " is too new (this earshot reads version 1)");
     if (m.version < 1) return fail_("effect description: field 'version' must be 1");
     if (!(v = member(d, "sample_rate")) || !v->IsNumber() || !std::isfinite(v->GetDouble()) ||
-        v->GetDouble() < 8000 || v->GetDouble() > 384000)
-      return fail_("effect description: field 'sample_rate' must be a number from 8000 to 384000");
+        v->GetDouble() < EARSHOT_MIN_RATE || v->GetDouble() > EARSHOT_MAX_RATE)
+      return fail_("effect description: field 'sample_rate' must be a number from " +
+                   std::to_string(EARSHOT_MIN_RATE) + " to " + std::to_string(EARSHOT_MAX_RATE));
     m.sample_rate = v->GetDouble();
     if (m.sample_rate != std::floor(m.sample_rate))
       return fail_("effect description: field 'sample_rate' must be a whole number of Hz");

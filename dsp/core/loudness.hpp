@@ -11,6 +11,8 @@
 #pragma once
 #include <cstddef>
 
+#include "earshot/earshot.h"
+
 namespace earshot {
 namespace loudness {
 
@@ -76,7 +78,7 @@ double default_weight(int channels, int index);
 constexpr double kAbsoluteGatePower = 1.1724653045822964e-07;
 
 constexpr int kMaxChannels = 32;
-constexpr double kRateMin = 8000, kRateMax = 384000;
+constexpr double kRateMin = EARSHOT_MIN_RATE, kRateMax = EARSHOT_MAX_RATE;
 
 }  // namespace loudness
 }  // namespace earshot

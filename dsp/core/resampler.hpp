@@ -47,12 +47,14 @@
 #include <string>
 #include <vector>
 
+#include "earshot/earshot.h"
+
 namespace earshot {
 
 class Resampler {
  public:
-  static constexpr int kRateMin = 8000;
-  static constexpr int kRateMax = 384000;
+  static constexpr int kRateMin = EARSHOT_MIN_RATE;
+  static constexpr int kRateMax = EARSHOT_MAX_RATE;
   static constexpr int kMaxFactor = 2048;          // largest L or M accepted
   static constexpr double kDesignStopbandDb = 100.0;
   static constexpr double kPassbandEdge = 0.90;    // fraction of the lower Nyquist

@@ -38,7 +38,7 @@ struct Ops<scalar_arch> {
   static V sub(V a, V b) { return a - b; }
   static V mul(V a, V b) { return a * b; }
   static V div(V a, V b) { return a / b; }
-  static V madd(V a, V b, V c) {  // a*b + c, two roundings
+  static V madd(V a, V b, V c) {  // a*b + c: two roundings, one when EARSHOT_FUSED (avx2fma)
 #if EARSHOT_FUSED
     return __builtin_fmaf(a, b, c);
 #else

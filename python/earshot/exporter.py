@@ -25,7 +25,7 @@ import torch.nn as nn
 
 from . import container
 from .limits import (MAX_CHANNELS, MAX_CONTROLS, MAX_DILATION, MAX_FILM_HIDDEN, MAX_KERNEL, MAX_LAYERS,
-                     MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS)
+                     MAX_RATE, MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS, MIN_RATE)
 from .modules import (ACTIVATIONS, GRU, LSTM, Activation, CausalConv1d, Effect, FiLM, Gated, Linear,
                       TCNBlock, WaveNet, control_spec)
 
@@ -306,8 +306,8 @@ def build(model, sample_rate=None, controls=None, credits=None, dtype="f32", inp
     rate = sample_rate if sample_rate is not None else effect.sample_rate
     if rate is None:
         raise ExportError("sample_rate is required (the rate the model was trained at)")
-    if not isinstance(rate, (int, float)) or not math.isfinite(rate) or not 8000 <= rate <= 384000:
-        raise ExportError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
+    if not isinstance(rate, (int, float)) or not math.isfinite(rate) or not MIN_RATE <= rate <= MAX_RATE:
+        raise ExportError(f"sample_rate {rate!r} is outside {MIN_RATE} .. {MAX_RATE} Hz")
     if not float(rate).is_integer():
         raise ExportError(f"sample_rate {rate!r} must be a whole number of Hz (the core refuses fractions)")
     rate = int(rate)

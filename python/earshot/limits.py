@@ -34,3 +34,9 @@ MAX_WAVENET_LAYERS = LIMITS["kMaxWavenetLayers"]
 MAX_FILM_HIDDEN = LIMITS["kMaxFilmHidden"]
 MAX_PARAMETERS = LIMITS["kMaxParameters"]
 MAX_RECEPTIVE_FIELD = LIMITS["kMaxReceptiveField"]
+
+# Sample rates (whole Hz) of the C ABI, EARSHOT_MIN_RATE and EARSHOT_MAX_RATE of
+# dsp/include/earshot/earshot.h (test_corpus.py checks them against it); an
+# effect file's sample_rate obeys the same range.
+MIN_RATE = 8000
+MAX_RATE = 384000

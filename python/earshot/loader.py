@@ -12,7 +12,7 @@ import torch
 from . import container
 from .container import FormatError
 from .limits import (MAX_CHANNELS, MAX_CONTROLS, MAX_DILATION, MAX_FILM_HIDDEN, MAX_KERNEL, MAX_LAYERS,
-                     MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS)
+                     MAX_RATE, MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS, MIN_RATE)
 from .exporter import CREDIT_KEYS, LAYER_NAME
 from .modules import (ACTIVATIONS, GRU, LSTM, Activation, CausalConv1d, Effect, FiLM, Gated, Linear, TCNBlock,
                       WaveNet, _activation_object, control_spec)
@@ -160,8 +160,8 @@ def _check_desc(desc):
         raise FormatError(f"version {v} is too new (this loader reads version 1)")
     rate = desc.get("sample_rate")
     if isinstance(rate, bool) or not isinstance(rate, (int, float)) or not math.isfinite(rate) \
-            or not 8000 <= rate <= 384000:
-        raise FormatError(f"sample_rate {rate!r} is outside 8000 .. 384000 Hz")
+            or not MIN_RATE <= rate <= MAX_RATE:
+        raise FormatError(f"sample_rate {rate!r} is outside {MIN_RATE} .. {MAX_RATE} Hz")
     if rate != int(rate):
         raise FormatError(f"sample_rate {rate!r} must be a whole number of Hz")
     ctl = desc.get("controls", [])

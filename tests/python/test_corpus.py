@@ -80,6 +80,14 @@ def test_limits_table_matches_model_hpp():
     assert values == limits.LIMITS
 
 
+def test_rate_range_matches_earshot_h():
+    """earshot.limits.MIN_RATE / MAX_RATE equal EARSHOT_MIN_RATE / EARSHOT_MAX_RATE of the C ABI header."""
+    text = open(os.path.join(ROOT, "dsp", "include", "earshot", "earshot.h")).read()
+    found = dict(re.findall(r"#define\s+(EARSHOT_M(?:IN|AX)_RATE)\s+(\d+)", text))
+    assert {k: int(v) for k, v in found.items()} == {"EARSHOT_MIN_RATE": limits.MIN_RATE,
+                                                     "EARSHOT_MAX_RATE": limits.MAX_RATE}
+
+
 @pytest.mark.parametrize("name", VALID)
 def test_valid_file_loads_with_the_core_description(name):
     want = EXPECTED[name]["description"]

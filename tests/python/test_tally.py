@@ -263,7 +263,7 @@ def abx_trials(item, a, b, correct, n, seed):
 
 
 def test_abx_p_values_against_scipy_binomtest(tmp_path):
-    # Check value (issue text, and scipy.stats.binomtest(12, 16, 0.5, 'greater')):
+    # Check value (scipy.stats.binomtest(12, 16, 0.5, 'greater'); one-sided binomial tail, common practice):
     # 12 correct of 16 gives p = 0.038.
     one = write(tmp_path, "alice.json", doc("alice", 7, abx_trials("gtr", "reference", "lstm", 12, 16, 1), "abx"))
     p = run("tally", one, "--csv", tmp_path / "a.csv")

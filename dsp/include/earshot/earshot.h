@@ -28,6 +28,11 @@ typedef struct earshot_stream earshot_stream;
 
 #define EARSHOT_MAX_BLOCK 65536
 
+/* Sample rates (whole Hz) that streams, the loudness meter and the anchors
+ * accept; the effect file's sample_rate obeys the same range. */
+#define EARSHOT_MIN_RATE 8000
+#define EARSHOT_MAX_RATE 384000
+
 /* Loads an effect file from memory and makes a stream for audio at host_rate
  * (Hz; the core resamples when it differs from the model's rate).
  * variant: NULL or "" for the best this machine supports, else one of
@@ -99,7 +104,7 @@ void earshot_destroy(earshot_stream* s);
  * Whole-clip functions for preparing stimuli (not for the audio thread: they
  * may take a while on long clips, and earshot_anchor allocates). Audio is
  * interleaved float, frames x channels; rate is a whole number of Hz from
- * 8000 to 384000. Results are bit-identical natively and in WebAssembly (no
+ * EARSHOT_MIN_RATE to EARSHOT_MAX_RATE. Results are bit-identical natively and in WebAssembly (no
  * libm on the computation path). docs/listening.md describes them. */
 
 /* Integrated loudness in LKFS (= LUFS) of a clip: K-weighting, 400 ms blocks
