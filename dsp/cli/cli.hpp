@@ -154,11 +154,18 @@ std::string format_count(int64_t v);  // 1234567 → "1 234 567"
 std::string hex64(uint64_t v);
 
 // ---- commands --------------------------------------------------------------
+// Each takes the arguments after the command word and returns an exit code;
+// it throws UsageError or InputError, which main.cpp's one guarded runner
+// turns into a message and an exit code. main.cpp's table lists them.
 
-int cmd_info(const std::vector<std::string>& argv);
-int cmd_render(const std::vector<std::string>& argv);
-int cmd_bench(const std::vector<std::string>& argv);
-int cmd_verify(const std::vector<std::string>& argv);
+int cmd_info(const std::vector<std::string>& argv);      // info.cpp
+int cmd_render(const std::vector<std::string>& argv);    // render.cpp
+int cmd_bench(const std::vector<std::string>& argv);     // bench.cpp
+int cmd_verify(const std::vector<std::string>& argv);    // verify.cpp
+int cmd_site(const std::vector<std::string>& argv);      // site.cpp
+int cmd_loudness(const std::vector<std::string>& argv);  // loudness.cpp
+int cmd_anchors(const std::vector<std::string>& argv);   // loudness.cpp
+int cmd_tally(const std::vector<std::string>& argv);     // tally.cpp
 
 }  // namespace cli
 }  // namespace earshot

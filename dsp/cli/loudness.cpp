@@ -121,6 +121,8 @@ std::string status_message(const std::string& path, int st) {
 
 std::string lufs_text(double v) { return std::isinf(v) ? "-inf" : format_fixed(v, 2); }
 
+}  // namespace
+
 int cmd_loudness(const std::vector<std::string>& argv) {
   const Args a = parse_args(argv, {{"--help", false},
                                    {"--json", false},
@@ -241,6 +243,8 @@ int cmd_loudness(const std::vector<std::string>& argv) {
   return kExitOk;
 }
 
+namespace {
+
 std::string stem_of(const std::string& path) {
   const size_t slash = path.find_last_of('/');
   std::string name = slash == std::string::npos ? path : path.substr(slash + 1);
@@ -248,6 +252,8 @@ std::string stem_of(const std::string& path) {
   if (dot != std::string::npos && dot > 0) name = name.substr(0, dot);
   return name;
 }
+
+}  // namespace
 
 int cmd_anchors(const std::vector<std::string>& argv) {
   const Args a = parse_args(argv, {{"--help", false}, {"--out", true}, {"--passband", true}, {"--force", false}});
@@ -310,41 +316,5 @@ int cmd_anchors(const std::vector<std::string>& argv) {
   return kExitOk;
 }
 
-int guarded(const char* name, int (*fn)(const std::vector<std::string>&), int argc, char** argv) {
-  const std::vector<std::string> rest(argv + (argc > 0 ? 1 : 0), argv + argc);
-  try {
-    const int rc = fn(rest);
-    if (std::fflush(stdout) != 0) {
-      std::fprintf(stderr, "earshot %s: cannot write to standard output\n", name);
-      return kExitInput;
-    }
-    return rc;
-  } catch (const UsageError& e) {
-    std::fflush(stdout);
-    std::fprintf(stderr, "earshot %s: %s\nRun 'earshot %s --help' for usage.\n", name, terminal_lines(e.what()).c_str(), name);
-    return kExitUsage;
-  } catch (const InputError& e) {
-    std::fflush(stdout);
-    std::fprintf(stderr, "earshot %s: %s\n", name, terminal_lines(e.what()).c_str());
-    return kExitInput;
-  } catch (const std::bad_alloc&) {
-    std::fprintf(stderr, "earshot %s: out of memory\n", name);
-    return kExitInput;
-  } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot %s: internal error: %s\n", name, terminal_lines(e.what()).c_str());
-    return kExitInput;
-  }
-}
-
-}  // namespace
 }  // namespace cli
 }  // namespace earshot
-
-// Entry points for dsp/cli/main.cpp; argv[0] is the command name.
-int earshot_cmd_loudness(int argc, char** argv) {
-  return earshot::cli::guarded("loudness", earshot::cli::cmd_loudness, argc, argv);
-}
-
-int earshot_cmd_anchors(int argc, char** argv) {
-  return earshot::cli::guarded("anchors", earshot::cli::cmd_anchors, argc, argv);
-}

@@ -878,33 +878,3 @@ int cmd_site(const std::vector<std::string>& argv) {
 
 }  // namespace cli
 }  // namespace earshot
-
-// The entry point main.cpp dispatches to: argv[0] is the command word
-// ("site"), the rest its arguments. Errors become a message on stderr and the
-// exit codes of docs/cli.md, as for every other command.
-int earshot_cmd_site(int argc, char** argv) {
-  using namespace earshot::cli;
-  const std::vector<std::string> rest(argv + (argc > 0 ? 1 : 0), argv + argc);
-  try {
-    const int rc = cmd_site(rest);
-    if (std::fflush(stdout) != 0) {
-      std::fputs("earshot site: cannot write to standard output\n", stderr);
-      return kExitInput;
-    }
-    return rc;
-  } catch (const UsageError& e) {
-    std::fflush(stdout);
-    std::fprintf(stderr, "earshot site: %s\nRun 'earshot site --help' for usage.\n", terminal_lines(e.what()).c_str());
-    return kExitUsage;
-  } catch (const InputError& e) {
-    std::fflush(stdout);
-    std::fprintf(stderr, "earshot site: %s\n", terminal_lines(e.what()).c_str());
-    return kExitInput;
-  } catch (const std::bad_alloc&) {
-    std::fputs("earshot site: out of memory\n", stderr);
-    return kExitInput;
-  } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot site: internal error: %s\n", terminal_lines(e.what()).c_str());
-    return kExitInput;
-  }
-}

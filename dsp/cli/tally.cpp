@@ -876,6 +876,8 @@ int tally_ab(const std::vector<Result>& rs, const Args& a) {
   return kExitOk;
 }
 
+}  // namespace
+
 int cmd_tally(const std::vector<std::string>& argv) {
   const Args a = parse_args(argv, {{"--help", false},
                                    {"--csv", true},
@@ -920,34 +922,5 @@ int cmd_tally(const std::vector<std::string>& argv) {
   return rc;
 }
 
-}  // namespace
 }  // namespace cli
 }  // namespace earshot
-
-// Entry point for dsp/cli/main.cpp; argv[0] is "tally".
-int earshot_cmd_tally(int argc, char** argv) {
-  using namespace earshot::cli;
-  const std::vector<std::string> rest(argv + (argc > 0 ? 1 : 0), argv + argc);
-  try {
-    const int rc = cmd_tally(rest);
-    if (std::fflush(stdout) != 0) {
-      std::fputs("earshot tally: cannot write to standard output\n", stderr);
-      return kExitInput;
-    }
-    return rc;
-  } catch (const UsageError& e) {
-    std::fflush(stdout);
-    std::fprintf(stderr, "earshot tally: %s\nRun 'earshot tally --help' for usage.\n", terminal_lines(e.what()).c_str());
-    return kExitUsage;
-  } catch (const InputError& e) {
-    std::fflush(stdout);
-    std::fprintf(stderr, "earshot tally: %s\n", terminal_lines(e.what()).c_str());
-    return kExitInput;
-  } catch (const std::bad_alloc&) {
-    std::fputs("earshot tally: out of memory\n", stderr);
-    return kExitInput;
-  } catch (const std::exception& e) {
-    std::fprintf(stderr, "earshot tally: internal error: %s\n", terminal_lines(e.what()).c_str());
-    return kExitInput;
-  }
-}

@@ -277,3 +277,14 @@ def test_site_refusals_escape_the_configs_text(tmp_path):
     off = text.index('"a\\u001b')
     line, col = text.count("\n", 0, off) + 1, off - (text.rfind("\n", 0, off) + 1) + 1
     assert f"{cfg}: line {line}, column {col}: effects[0].id: ".encode() in p.stderr, p.stderr
+
+
+def test_unknown_command_or_option_is_named_without_control_characters():
+    """An unknown command word or option is quoted escaped (ECMA-48 CSI and OSC would
+    otherwise reach the terminal), and the exit code is the usage code, 2."""
+    for word in ("\x1b[31mred", "-\x1b]0;pwned\x07"):
+        p = run(word)
+        assert p.returncode == 2, p.stderr
+        assert_terminal_clean(p.stderr)
+        assert b"\\x1b" in p.stderr, p.stderr
+        assert (b"unknown option" if word.startswith("-") else b"unknown command") in p.stderr, p.stderr
