@@ -533,3 +533,54 @@ export function createEffect(fileBytes, hostRate, variant) {
   const v = variant instanceof Variant ? variant : new Variant(variant);
   return new Effect(v, fileBytes, hostRate);
 }
+
+// ---------------------------------------------------------------- aligned render
+
+// Runs audio through one Effect per channel so that the output stays
+// sample-aligned with the input, as `earshot render` does: the first
+// `latency` output samples are dropped and finish() feeds `latency` zeros to
+// push the tail out. The output holds exactly `frames` samples per channel.
+// push() takes one Float32Array per channel (equal lengths, any length: it is
+// processed in pieces of at most `piece` samples).
+export class AlignedRender {
+  constructor(effects, frames, piece = CHUNK) {
+    if (!effects.length) throw new Error('AlignedRender needs at least one effect');
+    this.effects = effects;
+    this.latency = effects[0].latency;
+    this.frames = frames;
+    this.output = effects.map(() => new Float32Array(frames));
+    this.scratch = effects.map(() => new Float32Array(piece));
+    this.piece = piece;
+    this.toSkip = this.latency;
+    this.written = 0;
+    this.done = 0; // input samples per channel fed so far, flush zeros included
+  }
+
+  push(inputs) {
+    const n = inputs[0].length;
+    for (let off = 0; off < n; off += this.piece) {
+      const k = Math.min(this.piece, n - off);
+      const skip = Math.min(this.toSkip, k);
+      if (this.written + k - skip > this.frames) throw new Error(`AlignedRender: more than ${this.frames} frames pushed`);
+      for (let c = 0; c < this.effects.length; c++) {
+        const y = this.scratch[c].subarray(0, k);
+        this.effects[c].process(inputs[c].subarray(off, off + k), y);
+        this.output[c].set(y.subarray(skip), this.written);
+      }
+      this.toSkip -= skip;
+      this.written += k - skip;
+      this.done += k;
+    }
+  }
+
+  // Feeds the `latency` zeros that push the last input samples out.
+  finish() {
+    const zeros = new Float32Array(Math.min(this.latency, this.piece));
+    for (let left = this.latency; left > 0;) {
+      const k = Math.min(left, zeros.length);
+      this.push(this.effects.map(() => zeros.subarray(0, k)));
+      left -= k;
+    }
+    return this.output;
+  }
+}

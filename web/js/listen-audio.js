@@ -4,7 +4,7 @@
 // js/test-signal.js's fnv1a64.
 // Audio here is interleaved Float32Array { data, channels, rate, frames }.
 
-import { LISTENING_FUNCTIONS } from '../worklet/loader.js';
+import { AlignedRender, LISTENING_FUNCTIONS } from '../worklet/loader.js';
 
 export function interleave(planar) {
   const ch = planar.length;
@@ -55,27 +55,26 @@ export class CoreAudio {
   }
 
   // `audio` through an effect file at the clip's rate, each channel with a
-  // fresh effect; the effect's latency is removed so the output stays
-  // sample-aligned with the clip (it is fed that many zeros at the end).
+  // fresh effect, sample-aligned with the clip (AlignedRender).
   render(effectBytes, controls, audio) {
-    const out = [];
-    for (const x of planar(audio)) {
-      const fx = this.v.createEffect(effectBytes, audio.rate);
-      try {
+    const channels = planar(audio);
+    const effects = [];
+    try {
+      for (let c = 0; c < channels.length; c++) {
+        const fx = this.v.createEffect(effectBytes, audio.rate);
+        effects.push(fx);
         for (const [k, val] of Object.entries(controls)) fx.setControl(k, val);
         // Jump to the targets: render from a settled state, not mid-ramp.
         fx.reset();
-        const lat = fx.latency;
-        const input = new Float32Array(x.length + lat);
-        input.set(x);
-        const y = new Float32Array(input.length);
-        fx.process(input, y);
-        if (fx.nonFiniteCount) throw new Error(`the effect produced non-finite output in ${fx.nonFiniteCount} blocks`);
-        out.push(y.subarray(lat));
-      } finally {
-        fx.destroy();
       }
+      const r = new AlignedRender(effects, audio.frames ?? channels[0].length);
+      r.push(channels);
+      const out = r.finish();
+      const bad = effects.reduce((s, fx) => s + fx.nonFiniteCount, 0);
+      if (bad) throw new Error(`the effect produced non-finite output in ${bad} blocks`);
+      return { ...audio, data: interleave(out) };
+    } finally {
+      for (const fx of effects) fx.destroy();
     }
-    return { ...audio, data: interleave(out) };
   }
 }

@@ -13,7 +13,7 @@
 //       → { type: 'progress', id, done, total } ... { type: 'rendered', id, ... }
 //       or { type: 'fallback', id, reason } when a WAV needs the browser's decoder
 // Failures → { type: 'failed', id, message }.
-import { loadVariant } from '../worklet/loader.js';
+import { AlignedRender, loadVariant } from '../worklet/loader.js';
 import { readWavHeader, decodeFrames, WavError, MAX_RENDER_FRAMES } from './wav.js';
 import { integratedLoudness } from './loudness.js';
 import { testSignal, fnv1a64, floatBits } from './test-signal.js';
@@ -239,30 +239,12 @@ async function render(msg) {
     }
     const latency = effects[0].latency;
     if (!input) input = Array.from({ length: nChannels }, () => new Float32Array(frames));
-    const output = Array.from({ length: nChannels }, () => new Float32Array(frames));
-    const tmps = input.map(() => new Float32Array(SLICE));
+    const aligned = new AlignedRender(effects, frames, SLICE);
+    const output = aligned.output;
     const total = frames + latency;
-    let toSkip = latency;
-    let written = 0;
-    let done = 0;
     let lastReport = 0;
     const started = Date.now();
     let processMs = 0;
-    const run = (c, src) => {
-      const k = src.length;
-      const y = tmps[c].subarray(0, k);
-      effects[c].process(src, y);
-      return y;
-    };
-    const emit = (ys) => {
-      const k = ys[0].length;
-      const skip = Math.min(toSkip, k);
-      const m = k - skip;
-      for (let c = 0; c < nChannels; c++) output[c].set(ys[c].subarray(skip), written);
-      toSkip -= skip;
-      written += m;
-      done += k;
-    };
     for (let off = 0; off < frames; off += SLICE) {
       const n = Math.min(SLICE, frames - off);
       if (header) {
@@ -272,25 +254,15 @@ async function render(msg) {
         decodeFrames(header, raw, n, input, off);
       }
       const t0 = Date.now();
-      const ys = [];
-      for (let c = 0; c < nChannels; c++) ys.push(run(c, input[c].subarray(off, off + n)));
+      aligned.push(input.map((x) => x.subarray(off, off + n)));
       processMs += Date.now() - t0;
-      emit(ys);
       const now = Date.now();
       if (now - lastReport > 100) {
         lastReport = now;
-        postMessage({ type: 'progress', id: msg.id, done, total });
+        postMessage({ type: 'progress', id: msg.id, done: aligned.done, total });
       }
     }
-    // Flush: `latency` samples of silence push the tail out (as `earshot render`).
-    for (let left = latency; left > 0;) {
-      const k = Math.min(left, SLICE);
-      const z = new Float32Array(k);
-      const ys = [];
-      for (let c = 0; c < nChannels; c++) ys.push(run(c, z));
-      emit(ys);
-      left -= k;
-    }
+    aligned.finish(); // `latency` samples of silence push the tail out (as `earshot render`)
     postMessage({ type: 'progress', id: msg.id, done: total, total });
     const nonfinite = effects.reduce((s, fx) => s + fx.nonFiniteCount, 0);
     const loudIn = loudness(variant, input, rate);
