@@ -6,9 +6,9 @@
 # (run the static constructors once after instantiating; worklet/loader.js
 # does). Presets: wasm-simd and wasm-scalar (CMakePresets.json); see docs/wasm.md.
 #
-#   simd    variant.cpp with xsimd's sse4_1 arch under Emscripten's SSE
+#   simd    variant_graph.cpp with xsimd's sse4_1 arch under Emscripten's SSE
 #           emulation (-msimd128 -msse4.1): every batch op is a wasm SIMD op
-#   scalar  variant.cpp with plain floats and no -msimd128 anywhere, for
+#   scalar  variant_graph.cpp with plain floats and no -msimd128 anywhere, for
 #           engines without WebAssembly SIMD
 
 set(EARSHOT_WASM_VARIANT simd CACHE STRING "WebAssembly variant to build: simd or scalar")
@@ -53,10 +53,10 @@ list(JOIN _earshot_emcc_exports "," _earshot_emcc_exports)
 # The common core sources: every dsp/core/*.cpp but the per-variant one, so a
 # new core file reaches both builds without an edit here.
 file(GLOB _earshot_core CONFIGURE_DEPENDS ${CMAKE_SOURCE_DIR}/dsp/core/*.cpp)
-list(REMOVE_ITEM _earshot_core ${CMAKE_SOURCE_DIR}/dsp/core/variant.cpp)
+list(REMOVE_ITEM _earshot_core ${CMAKE_SOURCE_DIR}/dsp/core/variant_graph.cpp)
 
 set(_earshot_name earshot-${EARSHOT_WASM_VARIANT})
-add_executable(earshot_wasm ${_earshot_core} dsp/core/variant.cpp dsp/wasm/standalone.cpp)
+add_executable(earshot_wasm ${_earshot_core} dsp/core/variant_graph.cpp dsp/wasm/standalone.cpp)
 set_target_properties(earshot_wasm PROPERTIES OUTPUT_NAME ${_earshot_name} SUFFIX ".wasm")
 target_include_directories(earshot_wasm PRIVATE dsp/include dsp/core)
 target_include_directories(earshot_wasm SYSTEM PRIVATE ${_earshot_sysinc})
@@ -80,8 +80,8 @@ else()
   set(_arch scalar_arch)
   set(_xsimd 0)
 endif()
-# The per-variant definitions apply to variant.cpp alone, as in the native build.
-set_source_files_properties(dsp/core/variant.cpp PROPERTIES COMPILE_DEFINITIONS
+# The per-variant definitions apply to variant_graph.cpp alone, as in the native build.
+set_source_files_properties(dsp/core/variant_graph.cpp PROPERTIES COMPILE_DEFINITIONS
   "EARSHOT_NS=v_wasm;EARSHOT_ARCH=${_arch};EARSHOT_XSIMD=${_xsimd};EARSHOT_VARIANT_NAME=\"${EARSHOT_WASM_VARIANT}\"")
 
 # Memory: 1 MiB of stack (the core does not recurse except in the JSON parser),

@@ -12,7 +12,7 @@
 #include <vector>
 
 #include "cli.hpp"
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "test_signal.hpp"
 
 namespace earshot {

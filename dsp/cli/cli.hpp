@@ -1,7 +1,7 @@
 // Shared pieces of the `earshot` command-line tool: argument parsing, the two
 // kinds of failure (a bad command line, a bad file), the effect file and the
 // stream handle. The tool reaches the core only through earshot.h (plus the
-// native variant helpers of native.hpp).
+// native variant helpers of cpu_variants.hpp).
 #pragma once
 #include <cstdint>
 #include <memory>

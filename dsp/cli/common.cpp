@@ -15,7 +15,7 @@
 #include <memory>
 
 #include "cli.hpp"
-#include "native.hpp"
+#include "cpu_variants.hpp"
 
 namespace earshot {
 namespace cli {

@@ -10,7 +10,7 @@
 
 #include "cli.hpp"
 #include "text_out.hpp"
-#include "native.hpp"
+#include "cpu_variants.hpp"
 
 namespace earshot {
 namespace cli {

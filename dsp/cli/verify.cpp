@@ -21,7 +21,7 @@
 #include <rapidjson/stringbuffer.h>
 #include <rapidjson/writer.h>
 
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "output_file.hpp"
 #include "test_signal.hpp"
 

@@ -1,5 +1,5 @@
 // The per-variant part of a stream: the layer graph with its state, compiled
-// once per instruction set (variant.cpp). The engine (engine.cpp) feeds it
+// once per instruction set (variant_graph.cpp). The engine (engine.cpp) feeds it
 // model-rate audio and per-sample control values in chunks of at most kChunk.
 #pragma once
 #include <memory>

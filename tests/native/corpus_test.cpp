@@ -17,7 +17,7 @@
 #include <vector>
 
 #include "../../dsp/cli/test_signal.hpp"
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "stream_util.hpp"  // first: it sets rapidjson's std::string option
 
 #include <rapidjson/document.h>

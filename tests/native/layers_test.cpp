@@ -5,7 +5,7 @@
 #include <cstdio>
 
 #include "cases.hpp"
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "reference.hpp"
 #include "stream_util.hpp"
 

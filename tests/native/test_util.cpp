@@ -20,7 +20,7 @@ std::vector<float> test_signal(int n, double rate, uint32_t seed) {
 }
 }  // namespace testfx
 
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "stream_util.hpp"
 
 namespace testfx {

@@ -1,7 +1,7 @@
 // The table of variants compiled into this binary and the choice among them.
 #include <string>
 
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "runner.hpp"
 
 namespace earshot {

@@ -10,7 +10,7 @@
 #include <string>
 #include <vector>
 
-#include "native.hpp"
+#include "cpu_variants.hpp"
 #include "runner.hpp"
 
 #if EARSHOT_XSIMD
