@@ -356,11 +356,10 @@ std::string mib_text(double bytes) {
 // largest share (a layer, the resampler or the weights) and the figures.
 std::string stream_bytes_refusal(const Model& m, int host_rate, size_t cap, const StreamBytes& b) {
   if (b.total <= double(cap)) return "";
-  static const char* names[] = {"linear", "conv1d", "lstm", "gru", "activation", "gated", "film", "wavenet", "tcn"};
   std::string share;
   if (b.worst >= 0 && b.worst_bytes >= b.resampler && b.worst_bytes >= b.weights) {
     const LayerSpec& L = m.layers[size_t(b.worst)];
-    share = "layers[" + std::to_string(b.worst) + "] ('" + L.name + "', " + names[int(L.type)] +
+    share = "layers[" + std::to_string(b.worst) + "] ('" + L.name + "', " + layer_type_name(L.type) +
             ") needs " + mib_text(b.worst_bytes) + " of state, history and scratch";
   } else if (b.resampler >= b.weights) {
     share = "resampling " + std::to_string(host_rate) + " Hz to " + std::to_string(int(m.sample_rate)) +
@@ -413,13 +412,12 @@ std::string make_info(const earshot_stream& s) {
   w.Bool(m.input_skip);
   w.Key("layers");
   w.StartArray();
-  static const char* names[] = {"linear", "conv1d", "lstm", "gru", "activation", "gated", "film", "wavenet", "tcn"};
   for (const LayerSpec& L : m.layers) {
     w.StartObject();
     w.Key("name");
     w.String(L.name);
     w.Key("type");
-    w.String(names[int(L.type)]);
+    w.String(layer_type_name(L.type));
     w.Key("in");
     w.Int(L.in);
     w.Key("out");

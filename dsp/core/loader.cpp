@@ -356,13 +356,16 @@ class Builder {
       return true;
     };
     int64_t macs = 0;
-    if (type == "linear") {
-      L.type = LayerType::linear;
+    if (!layer_type_from_name(type, L.type))
+      return fail_(where + ": unknown layer type '" + type + "' (" + layer_type_list() + ")");
+    switch (L.type) {  // one case per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp)
+    case LayerType::linear: {
       if (!check_in("in") || !integer(o, "out", L.out, 1, kMaxChannels, where)) return false;
       if (!take(L, "weight", {L.out, L.in}) || (L.bias && !take(L, "bias", {L.out}))) return false;
       macs = int64_t(L.out) * L.in;
-    } else if (type == "conv1d") {
-      L.type = LayerType::conv1d;
+      break;
+    }
+    case LayerType::conv1d: {
       if (!check_in("in") || !integer(o, "out", L.out, 1, kMaxChannels, where) ||
           !integer(o, "kernel", L.kernel, 1, kMaxKernel, where) ||
           !integer(o, "dilation", L.dilation, 1, kMaxDilation, where, false, 1))
@@ -370,8 +373,10 @@ class Builder {
       if (!conv_params(L, "", L.out, L.in, L.kernel, L.bias)) return false;
       macs = int64_t(L.out) * L.in * L.kernel;
       m.receptive_field += int64_t(L.kernel - 1) * L.dilation;
-    } else if (type == "lstm" || type == "gru") {
-      L.type = type == "lstm" ? LayerType::lstm : LayerType::gru;
+      break;
+    }
+    case LayerType::lstm:
+    case LayerType::gru: {
       const int gates = type == "lstm" ? 4 : 3;
       if (!check_in("in") || !integer(o, "hidden", L.hidden, 1, kMaxChannels, where) ||
           !integer(o, "num_layers", L.num_layers, 1, kMaxRecurrentLayers, where, false, 1))
@@ -387,23 +392,27 @@ class Builder {
       }
       L.out = L.hidden;
       m.recurrent = true;
-    } else if (type == "activation") {
-      L.type = LayerType::activation;
+      break;
+    }
+    case LayerType::activation: {
       if (!check_in("channels") || !activation(o, L.act, where, "fn")) return false;
       L.out = L.in;
-    } else if (type == "gated") {
-      L.type = LayerType::gated;
+      break;
+    }
+    case LayerType::gated: {
       if (!check_in("channels")) return false;
       if (L.in % 2) return fail_(where + ": 'channels' must be even (tanh half and sigmoid half)");
       L.out = L.in / 2;
-    } else if (type == "film") {
-      L.type = LayerType::film;
+      break;
+    }
+    case LayerType::film: {
       if (!check_in("channels")) return false;
       L.out = L.in;
       L.has_film = true;
       if (!mlp(L, &o, n_controls, L.in, "", where)) return false;
-    } else if (type == "wavenet") {
-      L.type = LayerType::wavenet;
+      break;
+    }
+    case LayerType::wavenet: {
       if (!check_in("in") || !integer(o, "channels", L.channels, 1, kMaxChannels, where) ||
           !integer(o, "skip", L.skip, 1, kMaxChannels, where) || !integer(o, "kernel", L.kernel, 1, kMaxKernel, where))
         return false;
@@ -429,8 +438,9 @@ class Builder {
       }
       L.out = L.skip;
       m.max_channels = std::max(m.max_channels, 2 * C);
-    } else if (type == "tcn") {
-      L.type = LayerType::tcn;
+      break;
+    }
+    case LayerType::tcn: {
       if (!check_in("in") || !integer(o, "out", L.out, 1, kMaxChannels, where) ||
           !integer(o, "kernel", L.kernel, 1, kMaxKernel, where) ||
           !integer(o, "dilation", L.dilation, 1, kMaxDilation, where, false, 1) ||
@@ -455,9 +465,8 @@ class Builder {
         macs += int64_t(L.out) * L.in;
       }
       m.receptive_field += int64_t(L.kernel - 1) * L.dilation;
-    } else {
-      return fail_(where + ": unknown layer type '" + type +
-                   "' (linear, conv1d, lstm, gru, activation, gated, film, wavenet, tcn)");
+      break;
+    }
     }
     if (m.receptive_field > kMaxReceptiveField)
       return fail_(where + ": receptive field exceeds " + std::to_string(kMaxReceptiveField) + " samples");

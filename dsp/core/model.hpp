@@ -9,6 +9,8 @@
 #include <string>
 #include <vector>
 
+#include "../layers/registry.hpp"
+
 namespace earshot {
 
 enum class ActFn : int { identity, tanh, sigmoid, relu, leaky_relu, softsign, hardtanh };
@@ -28,7 +30,43 @@ struct Tensor {
   size_t size() const { return data.size(); }
 };
 
-enum class LayerType { linear, conv1d, lstm, gru, activation, gated, film, wavenet, tcn };
+// One value per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp).
+enum class LayerType {
+#define EARSHOT_X(type, Kernel) type,
+  EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
+};
+
+// The type's name in effect files, e.g. "gru".
+inline const char* layer_type_name(LayerType t) {
+  static const char* const kNames[] = {
+#define EARSHOT_X(type, Kernel) #type,
+      EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
+  };
+  return kNames[int(t)];
+}
+
+// The type named `name`; false when no row of the table has that name.
+inline bool layer_type_from_name(const std::string& name, LayerType& t) {
+#define EARSHOT_X(type, Kernel)  \
+  if (name == #type) {           \
+    t = LayerType::type;         \
+    return true;                 \
+  }
+  EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
+  return false;
+}
+
+// "linear, conv1d, ..." in table order.
+inline std::string layer_type_list() {
+  std::string s;
+#define EARSHOT_X(type, Kernel) s += std::string(s.empty() ? "" : ", ") + #type;
+  EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
+  return s;
+}
 
 // A small MLP from the control vector to 2C values [γ; β] (FiLM).
 struct MlpSpec {

@@ -41,6 +41,7 @@ inline std::vector<float> transpose(const Tensor& t) {
 #include "../layers/linear.hpp"
 #include "../layers/conv1d.hpp"
 #include "../layers/activation.hpp"
+#include "../layers/gated.hpp"
 #include "../layers/film.hpp"
 #include "../layers/lstm.hpp"
 #include "../layers/gru.hpp"
@@ -54,16 +55,13 @@ class GraphRunner final : public Runner {
   explicit GraphRunner(std::shared_ptr<const Model> m) : model_(std::move(m)) {
     const Model& M = *model_;
     for (const LayerSpec& s : M.layers) {
-      switch (s.type) {
-        case LayerType::linear: layers_.emplace_back(new LinearLayer<Arch>(s)); break;
-        case LayerType::conv1d: layers_.emplace_back(new Conv1dLayer<Arch>(s)); break;
-        case LayerType::lstm: layers_.emplace_back(new LstmLayer<Arch>(s)); break;
-        case LayerType::gru: layers_.emplace_back(new GruLayer<Arch>(s)); break;
-        case LayerType::activation: layers_.emplace_back(new ActivationLayer<Arch>(s)); break;
-        case LayerType::gated: layers_.emplace_back(new GatedLayer<Arch>(s)); break;
-        case LayerType::film: layers_.emplace_back(new FilmLayer<Arch>(s)); break;
-        case LayerType::wavenet: layers_.emplace_back(new WavenetLayer<Arch>(s)); break;
-        case LayerType::tcn: layers_.emplace_back(new TcnLayer<Arch>(s)); break;
+      switch (s.type) {  // one case per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp)
+#define EARSHOT_X(type, Kernel)                         \
+  case LayerType::type:                                 \
+    layers_.emplace_back(new Kernel<Arch>(s));          \
+    break;
+        EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
       }
     }
     const size_t rows = size_t(std::max<int>(M.max_channels, int(M.input_map.size())));

@@ -1,0 +1,29 @@
+// The gated unit (van den Oord et al. 2016):
+//
+//   y[c] = tanh(x[c]) ⊙ sigmoid(x[C + c]),   c = 0 … C−1,  2C channels in, C out.
+//
+// gated_rows is also the gate of every WaveNet layer (wavenet.hpp).
+#pragma once
+
+// y rows [0, C) from x rows [0, 2C): tanh of the first half times sigmoid of the second.
+template <class A>
+inline void gated_rows(const float* x, float* y, int C, int n) {
+  using O = Ops<A>;
+  using S = Ops<scalar_arch>;
+  for (int c = 0; c < C; ++c) {
+    const float* a = x + size_t(c) * kChunk;
+    const float* b = x + size_t(C + c) * kChunk;
+    float* o = y + size_t(c) * kChunk;
+    int t = 0;
+    for (; t + O::W <= n; t += O::W)
+      O::store(o + t, O::mul(tanh_v<A>(O::load(a + t)), sigmoid_v<A>(O::load(b + t))));
+    for (; t < n; ++t) o[t] = S::mul(tanh_v<scalar_arch>(a[t]), sigmoid_v<scalar_arch>(b[t]));
+  }
+}
+
+template <class A>
+struct GatedLayer : Layer {
+  int C;
+  explicit GatedLayer(const LayerSpec& s) : C(s.in / 2) {}
+  void run(const float* x, float* y, int n, const Ctx&) override { gated_rows<A>(x, y, C, n); }
+};
