@@ -10,39 +10,16 @@ import torch
 
 from .container import FormatError
 from .exporter import ExportError, export
+from .layer_types import layer_figures
 from .loader import load, read
 
 
 def figures(desc):
     """Parameters, multiply-adds per sample and receptive field, as dsp/FORMAT.md defines them."""
     madds, rf, recurrent = 0, 1, False
-    n_in = len(desc["graph"]["inputs"])
-    for l in desc["graph"]["layers"]:
-        t = l["type"]
-        if t == "linear":
-            madds += l["out"] * l["in"]
-        elif t == "conv1d":
-            madds += l["out"] * l["in"] * l["kernel"]
-            rf += (l["kernel"] - 1) * l.get("dilation", 1)
-        elif t in ("lstm", "gru"):
-            recurrent = True
-            g = 4 if t == "lstm" else 3
-            h, x = l["hidden"], l["in"]
-            for _ in range(l.get("num_layers", 1)):
-                madds += g * h * (x + h)
-                x = h
-        elif t == "wavenet":
-            c, s, k = l["channels"], l["skip"], l["kernel"]
-            madds += c * l["in"]
-            for d in l["dilations"]:
-                madds += 2 * c * c * k + c * c + s * c
-                rf += (k - 1) * d
-        elif t == "tcn":
-            madds += l["out"] * l["in"] * l["kernel"]
-            if l.get("residual", True) and l["in"] != l["out"]:
-                madds += l["out"] * l["in"]
-            rf += (l["kernel"] - 1) * l.get("dilation", 1)
-    del n_in
+    for layer in desc["graph"]["layers"]:
+        m, f, r = layer_figures(layer)
+        madds, rf, recurrent = madds + m, rf + f, recurrent or r
     return {"madds_per_sample": madds, "receptive_field": "recurrent" if recurrent else rf}
 
 
@@ -200,8 +177,9 @@ def main(argv=None):
         print(f"inputs       {', '.join(desc['graph']['inputs'])}; input skip "
               f"{'on' if desc['graph'].get('input_skip') else 'off'}")
         for c in desc["controls"]:
+            # unit and smoothing_ms may be omitted (dsp/FORMAT.md: "" and 20 ms)
             print(f"control      {c['name']} [{c['min']} .. {c['max']}] default {c['default']} "
-                  f"{c['unit']} smoothing {c['smoothing_ms']} ms")
+                  f"{c.get('unit', '')} smoothing {c.get('smoothing_ms', 20)} ms")
         for l in desc["graph"]["layers"]:
             rest = {k: v for k, v in l.items() if k not in ("type", "name")}
             print(f"layer        {l['name']}: {l['type']} {json.dumps(rest, separators=(',', ':'))}")

@@ -23,7 +23,8 @@ import torch
 import torch.nn as nn
 
 import earshot
-from earshot import container, limits, native
+from earshot import container, layer_types, limits, native
+from earshot.cli import figures
 from earshot.container import FormatError
 from earshot.exporter import ExportError
 from test_parity import MODEL, esr_db
@@ -78,6 +79,39 @@ def test_limits_table_matches_model_hpp():
         assert re.fullmatch(r"[\d\s<()+*-]+", expr), f"{k}: unexpected expression {expr!r}"
         values[k] = eval(expr)  # digits, spaces, <<, + - * and parentheses only (checked above)
     assert values == limits.LIMITS
+
+
+def test_layer_table_matches_the_core_registry():
+    """earshot.layer_types has one row per row of dsp/layers/registry.hpp, same names, same order."""
+    text = open(os.path.join(ROOT, "dsp", "layers", "registry.hpp")).read()
+    rows = re.findall(r"^\s*X\((\w+), \w+\)", text, re.M)
+    assert len(rows) >= 9
+    assert rows == list(layer_types.LAYER_TYPES)
+
+
+@pytest.mark.parametrize("name", VALID)
+def test_python_figures_equal_the_core_description(name):
+    """Multiply-adds per sample and receptive field from the Python table (earshot.cli.figures) equal the
+    core's, for every valid corpus file (the core's figures are the checked-in expected.json)."""
+    want = EXPECTED[name]["description"]
+    got = figures(want["effect"])
+    assert got["madds_per_sample"] == want["macs_per_sample"]
+    assert got["receptive_field"] == ("recurrent" if want["recurrent"] else want["receptive_field"])
+
+
+@pytest.mark.parametrize("name", VALID)
+def test_python_info_prints_every_valid_file(name, capsys):
+    """`python3 -m earshot info` accepts every file the core accepts (omitted optional fields included)
+    and prints the core's multiply-adds."""
+    from earshot.cli import main
+    assert main(["info", os.path.join(DIR, name)]) == 0
+    out = capsys.readouterr().out
+    assert f"madds/sample {EXPECTED[name]['description']['macs_per_sample']}" in out
+
+
+def test_python_figures_refuse_an_unknown_layer_type():
+    with pytest.raises(ValueError, match="unknown layer type 'magic'"):
+        figures({"graph": {"layers": [{"type": "magic", "name": "m"}]}})
 
 
 def test_rate_range_matches_earshot_h():
