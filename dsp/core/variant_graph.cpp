@@ -67,7 +67,6 @@ class GraphRunner final : public Runner {
     const size_t rows = size_t(std::max<int>(M.max_channels, int(M.input_map.size())));
     a_.assign(rows * kChunk, 0.0f);
     b_.assign(rows * kChunk, 0.0f);
-    ctx_.n_controls = int(M.controls.size());
   }
 
   void process(const float* audio, const float* ctl, float* out, int n) override {

@@ -13,7 +13,7 @@
 struct FilmGen {
   const MlpSpec* spec = nullptr;
   int C = 0, nctl = 0;
-  std::vector<float> last, cur, a, b, gb;  // gb: [2C] for the last control vector
+  std::vector<float> last, cur, a, b, gamma_beta;  // gamma_beta: [2C] for the last control vector
   std::vector<float> gamma, beta;          // [C][kChunk]
   bool valid = false, filled_const = false;
 
@@ -27,7 +27,7 @@ struct FilmGen {
     for (int wdt : s.widths) wmax = std::max(wmax, wdt);
     a.assign(size_t(wmax), 0.0f);
     b.assign(size_t(wmax), 0.0f);
-    gb.assign(size_t(2 * C), 0.0f);
+    gamma_beta.assign(size_t(2 * C), 0.0f);
     gamma.assign(size_t(C) * kChunk, 0.0f);
     beta.assign(size_t(C) * kChunk, 0.0f);
   }
@@ -47,7 +47,7 @@ struct FilmGen {
       }
       std::swap(a, b);
     }
-    std::copy(a.begin(), a.begin() + 2 * C, gb.begin());
+    std::copy(a.begin(), a.begin() + 2 * C, gamma_beta.begin());
   }
   void fill(const float* ctl, int n) {
     bool changed = !valid;
@@ -66,16 +66,16 @@ struct FilmGen {
       }
       if (!filled_const)
         for (int c = 0; c < C; ++c) {
-          gamma[size_t(c) * kChunk + t] = gb[size_t(c)];
-          beta[size_t(c) * kChunk + t] = gb[size_t(C + c)];
+          gamma[size_t(c) * kChunk + t] = gamma_beta[size_t(c)];
+          beta[size_t(c) * kChunk + t] = gamma_beta[size_t(C + c)];
         }
     }
     if (!changed && !filled_const) {
       // Whole chunk constant: rows now hold the constant for every t ≤ n; fill
       // the rest so later chunks can skip filling.
       for (int c = 0; c < C; ++c) {
-        std::fill(gamma.begin() + size_t(c) * kChunk, gamma.begin() + size_t(c + 1) * kChunk, gb[size_t(c)]);
-        std::fill(beta.begin() + size_t(c) * kChunk, beta.begin() + size_t(c + 1) * kChunk, gb[size_t(C + c)]);
+        std::fill(gamma.begin() + size_t(c) * kChunk, gamma.begin() + size_t(c + 1) * kChunk, gamma_beta[size_t(c)]);
+        std::fill(beta.begin() + size_t(c) * kChunk, beta.begin() + size_t(c + 1) * kChunk, gamma_beta[size_t(C + c)]);
       }
       filled_const = true;
     }

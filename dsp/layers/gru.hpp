@@ -15,7 +15,7 @@ struct GruLayer : Layer {
     std::vector<float> h;                       // state, [H]
   };
   int in, H;
-  std::vector<Level> lv;
+  std::vector<Level> levels;
   std::vector<float> gi, gh, x;
 
   explicit GruLayer(const LayerSpec& s) : in(s.in), H(s.hidden) {
@@ -28,7 +28,7 @@ struct GruLayer : Layer {
       L.bih = s.bias ? s.param("bias_ih_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
       L.bhh = s.bias ? s.param("bias_hh_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
       L.h.assign(size_t(H), 0.0f);
-      lv.push_back(std::move(L));
+      levels.push_back(std::move(L));
     }
     gi.assign(size_t(3 * H), 0.0f);
     gh.assign(size_t(3 * H), 0.0f);
@@ -42,7 +42,7 @@ struct GruLayer : Layer {
     for (int t = 0; t < n; ++t) {
       for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
       const float* cur = x.data();
-      for (auto& L : lv) {
+      for (auto& L : levels) {
         gemv_cols<A>(L.wih_t.data(), 3 * H, cur, L.in, L.bih.data(), gi.data());
         gemv_cols<A>(L.whh_t.data(), 3 * H, L.h.data(), H, L.bhh.data(), gh.data());
         float* h = L.h.data();
@@ -50,16 +50,16 @@ struct GruLayer : Layer {
         const auto one = O::set1(1.0f);
         for (; j + W <= H; j += W) {
           const auto r = sigmoid_v<A>(O::add(O::load(&gi[size_t(j)]), O::load(&gh[size_t(j)])));
-          const auto zz = sigmoid_v<A>(O::add(O::load(&gi[size_t(H + j)]), O::load(&gh[size_t(H + j)])));
-          const auto nn = tanh_v<A>(O::madd(r, O::load(&gh[size_t(2 * H + j)]), O::load(&gi[size_t(2 * H + j)])));
-          const auto hv = O::add(O::mul(O::sub(one, zz), nn), O::mul(zz, O::load(h + j)));
+          const auto update = sigmoid_v<A>(O::add(O::load(&gi[size_t(H + j)]), O::load(&gh[size_t(H + j)])));
+          const auto candidate = tanh_v<A>(O::madd(r, O::load(&gh[size_t(2 * H + j)]), O::load(&gi[size_t(2 * H + j)])));
+          const auto hv = O::add(O::mul(O::sub(one, update), candidate), O::mul(update, O::load(h + j)));
           O::store(h + j, flush_tiny<A>(hv));
         }
         for (; j < H; ++j) {
           const float r = sigmoid_v<scalar_arch>(gi[size_t(j)] + gh[size_t(j)]);
-          const float zz = sigmoid_v<scalar_arch>(gi[size_t(H + j)] + gh[size_t(H + j)]);
-          const float nn = tanh_v<scalar_arch>(S::madd(r, gh[size_t(2 * H + j)], gi[size_t(2 * H + j)]));
-          h[j] = flush_tiny<scalar_arch>((1.0f - zz) * nn + zz * h[j]);
+          const float update = sigmoid_v<scalar_arch>(gi[size_t(H + j)] + gh[size_t(H + j)]);
+          const float candidate = tanh_v<scalar_arch>(S::madd(r, gh[size_t(2 * H + j)], gi[size_t(2 * H + j)]));
+          h[j] = flush_tiny<scalar_arch>((1.0f - update) * candidate + update * h[j]);
         }
         cur = h;
       }
@@ -67,9 +67,9 @@ struct GruLayer : Layer {
     }
   }
   void reset() override {
-    for (auto& L : lv) std::fill(L.h.begin(), L.h.end(), 0.0f);
+    for (auto& L : levels) std::fill(L.h.begin(), L.h.end(), 0.0f);
   }
   void state(std::vector<float>& v) const override {
-    for (auto& L : lv) v.insert(v.end(), L.h.begin(), L.h.end());
+    for (auto& L : levels) v.insert(v.end(), L.h.begin(), L.h.end());
   }
 };

@@ -3,8 +3,7 @@
 #pragma once
 
 struct Ctx {
-  const float* ctl = nullptr;  // n_controls rows of kChunk smoothed control values
-  int n_controls = 0;
+  const float* ctl = nullptr;  // one row of kChunk smoothed values per control, in declaration order
 };
 
 struct Layer {

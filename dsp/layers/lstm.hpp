@@ -14,7 +14,7 @@ struct LstmLayer : Layer {
     std::vector<float> h, c;                // state, [H]
   };
   int in, H;
-  std::vector<Level> lv;
+  std::vector<Level> levels;
   std::vector<float> z, x;  // [4H], input vector of one sample
 
   explicit LstmLayer(const LayerSpec& s) : in(s.in), H(s.hidden) {
@@ -32,7 +32,7 @@ struct LstmLayer : Layer {
       }
       L.h.assign(size_t(H), 0.0f);
       L.c.assign(size_t(H), 0.0f);
-      lv.push_back(std::move(L));
+      levels.push_back(std::move(L));
     }
     z.assign(size_t(4 * H), 0.0f);
     x.assign(size_t(std::max(in, H)), 0.0f);
@@ -45,7 +45,7 @@ struct LstmLayer : Layer {
     for (int t = 0; t < n; ++t) {
       for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
       const float* cur = x.data();
-      for (auto& L : lv) {
+      for (auto& L : levels) {
         gemv_cols<A>(L.wih_t.data(), 4 * H, cur, L.in, L.bias.data(), z.data());
         gemv_cols<A>(L.whh_t.data(), 4 * H, L.h.data(), H, z.data(), z.data());
         const float* zi = z.data();
@@ -71,13 +71,13 @@ struct LstmLayer : Layer {
     }
   }
   void reset() override {
-    for (auto& L : lv) {
+    for (auto& L : levels) {
       std::fill(L.h.begin(), L.h.end(), 0.0f);
       std::fill(L.c.begin(), L.c.end(), 0.0f);
     }
   }
   void state(std::vector<float>& v) const override {
-    for (auto& L : lv) {
+    for (auto& L : levels) {
       v.insert(v.end(), L.h.begin(), L.h.end());
       v.insert(v.end(), L.c.begin(), L.c.end());
     }

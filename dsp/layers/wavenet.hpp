@@ -15,18 +15,18 @@ struct WavenetLayer : Layer {
   };
   int C, S;
   ConvUnit<A> input;
-  std::vector<Level> lv;
+  std::vector<Level> levels;
   std::vector<float> x, z, g, tmp;  // [C], [2C], [C], [max(C,S)] rows of kChunk
 
   explicit WavenetLayer(const LayerSpec& s) : C(s.channels), S(s.skip) {
     auto p = [&](const std::string& k) { return s.param(k); };
     input.init(p("input.weight"), s.bias ? p("input.bias") : nullptr, 1);
-    lv.resize(s.dilations.size());
-    for (size_t l = 0; l < lv.size(); ++l) {
+    levels.resize(s.dilations.size());
+    for (size_t l = 0; l < levels.size(); ++l) {
       const std::string q = "layers." + std::to_string(l);
-      lv[l].conv.init(p(q + ".conv.weight"), s.bias ? p(q + ".conv.bias") : nullptr, s.dilations[l]);
-      lv[l].res.init(p(q + ".res.weight"), s.bias ? p(q + ".res.bias") : nullptr, 1);
-      lv[l].skip.init(p(q + ".skip.weight"), s.bias ? p(q + ".skip.bias") : nullptr, 1);
+      levels[l].conv.init(p(q + ".conv.weight"), s.bias ? p(q + ".conv.bias") : nullptr, s.dilations[l]);
+      levels[l].res.init(p(q + ".res.weight"), s.bias ? p(q + ".res.bias") : nullptr, 1);
+      levels[l].skip.init(p(q + ".skip.weight"), s.bias ? p(q + ".skip.bias") : nullptr, 1);
     }
     x.assign(size_t(C) * kChunk, 0.0f);
     z.assign(size_t(2 * C) * kChunk, 0.0f);
@@ -36,23 +36,23 @@ struct WavenetLayer : Layer {
 
   void run(const float* xin, float* y, int n, const Ctx&) override {
     input.run(xin, x.data(), n);
-    for (size_t l = 0; l < lv.size(); ++l) {
-      lv[l].conv.run(x.data(), z.data(), n);
+    for (size_t l = 0; l < levels.size(); ++l) {
+      levels[l].conv.run(x.data(), z.data(), n);
       gated_rows<A>(z.data(), g.data(), C, n);
-      lv[l].res.run(g.data(), tmp.data(), n);
+      levels[l].res.run(g.data(), tmp.data(), n);
       for (int c = 0; c < C; ++c) add_rows<A>(&x[size_t(c) * kChunk], &tmp[size_t(c) * kChunk], &x[size_t(c) * kChunk], n);
       if (l == 0) {
-        lv[l].skip.run(g.data(), y, n);
+        levels[l].skip.run(g.data(), y, n);
       } else {
-        lv[l].skip.run(g.data(), tmp.data(), n);
+        levels[l].skip.run(g.data(), tmp.data(), n);
         for (int c = 0; c < S; ++c) add_rows<A>(y + size_t(c) * kChunk, &tmp[size_t(c) * kChunk], y + size_t(c) * kChunk, n);
       }
     }
   }
   void reset() override {
-    for (auto& L : lv) L.conv.reset();
+    for (auto& L : levels) L.conv.reset();
   }
   void state(std::vector<float>& v) const override {
-    for (auto& L : lv) L.conv.values(v);
+    for (auto& L : levels) L.conv.values(v);
   }
 };
