@@ -20,6 +20,9 @@
 // detaches the old buffer).
 
 export const MAX_BLOCK = 65536; // EARSHOT_MAX_BLOCK, the most one earshot_process call takes
+// EARSHOT_MIN_RATE and EARSHOT_MAX_RATE: the sample rates (whole Hz) streams run at.
+export const MIN_RATE = 8000;
+export const MAX_RATE = 384000;
 // Samples per core call. A process() call of up to CHUNK samples is exactly
 // one earshot_process call, as natively: that matters only for non-finite
 // output, where the core silences the whole call (for finite audio the

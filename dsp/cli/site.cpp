@@ -85,6 +85,8 @@ const char* kHelp =
     "  -h, --help          this text\n";
 
 constexpr double kSignalSeconds = 3.0;  // the length `earshot verify` uses by default
+// The worklet/ files the page loads (web/ is copied whole, copy_page).
+constexpr const char* kWorkletFiles[] = {"loader.js", "capabilities.js", "processor.js"};
 constexpr int kExcerpt = 64;            // samples of the reference shown in a failing self-check
 constexpr const char* kMarker = ".earshot-site";
 
@@ -587,7 +589,7 @@ int cmd_site(const std::vector<std::string>& argv) {
       a.last("--wasm-scalar") ? fs::path(*a.last("--wasm-scalar")) : assets / "build/wasm-scalar/earshot-scalar.wasm";
   const std::vector<unsigned char> wasm_simd = read_wasm(wasm_simd_path, "--wasm-simd", "wasm-simd");
   const std::vector<unsigned char> wasm_scalar = read_wasm(wasm_scalar_path, "--wasm-scalar", "wasm-scalar");
-  for (const char* f : {"loader.js", "capabilities.js", "processor.js"}) {
+  for (const char* f : kWorkletFiles) {
     std::error_code ec;
     if (!fs::is_regular_file(assets / "worklet" / f, ec))
       throw InputError("missing '" + (assets / "worklet" / f).string() + "' in the source tree");
@@ -712,8 +714,7 @@ int cmd_site(const std::vector<std::string>& argv) {
   SiteFolder folder(out, a.has("--force"), inputs);
   SiteFiles files(folder.build());
   const size_t page_files = copy_page(assets / "web", files);
-  for (const char* f : {"loader.js", "capabilities.js", "processor.js"})
-    files.copy(assets / "worklet" / f, std::string("worklet/") + f, "worklet file");
+  for (const char* f : kWorkletFiles) files.copy(assets / "worklet" / f, std::string("worklet/") + f, "worklet file");
   files.write("wasm/earshot-simd.wasm", wasm_simd.data(), wasm_simd.size());
   files.write("wasm/earshot-scalar.wasm", wasm_scalar.data(), wasm_scalar.size());
 

@@ -9,7 +9,7 @@ import { join } from 'node:path';
 import { test } from 'node:test';
 import { gzipSync } from 'node:zlib';
 
-import { ABI_FUNCTIONS } from '../../worklet/loader.js';
+import { ABI_FUNCTIONS, MAX_BLOCK, MAX_RATE, MIN_RATE } from '../../worklet/loader.js';
 import { ROOT, WASM_VARIANTS, wasmBytes } from './env.mjs';
 
 // Function names declared in the header: `<type> earshot_<name>(` at the
@@ -25,6 +25,14 @@ function headerFunctions() {
 test('the header declares the stream functions the loader relies on', () => {
   const declared = headerFunctions();
   for (const f of ABI_FUNCTIONS) assert.ok(declared.includes(f), `${f} is declared in earshot.h`);
+});
+
+test('the loader\'s MAX_BLOCK, MIN_RATE and MAX_RATE equal the header\'s #defines', () => {
+  const text = readFileSync(join(ROOT, 'dsp', 'include', 'earshot', 'earshot.h'), 'utf8');
+  const define = (name) => Number((text.match(new RegExp(`^#define\\s+${name}\\s+(\\d+)`, 'm')) || [])[1]);
+  assert.equal(MAX_BLOCK, define('EARSHOT_MAX_BLOCK'));
+  assert.equal(MIN_RATE, define('EARSHOT_MIN_RATE'));
+  assert.equal(MAX_RATE, define('EARSHOT_MAX_RATE'));
 });
 
 for (const v of WASM_VARIANTS) {

@@ -13,7 +13,7 @@
 //       → { type: 'progress', id, done, total } ... { type: 'rendered', id, ... }
 //       or { type: 'fallback', id, reason } when a WAV needs the browser's decoder
 // Failures → { type: 'failed', id, message }.
-import { AlignedRender, loadVariant } from '../worklet/loader.js';
+import { AlignedRender, loadVariant, MAX_RATE, MIN_RATE } from '../worklet/loader.js';
 import { readWavHeader, decodeFrames, WavError, MAX_RENDER_FRAMES } from './wav.js';
 import { integratedLoudness } from './loudness.js';
 import { testSignal, fnv1a64, floatBits } from './test-signal.js';
@@ -222,8 +222,8 @@ async function render(msg) {
   }
   if (nChannels < 1 || nChannels > 2)
     throw new Error(`'${source.name}' has ${nChannels} channels; the page renders mono or stereo files only`);
-  if (rate < 8000 || rate > 384000)
-    throw new Error(`'${source.name}' has sample rate ${rate} Hz; earshot streams run at 8000 .. 384000 Hz`);
+  if (rate < MIN_RATE || rate > MAX_RATE)
+    throw new Error(`'${source.name}' has sample rate ${rate} Hz; earshot streams run at ${MIN_RATE} .. ${MAX_RATE} Hz`);
   if (frames === 0) throw new Error(`'${source.name}' holds no audio samples`);
   if (frames > MAX_RENDER_FRAMES)
     throw new Error(`'${source.name}' is ${frames} frames long (${(frames / rate / 60).toFixed(1)} minutes); the page renders at most ${MAX_RENDER_FRAMES} frames per file (11.6 minutes at 48 kHz): use 'earshot render' for longer files`);
