@@ -40,7 +40,8 @@ const rapidjson::Value* member(const rapidjson::Value& v, const char* key) {
   return it == v.MemberEnd() ? nullptr : &it->value;
 }
 
-std::string num(double v) {
+// Six significant digits, trailing zeros dropped (printf %.6g): 0.01, 48000, 1e+06.
+std::string short_number(double v) {
   char buf[64];
   std::snprintf(buf, sizeof buf, "%.6g", v);
   return buf;
@@ -71,27 +72,27 @@ std::string layer_detail(const rapidjson::Value& L, const rapidjson::Value* desc
   std::string d;
   if (type == "lstm" || type == "gru") {
     const int layers = int(json_number(L, "num_layers", 1));
-    d = "hidden " + num(json_number(L, "hidden")) + ", " + std::to_string(layers) + (layers == 1 ? " layer" : " layers");
+    d = "hidden " + short_number(json_number(L, "hidden")) + ", " + std::to_string(layers) + (layers == 1 ? " layer" : " layers");
   } else if (type == "conv1d" || type == "tcn") {
-    d = "kernel " + num(json_number(L, "kernel")) + ", dilation " + num(json_number(L, "dilation", 1));
+    d = "kernel " + short_number(json_number(L, "kernel")) + ", dilation " + short_number(json_number(L, "dilation", 1));
     if (type == "tcn" && member(L, "film")) d += ", FiLM";
   } else if (type == "wavenet") {
-    d = "channels " + num(json_number(L, "channels")) + ", kernel " + num(json_number(L, "kernel"));
-    if (desc) d += ", skip " + num(json_number(*desc, "skip"));
+    d = "channels " + short_number(json_number(L, "channels")) + ", kernel " + short_number(json_number(L, "kernel"));
+    if (desc) d += ", skip " + short_number(json_number(*desc, "skip"));
     if (const rapidjson::Value* ds = member(L, "dilations"); ds && ds->IsArray()) {
       d += ", dilations";
-      for (const auto& x : ds->GetArray()) d += " " + num(x.GetDouble());
+      for (const auto& x : ds->GetArray()) d += " " + short_number(x.GetDouble());
     }
   } else if (type == "activation" && desc) {
     const std::string fn = json_string(*desc, "fn");
     d = fn;
-    if (fn == "leaky_relu") d += " (slope " + num(json_number(*desc, "slope", 0.01)) + ")";
-    if (fn == "hardtanh") d += " (" + num(json_number(*desc, "min", -1)) + " .. " + num(json_number(*desc, "max", 1)) + ")";
+    if (fn == "leaky_relu") d += " (slope " + short_number(json_number(*desc, "slope", 0.01)) + ")";
+    if (fn == "hardtanh") d += " (" + short_number(json_number(*desc, "min", -1)) + " .. " + short_number(json_number(*desc, "max", 1)) + ")";
   } else if (type == "film" && desc) {
     d = "MLP of the controls";
     if (const rapidjson::Value* h = member(*desc, "hidden"); h && h->IsArray() && h->Size() > 0) {
       d += ", hidden";
-      for (const auto& x : h->GetArray()) d += " " + num(x.GetDouble());
+      for (const auto& x : h->GetArray()) d += " " + short_number(x.GetDouble());
     }
   }
   if (desc && (type == "linear" || type == "conv1d" || type == "lstm" || type == "gru")) {
@@ -170,13 +171,13 @@ int cmd_info(const std::vector<std::string>& argv) {
   }
   for (const char* k : {"paper", "code", "licence"})
     if (!json_string(*credits, k).empty()) row(k, json_string(*credits, k));
-  row("format version", num(json_number(*effect, "version", 1)));
-  row("model rate", num(model_rate) + " Hz");
+  row("format version", short_number(json_number(*effect, "version", 1)));
+  row("model rate", short_number(model_rate) + " Hz");
   const int64_t params = int64_t(json_number(info, "parameters"));
   const int64_t macs = int64_t(json_number(info, "macs_per_sample"));
   row("parameters", format_count(params));
   row("multiply-adds", format_count(macs) + " per sample (" + format_fixed(double(macs) * model_rate / 1e6, 2) +
-                           " million per second at " + num(model_rate) + " Hz)");
+                           " million per second at " + short_number(model_rate) + " Hz)");
   const rapidjson::Value* rf = member(info, "receptive_field");
   const bool recurrent = member(info, "recurrent") && info["recurrent"].IsBool() && info["recurrent"].GetBool();
   if (recurrent || !rf || !rf->IsNumber())
@@ -206,12 +207,12 @@ int cmd_info(const std::vector<std::string>& argv) {
       }
     }
     if (!lat.empty()) lat += "; ";
-    lat += std::to_string(samples) + " samples at " + num(r) + " Hz";
+    lat += std::to_string(samples) + " samples at " + short_number(r) + " Hz";
     if (samples > 0) lat += " (" + format_fixed(samples / r * 1000, 2) + " ms)";
     if (r == model_rate) lat += " (model rate: no resampling)";
   }
   row("latency", lat);
-  row("stream memory", format_fixed(json_number(info, "stream_bytes") / 1048576.0, 2) + " MiB at " + num(host) +
+  row("stream memory", format_fixed(json_number(info, "stream_bytes") / 1048576.0, 2) + " MiB at " + short_number(host) +
                            " Hz (limit " + format_fixed(double(stream_limit_bytes()) / 1048576.0, 0) + " MiB)");
   std::string vars;
   for (const std::string& v : supported_variants()) vars += (vars.empty() ? "" : ", ") + v;
@@ -233,7 +234,7 @@ int cmd_info(const std::vector<std::string>& argv) {
         for (const auto& x : dlayers->GetArray())
           if (json_string(x, "name") == json_string(L, "name")) d = &x;
       rows.push_back({std::to_string(i), json_string(L, "name"), json_string(L, "type"),
-                      num(json_number(L, "in")) + " -> " + num(json_number(L, "out")),
+                      short_number(json_number(L, "in")) + " -> " + short_number(json_number(L, "out")),
                       format_count(int64_t(json_number(L, "parameters"))), layer_detail(L, d)});
     }
     print_table(rows, {true, false, false, false, true, false});
@@ -250,8 +251,8 @@ int cmd_info(const std::vector<std::string>& argv) {
     rows.push_back({"name", "unit", "min", "max", "default", "smoothing"});
     for (const auto& c : controls->GetArray())
       rows.push_back({json_string(c, "name"), json_string(c, "unit").empty() ? "-" : json_string(c, "unit"),
-                      num(json_number(c, "min")), num(json_number(c, "max")), num(json_number(c, "default")),
-                      num(json_number(c, "smoothing_ms", 20)) + " ms"});
+                      short_number(json_number(c, "min")), short_number(json_number(c, "max")), short_number(json_number(c, "default")),
+                      short_number(json_number(c, "smoothing_ms", 20)) + " ms"});
     print_table(rows, std::vector<bool>(rows[0].size(), false));
   }
   return kExitOk;

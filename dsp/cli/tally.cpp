@@ -484,7 +484,8 @@ void report_incomplete(const std::vector<Result>& rs) {
 
 // ---- output helpers ----------------------------------------------------------------
 
-std::string num(double v, int decimals) { return std::isnan(v) ? "-" : format_fixed(v, decimals); }
+// A fixed-point figure for the tables, or "-" where there is none (NaN).
+std::string fixed_or_dash(double v, int decimals) { return std::isnan(v) ? "-" : format_fixed(v, decimals); }
 
 std::string csv_num(double v) {
   if (std::isnan(v)) return "";
@@ -551,8 +552,8 @@ Screening screen(const Result& r, const std::string& ref_id, const std::string& 
   std::vector<std::string> ref_low, mid_high;
   for (const Trial& t : r.trials)
     for (const auto& kv : t.ratings) {
-      if (kv.first == ref_id && kv.second < 90) ref_low.push_back(t.item + " " + num(kv.second, 0));
-      if (!mid_id.empty() && kv.first == mid_id && kv.second > 90) mid_high.push_back(t.item + " " + num(kv.second, 0));
+      if (kv.first == ref_id && kv.second < 90) ref_low.push_back(t.item + " " + fixed_or_dash(kv.second, 0));
+      if (!mid_id.empty() && kv.first == mid_id && kv.second > 90) mid_high.push_back(t.item + " " + fixed_or_dash(kv.second, 0));
     }
   auto judge = [&](const std::vector<std::string>& hits, const std::string& what) {
     const double share = double(hits.size()) / double(items);
@@ -714,11 +715,11 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
     for (size_t i = 0; i < conds.size(); ++i) {
       const Summary& s = row.sums[i];
       if (s.n == 0 && row.missing[i] == 0) continue;
-      const std::string ci = std::isnan(s.ci_lo) ? "-" : num(s.ci_lo, 1) + " .. " + num(s.ci_hi, 1);
-      const std::string iqr = num(s.q1, 1) + " .. " + num(s.q3, 1);
-      const std::string range = num(s.min, 0) + " .. " + num(s.max, 0);
+      const std::string ci = std::isnan(s.ci_lo) ? "-" : fixed_or_dash(s.ci_lo, 1) + " .. " + fixed_or_dash(s.ci_hi, 1);
+      const std::string iqr = fixed_or_dash(s.q1, 1) + " .. " + fixed_or_dash(s.q3, 1);
+      const std::string range = fixed_or_dash(s.min, 0) + " .. " + fixed_or_dash(s.max, 0);
       std::printf("  %-16s %-10s %5zu %7s %17s %6s %7s %16s %12s\n", terminal_text(conds[i].id).c_str(), conds[i].role.c_str(), s.n,
-                  num(s.mean, 1).c_str(), ci.c_str(), num(s.sd, 1).c_str(), num(s.median, 1).c_str(), iqr.c_str(),
+                  fixed_or_dash(s.mean, 1).c_str(), ci.c_str(), fixed_or_dash(s.sd, 1).c_str(), fixed_or_dash(s.median, 1).c_str(), iqr.c_str(),
                   range.c_str());
     }
     std::string gaps;
