@@ -128,6 +128,241 @@ class Progress {
   int last_ = -1;
 };
 
+// ---- parse: every option is checked before any file is touched ------------------
+
+struct RenderOptions {
+  std::string fx_path, in_path, out_path;
+  int block = 512;
+  std::string variant;
+  std::vector<std::string> controls;             // --control NAME=VALUE, in order
+  const std::string* mix = nullptr;              // the option texts, for messages
+  const std::string* input_gain = nullptr;
+  const std::string* output_gain = nullptr;
+  double mix_value = 1.0, in_db = 0.0, out_db = 0.0;
+  int encoding = 0;   // libsndfile subtype, 0: by container
+  int out_major = 0;  // libsndfile container from OUT's extension, 0: IN's
+  bool keep_latency = false, force = false, quiet = false, progress = false, no_progress = false;
+};
+
+int parse_encoding(const std::string* e) {
+  if (!e) return 0;
+  if (*e == "float") return SF_FORMAT_FLOAT;
+  if (*e == "pcm16") return SF_FORMAT_PCM_16;
+  if (*e == "pcm24") return SF_FORMAT_PCM_24;
+  throw UsageError("--encoding: unknown encoding '" + *e + "' (float, pcm16 or pcm24)");
+}
+
+int container_of(const std::string& out_path) {
+  const std::string ext = extension_of(out_path);
+  if (ext == "wav") return SF_FORMAT_WAV;
+  if (ext == "flac") return SF_FORMAT_FLAC;
+  if (ext == "aif" || ext == "aiff" || ext == "aifc") return SF_FORMAT_AIFF;
+  if (!ext.empty())
+    throw UsageError("OUT '" + out_path + "': unknown extension '." + ext +
+                     "' (use .wav, .flac, .aif or .aiff, or no extension for IN's container)");
+  return 0;
+}
+
+RenderOptions parse_render(const Args& a) {
+  if (a.positional.size() != 3) {
+    static const char* names[] = {"the effect FILE", "the input audio file IN", "the output audio file OUT"};
+    if (a.positional.size() < 3) throw UsageError(std::string("missing ") + names[a.positional.size()]);
+    throw UsageError("expected FILE IN OUT, got " + std::to_string(a.positional.size()) + " arguments");
+  }
+  RenderOptions o;
+  o.fx_path = a.positional[0];
+  o.in_path = a.positional[1];
+  o.out_path = a.positional[2];
+  if (const std::string* v = a.last("--block")) o.block = int(parse_integer("--block", *v, 1, EARSHOT_MAX_BLOCK));
+  if (const std::string* v = a.last("--variant")) {
+    o.variant = *v;
+    check_variant(o.variant);
+  }
+  o.controls = a.all("--control");
+  o.mix = a.last("--mix");
+  o.input_gain = a.last("--input-gain");
+  o.output_gain = a.last("--output-gain");
+  if (o.mix) o.mix_value = parse_number("--mix", *o.mix, -HUGE_VAL, HUGE_VAL);
+  if (o.input_gain) o.in_db = parse_number("--input-gain", *o.input_gain, -HUGE_VAL, HUGE_VAL);
+  if (o.output_gain) o.out_db = parse_number("--output-gain", *o.output_gain, -HUGE_VAL, HUGE_VAL);
+  o.encoding = parse_encoding(a.last("--encoding"));
+  o.out_major = container_of(o.out_path);
+  o.keep_latency = a.has("--keep-latency");
+  o.force = a.has("--force");
+  o.quiet = a.has("--quiet");
+  o.progress = a.has("--progress");
+  o.no_progress = a.has("--no-progress");
+  return o;
+}
+
+// ---- set up: input, streams, output format ----------------------------------------
+
+// One stream per channel with the settings applied, then reset: the render
+// starts at the settings, unramped. Mix and gains are checked by the core; the
+// error names the option at fault.
+std::vector<std::unique_ptr<Stream>> make_streams(const RenderOptions& o, const std::vector<unsigned char>& bytes,
+                                                  int rate, int channels) {
+  std::vector<std::unique_ptr<Stream>> streams;
+  for (int c = 0; c < channels; ++c) {
+    streams.emplace_back(new Stream(bytes, rate, o.variant, o.fx_path));
+    Stream& s = *streams.back();
+    apply_controls(s, o.controls);
+    if (o.mix) {
+      const int st = earshot_set_mix(s.get(), float(o.mix_value));
+      if (st != EARSHOT_OK) throw UsageError("--mix " + *o.mix + ": " + earshot_status_text(st) + " (0 .. 1)");
+    }
+    if (o.input_gain || o.output_gain) {
+      // Checked one at a time so the error names the option at fault.
+      int st = earshot_set_gain(s.get(), float(o.in_db), 0.0f);
+      if (st != EARSHOT_OK)
+        throw UsageError("--input-gain " + *o.input_gain + ": " + earshot_status_text(st) + " (-60 .. 24 dB)");
+      st = earshot_set_gain(s.get(), float(o.in_db), float(o.out_db));
+      if (st != EARSHOT_OK)
+        throw UsageError("--output-gain " + *o.output_gain + ": " + earshot_status_text(st) + " (-60 .. 24 dB)");
+    }
+    earshot_reset(s.get());
+  }
+  return streams;
+}
+
+struct OutputFormat {
+  int major = 0, sub = 0;
+};
+
+// OUT's container (its extension, else IN's) and encoding (--encoding, else
+// float, or 24-bit for FLAC and for a container that cannot hold float).
+OutputFormat output_format(const RenderOptions& o, int in_format, int rate, int channels, SF_INFO& out_info) {
+  OutputFormat f{o.out_major != 0 ? o.out_major : in_format & SF_FORMAT_TYPEMASK, o.encoding};
+  if (f.sub == 0) f.sub = f.major == SF_FORMAT_FLAC ? SF_FORMAT_PCM_24 : SF_FORMAT_FLOAT;
+  out_info = SF_INFO{};
+  out_info.samplerate = rate;
+  out_info.channels = channels;
+  out_info.format = f.major | f.sub;
+  if (!sf_format_check(&out_info)) {
+    if (o.encoding == 0) {
+      out_info.format = f.major | SF_FORMAT_PCM_24;
+      f.sub = SF_FORMAT_PCM_24;
+    }
+    if (!sf_format_check(&out_info))
+      throw UsageError(std::string("OUT '") + o.out_path + "': " + container_name(f.major) + " cannot hold " +
+                       encoding_name(f.sub) + " samples" + (o.encoding ? "; choose another --encoding" : ""));
+  }
+  return f;
+}
+
+// ---- compute: blocks through the streams, the latency trimmed -----------------------
+
+// Runs blocks of interleaved frames through one stream per channel and writes
+// what lies past the first `skip` output frames (the latency) to `out`.
+class TrimmedRender {
+ public:
+  TrimmedRender(std::vector<std::unique_ptr<Stream>>& streams, int block, int64_t skip, SNDFILE* out,
+                const std::string& out_path, Progress& bar)
+      : streams_(streams), channels_(int(streams.size())), to_skip_(skip), out_(out), out_path_(out_path), bar_(bar),
+        outer_(size_t(block) * streams.size()),
+        chan_(streams.size(), std::vector<float>(size_t(block), 0.0f)),
+        res_(streams.size(), std::vector<float>(size_t(block), 0.0f)) {}
+
+  // k interleaved frames (k <= block).
+  void interleaved(const float* frames, int k) {
+    for (int t = 0; t < k; ++t)
+      for (int c = 0; c < channels_; ++c) chan_[size_t(c)][size_t(t)] = frames[size_t(t * channels_ + c)];
+    run(k);
+  }
+  // k frames of silence (k <= block): the flush that pushes the tail out.
+  void silence(int k) {
+    for (auto& ch : chan_) std::fill(ch.begin(), ch.begin() + k, 0.0f);
+    run(k);
+  }
+
+  int64_t done = 0, written = 0, clipped = 0;
+  float peak = 0;
+
+ private:
+  void run(int k) {
+    for (int c = 0; c < channels_; ++c)
+      if (earshot_process(streams_[size_t(c)]->get(), chan_[size_t(c)].data(), res_[size_t(c)].data(), k) != k)
+        throw std::runtime_error("earshot_process refused a block of " + std::to_string(k) + " samples");
+    const int skip = int(std::min<int64_t>(to_skip_, k));
+    to_skip_ -= skip;
+    const int m = k - skip;
+    for (int t = 0; t < m; ++t)
+      for (int c = 0; c < channels_; ++c) {
+        const float y = res_[size_t(c)][size_t(skip + t)];
+        outer_[size_t(t * channels_ + c)] = y;
+        const float ay = std::fabs(y);
+        peak = std::max(peak, ay);
+        if (ay > 1.0f) ++clipped;
+      }
+    if (m > 0 && sf_writef_float(out_, outer_.data(), m) != m)
+      throw InputError("cannot write audio file '" + out_path_ + "': " + sf_strerror(out_));
+    written += m;
+    done += k;
+    bar_.update(done);
+  }
+
+  std::vector<std::unique_ptr<Stream>>& streams_;
+  int channels_;
+  int64_t to_skip_;
+  SNDFILE* out_;
+  const std::string& out_path_;
+  Progress& bar_;
+  std::vector<float> outer_;
+  std::vector<std::vector<float>> chan_, res_;
+};
+
+// Reads IN to its end through `r`, then flushes `latency` frames of silence.
+// A read error or a short read of a seekable file is an error, never a
+// shorter output (libsndfile can end a damaged file early without an error).
+void render_all(SNDFILE* in, const std::string& in_path, int channels, int block, bool seekable, int64_t in_frames,
+                int latency, TrimmedRender& r, Progress& bar) {
+  std::vector<float> inter(size_t(block) * size_t(channels));
+  for (;;) {
+    const sf_count_t got = sf_readf_float(in, inter.data(), sf_count_t(block));
+    if (got <= 0) break;
+    r.interleaved(inter.data(), int(got));
+  }
+  if (sf_error(in) != SF_ERR_NO_ERROR) {
+    const std::string msg = sf_strerror(in);
+    bar.finish();
+    throw InputError("cannot read audio file '" + in_path + "': read " + std::to_string(r.done) + " of " +
+                     std::to_string(in_frames) + " frames: " + msg);
+  }
+  if (seekable && r.done != in_frames) {
+    bar.finish();
+    throw InputError("'" + in_path + "': read " + std::to_string(r.done) + " of " + std::to_string(in_frames) +
+                     " frames");
+  }
+  for (int64_t left = latency; left > 0;) {
+    const int k = int(std::min<int64_t>(left, int64_t(block)));
+    r.silence(k);
+    left -= k;
+  }
+}
+
+// ---- print ------------------------------------------------------------------------
+
+void print_render(const RenderOptions& o, const TrimmedRender& r, const OutputFormat& f, int rate, int channels,
+                  int latency, const std::vector<std::unique_ptr<Stream>>& streams) {
+  unsigned nonfinite = 0;
+  for (const auto& s : streams) nonfinite += earshot_nonfinite_count(s->get());
+  if (nonfinite > 0)
+    std::fprintf(stderr,
+                 "earshot render: warning: %u block(s) produced a non-finite value; each was replaced by silence "
+                 "and the stream state was reset\n",
+                 nonfinite);
+  if (r.clipped > 0 && f.sub != SF_FORMAT_FLOAT)
+    std::fprintf(stderr, "earshot render: warning: %lld sample(s) above full scale were clipped in %s output\n",
+                 (long long)r.clipped, encoding_name(f.sub));
+  if (o.quiet) return;
+  const std::string peak_text = r.peak > 0 ? format_fixed(20 * std::log10(double(r.peak)), 1) + " dBFS" : "silent";
+  std::printf("wrote %s: %lld frames (%s s), %s, %d Hz, %s %s; variant %s; latency %d samples %s; peak %s\n",
+              o.out_path.c_str(), (long long)r.written, format_fixed(double(r.written) / rate, 3).c_str(),
+              channels == 1 ? "mono" : "stereo", rate, container_name(f.major), encoding_name(f.sub),
+              earshot_variant(streams[0]->get()), latency,
+              latency == 0 ? "(none)" : o.keep_latency ? "(kept)" : "(trimmed)", peak_text.c_str());
+}
+
 }  // namespace
 
 int cmd_render(const std::vector<std::string>& argv) {
@@ -149,202 +384,43 @@ int cmd_render(const std::vector<std::string>& argv) {
     std::fputs(kHelp, stdout);
     return kExitOk;
   }
-  if (a.positional.size() != 3) {
-    static const char* names[] = {"the effect FILE", "the input audio file IN", "the output audio file OUT"};
-    if (a.positional.size() < 3) throw UsageError(std::string("missing ") + names[a.positional.size()]);
-    throw UsageError("expected FILE IN OUT, got " + std::to_string(a.positional.size()) + " arguments");
-  }
-  const std::string fx_path = a.positional[0], in_path = a.positional[1], out_path = a.positional[2];
-
-  // Every option is checked before any file is touched.
-  int block = 512;
-  if (const std::string* v = a.last("--block")) block = int(parse_integer("--block", *v, 1, EARSHOT_MAX_BLOCK));
-  std::string variant;
-  if (const std::string* v = a.last("--variant")) {
-    variant = *v;
-    check_variant(variant);
-  }
-  const bool has_mix = a.has("--mix"), has_gain = a.has("--input-gain") || a.has("--output-gain");
-  const double mix = has_mix ? parse_number("--mix", *a.last("--mix"), -HUGE_VAL, HUGE_VAL) : 1.0;
-  const double in_db =
-      a.has("--input-gain") ? parse_number("--input-gain", *a.last("--input-gain"), -HUGE_VAL, HUGE_VAL) : 0.0;
-  const double out_db =
-      a.has("--output-gain") ? parse_number("--output-gain", *a.last("--output-gain"), -HUGE_VAL, HUGE_VAL) : 0.0;
-  int encoding = 0;
-  if (const std::string* e = a.last("--encoding")) {
-    if (*e == "float")
-      encoding = SF_FORMAT_FLOAT;
-    else if (*e == "pcm16")
-      encoding = SF_FORMAT_PCM_16;
-    else if (*e == "pcm24")
-      encoding = SF_FORMAT_PCM_24;
-    else
-      throw UsageError("--encoding: unknown encoding '" + *e + "' (float, pcm16 or pcm24)");
-  }
-  const std::string ext = extension_of(out_path);
-  int out_major = 0;
-  if (ext == "wav")
-    out_major = SF_FORMAT_WAV;
-  else if (ext == "flac")
-    out_major = SF_FORMAT_FLAC;
-  else if (ext == "aif" || ext == "aiff" || ext == "aifc")
-    out_major = SF_FORMAT_AIFF;
-  else if (!ext.empty())
-    throw UsageError("OUT '" + out_path + "': unknown extension '." + ext +
-                     "' (use .wav, .flac, .aif or .aiff, or no extension for IN's container)");
-
-  const std::vector<unsigned char> bytes = read_effect_file(fx_path);
+  const RenderOptions o = parse_render(a);
+  const std::vector<unsigned char> bytes = read_effect_file(o.fx_path);
 
   SF_INFO in_info{};
-  SndPtr in(sf_open(in_path.c_str(), SFM_READ, &in_info));
-  if (!in) throw InputError("cannot read audio file '" + in_path + "': " + sf_strerror(nullptr));
+  SndPtr in(sf_open(o.in_path.c_str(), SFM_READ, &in_info));
+  if (!in) throw InputError("cannot read audio file '" + o.in_path + "': " + sf_strerror(nullptr));
   const int channels = in_info.channels, rate = in_info.samplerate;
   if (channels < 1 || channels > 2)
-    throw InputError("audio file '" + in_path + "' has " + std::to_string(channels) +
+    throw InputError("audio file '" + o.in_path + "' has " + std::to_string(channels) +
                      " channels; earshot renders mono or stereo (1 or 2 channels) only");
   if (!stream_rate_ok(rate))
-    throw InputError("audio file '" + in_path + "' has sample rate " + std::to_string(rate) + " Hz; " +
+    throw InputError("audio file '" + o.in_path + "' has sample rate " + std::to_string(rate) + " Hz; " +
                      stream_rates_text());
-  refuse_same_file("OUT", out_path, {{"IN", in_path}, {"FILE", fx_path}});
-  check_overwrite(out_path, a.has("--force"));
+  refuse_same_file("OUT", o.out_path, {{"IN", o.in_path}, {"FILE", o.fx_path}});
+  check_overwrite(o.out_path, o.force);
   // libsndfile shortens a WAV whose data runs past the end of the file: refused, never a shorter output.
-  if (in_info.seekable) check_declared_length(in_path, in_info.format, channels, int64_t(in_info.frames));
+  if (in_info.seekable) check_declared_length(o.in_path, in_info.format, channels, int64_t(in_info.frames));
 
-  // Streams, settings, then reset: the render starts at the settings, unramped.
-  std::vector<std::unique_ptr<Stream>> streams;
-  for (int c = 0; c < channels; ++c) {
-    streams.emplace_back(new Stream(bytes, rate, variant, fx_path));
-    Stream& s = *streams.back();
-    apply_controls(s, a.all("--control"));
-    if (has_mix) {
-      const int st = earshot_set_mix(s.get(), float(mix));
-      if (st != EARSHOT_OK)
-        throw UsageError("--mix " + *a.last("--mix") + ": " + earshot_status_text(st) + " (0 .. 1)");
-    }
-    if (has_gain) {
-      // Checked one at a time so the error names the option at fault.
-      int st = earshot_set_gain(s.get(), float(in_db), 0.0f);
-      if (st != EARSHOT_OK)
-        throw UsageError("--input-gain " + *a.last("--input-gain") + ": " + earshot_status_text(st) +
-                         " (-60 .. 24 dB)");
-      st = earshot_set_gain(s.get(), float(in_db), float(out_db));
-      if (st != EARSHOT_OK)
-        throw UsageError("--output-gain " + *a.last("--output-gain") + ": " + earshot_status_text(st) +
-                         " (-60 .. 24 dB)");
-    }
-    earshot_reset(s.get());
-  }
+  std::vector<std::unique_ptr<Stream>> streams = make_streams(o, bytes, rate, channels);
   const int latency = streams[0]->latency();
-  const bool keep = a.has("--keep-latency");
-
-  // Output format.
-  const int in_major = in_info.format & SF_FORMAT_TYPEMASK;
-  if (out_major == 0) out_major = in_major;
-  int sub = encoding;
-  if (sub == 0) sub = out_major == SF_FORMAT_FLAC ? SF_FORMAT_PCM_24 : SF_FORMAT_FLOAT;
-  SF_INFO out_info{};
-  out_info.samplerate = rate;
-  out_info.channels = channels;
-  out_info.format = out_major | sub;
-  if (!sf_format_check(&out_info)) {
-    if (encoding == 0) {
-      out_info.format = out_major | SF_FORMAT_PCM_24;
-      sub = SF_FORMAT_PCM_24;
-    }
-    if (!sf_format_check(&out_info))
-      throw UsageError(std::string("OUT '") + out_path + "': " + container_name(out_major) + " cannot hold " +
-                       encoding_name(sub) + " samples" + (encoding ? "; choose another --encoding" : ""));
-  }
+  SF_INFO out_info;
+  const OutputFormat format = output_format(o, in_info.format, rate, channels, out_info);
   // Written to a temporary file beside OUT and renamed over it only after the whole run succeeded
   // (output_file.hpp), so a failed run leaves an existing OUT untouched and no partial file.
-  OutputFile out_file(out_path, "audio file");
+  OutputFile out_file(o.out_path, "audio file");
   SNDFILE* const out = out_file.sound(out_info);
-  if (sub != SF_FORMAT_FLOAT) sf_command(out, SFC_SET_CLIPPING, nullptr, SF_TRUE);
+  if (format.sub != SF_FORMAT_FLOAT) sf_command(out, SFC_SET_CLIPPING, nullptr, SF_TRUE);
 
   const int64_t in_frames = in_info.frames;
   const bool seekable = in_info.seekable != 0 && in_frames >= 0;
-  const bool want_bar = !a.has("--no-progress") &&
-                        (a.has("--progress") || (isatty(2) && seekable && in_frames > int64_t(10) * rate));
+  const bool want_bar = !o.no_progress && (o.progress || (isatty(2) && seekable && in_frames > int64_t(10) * rate));
   Progress bar(want_bar, seekable ? in_frames + latency : 0);
-
-  const size_t B = size_t(block);
-  std::vector<float> inter(B * size_t(channels)), outer(B * size_t(channels));
-  std::vector<std::vector<float>> chan(static_cast<size_t>(channels), std::vector<float>(B, 0.0f));
-  std::vector<std::vector<float>> res(static_cast<size_t>(channels), std::vector<float>(B, 0.0f));
-  int64_t to_skip = keep ? 0 : latency, written = 0, clipped = 0, done = 0;
-  float peak = 0;
-
-  auto fail_write = [&]() { throw InputError("cannot write audio file '" + out_path + "': " + sf_strerror(out)); };
-  // Runs `k` frames from chan[] through the streams and writes what is past the trim.
-  auto run = [&](int k) {
-    for (int c = 0; c < channels; ++c)
-      if (earshot_process(streams[size_t(c)]->get(), chan[size_t(c)].data(), res[size_t(c)].data(), k) != k)
-        throw std::runtime_error("earshot_process refused a block of " + std::to_string(k) + " samples");
-    const int skip = int(std::min<int64_t>(to_skip, k));
-    to_skip -= skip;
-    const int m = k - skip;
-    for (int t = 0; t < m; ++t)
-      for (int c = 0; c < channels; ++c) {
-        const float y = res[size_t(c)][size_t(skip + t)];
-        outer[size_t(t * channels + c)] = y;
-        const float ay = std::fabs(y);
-        peak = std::max(peak, ay);
-        if (ay > 1.0f) ++clipped;
-      }
-    if (m > 0 && sf_writef_float(out, outer.data(), m) != m) fail_write();
-    written += m;
-    done += k;
-    bar.update(done);
-  };
-
-  for (;;) {
-    const sf_count_t got = sf_readf_float(in.get(), inter.data(), sf_count_t(B));
-    if (got <= 0) break;
-    for (sf_count_t t = 0; t < got; ++t)
-      for (int c = 0; c < channels; ++c) chan[size_t(c)][size_t(t)] = inter[size_t(t * channels + c)];
-    run(int(got));
-  }
-  if (sf_error(in.get()) != SF_ERR_NO_ERROR) {
-    const std::string msg = sf_strerror(in.get());
-    bar.finish();
-    throw InputError("cannot read audio file '" + in_path + "': read " + std::to_string(done) + " of " +
-                     std::to_string(in_frames) + " frames: " + msg);
-  }
-  // libsndfile can end a damaged file early without setting an error: a short read is an error, never a
-  // shorter output.
-  if (seekable && done != in_frames) {
-    bar.finish();
-    throw InputError("'" + in_path + "': read " + std::to_string(done) + " of " + std::to_string(in_frames) +
-                     " frames");
-  }
-  // Flush: `latency` samples of silence push the tail out.
-  for (int64_t left = latency; left > 0;) {
-    const int k = int(std::min<int64_t>(left, int64_t(B)));
-    for (int c = 0; c < channels; ++c) std::fill(chan[size_t(c)].begin(), chan[size_t(c)].begin() + k, 0.0f);
-    run(k);
-    left -= k;
-  }
+  TrimmedRender r(streams, o.block, o.keep_latency ? 0 : latency, out, o.out_path, bar);
+  render_all(in.get(), o.in_path, channels, o.block, seekable, in_frames, latency, r, bar);
   bar.finish();
   out_file.commit();
-
-  unsigned nonfinite = 0;
-  for (const auto& s : streams) nonfinite += earshot_nonfinite_count(s->get());
-  if (nonfinite > 0)
-    std::fprintf(stderr,
-                 "earshot render: warning: %u block(s) produced a non-finite value; each was replaced by silence "
-                 "and the stream state was reset\n",
-                 nonfinite);
-  if (clipped > 0 && sub != SF_FORMAT_FLOAT)
-    std::fprintf(stderr, "earshot render: warning: %lld sample(s) above full scale were clipped in %s output\n",
-                 (long long)clipped, encoding_name(sub));
-  if (!a.has("--quiet")) {
-    const std::string peak_text = peak > 0 ? format_fixed(20 * std::log10(double(peak)), 1) + " dBFS" : "silent";
-    std::printf("wrote %s: %lld frames (%s s), %s, %d Hz, %s %s; variant %s; latency %d samples %s; peak %s\n",
-                out_path.c_str(), (long long)written, format_fixed(double(written) / rate, 3).c_str(),
-                channels == 1 ? "mono" : "stereo", rate, container_name(out_major), encoding_name(sub),
-                earshot_variant(streams[0]->get()), latency,
-                latency == 0 ? "(none)" : keep ? "(kept)" : "(trimmed)", peak_text.c_str());
-  }
+  print_render(o, r, format, rate, channels, latency, streams);
   return kExitOk;
 }
 
