@@ -114,6 +114,109 @@ std::string file_size_text(const std::string& path) {
   return s;
 }
 
+// Every value printed may hold the effect file's own text: terminal_text
+// escapes control characters (docs/cli.md, "Untrusted text").
+void row(const char* k, const std::string& v) { std::printf("  %-17s %s\n", k, terminal_text(v).c_str()); }
+
+// Latency at the host rate in use and at the two common rates (a rate the
+// effect cannot be served at is left out).
+std::string latency_text(const Stream& s, double host, double model_rate, const std::vector<unsigned char>& bytes,
+                         const std::string& variant, const std::string& path) {
+  std::vector<double> rates = {host};
+  for (double r : {44100.0, 48000.0})
+    if (r != host) rates.push_back(r);
+  std::string lat;
+  for (double r : rates) {
+    int samples;
+    if (r == host) {
+      samples = s.latency();
+    } else {
+      try {
+        Stream t(bytes, r, variant, path);
+        samples = t.latency();
+      } catch (const InputError&) {
+        continue;  // this rate cannot be served; the stream in use can
+      }
+    }
+    if (!lat.empty()) lat += "; ";
+    lat += std::to_string(samples) + " samples at " + short_number(r) + " Hz";
+    if (samples > 0) lat += " (" + format_fixed(samples / r * 1000, 2) + " ms)";
+    if (r == model_rate) lat += " (model rate: no resampling)";
+  }
+  return lat;
+}
+
+// Title, file, credits and the figures of the whole effect.
+void print_summary(const rapidjson::Value& info, const rapidjson::Value& effect, const rapidjson::Value& credits,
+                   const std::string& path, double model_rate) {
+  std::printf("%s\n", terminal_text(json_string(info, "title", "(untitled)")).c_str());
+  row("file", path + ", " + file_size_text(path));
+  if (const rapidjson::Value* au = member(credits, "authors"); au && au->IsArray() && au->Size() > 0) {
+    std::string list;
+    for (const auto& x : au->GetArray())
+      if (x.IsString()) list += (list.empty() ? "" : ", ") + std::string(x.GetString());
+    row(au->Size() == 1 ? "author" : "authors", list);
+  }
+  for (const char* k : {"paper", "code", "licence"})
+    if (!json_string(credits, k).empty()) row(k, json_string(credits, k));
+  row("format version", short_number(json_number(effect, "version", 1)));
+  row("model rate", short_number(model_rate) + " Hz");
+  const int64_t params = int64_t(json_number(info, "parameters"));
+  const int64_t macs = int64_t(json_number(info, "macs_per_sample"));
+  row("parameters", format_count(params));
+  row("multiply-adds", format_count(macs) + " per sample (" + format_fixed(double(macs) * model_rate / 1e6, 2) +
+                           " million per second at " + short_number(model_rate) + " Hz)");
+  const rapidjson::Value* rf = member(info, "receptive_field");
+  const bool recurrent = member(info, "recurrent") && info["recurrent"].IsBool() && info["recurrent"].GetBool();
+  if (recurrent || !rf || !rf->IsNumber())
+    row("receptive field", "recurrent (LSTM/GRU state: unbounded)");
+  else
+    row("receptive field", format_count(rf->GetInt64()) + (rf->GetInt64() == 1 ? " sample (" : " samples (") +
+                               format_fixed(rf->GetDouble() / model_rate * 1000, 2) + " ms at the model rate)");
+  row("input skip", member(info, "input_skip") && info["input_skip"].IsBool() && info["input_skip"].GetBool()
+                        ? "yes (output = network + input)"
+                        : "no");
+}
+
+void print_layers(const rapidjson::Value& info, const rapidjson::Value& effect) {
+  const rapidjson::Value* layers = member(info, "layers");
+  const rapidjson::Value* graph = member(effect, "graph");
+  const rapidjson::Value* dlayers = graph ? member(*graph, "layers") : nullptr;
+  const unsigned n_layers = layers && layers->IsArray() ? layers->Size() : 0;
+  std::printf("\nlayers (%u)\n", n_layers);
+  if (n_layers == 0) return;
+  std::vector<std::vector<std::string>> rows;
+  rows.push_back({"#", "name", "type", "in -> out", "parameters", "details"});
+  for (unsigned i = 0; i < n_layers; ++i) {
+    const rapidjson::Value& L = (*layers)[i];
+    const rapidjson::Value* d = nullptr;
+    if (dlayers && dlayers->IsArray())
+      for (const auto& x : dlayers->GetArray())
+        if (json_string(x, "name") == json_string(L, "name")) d = &x;
+    rows.push_back({std::to_string(i), json_string(L, "name"), json_string(L, "type"),
+                    short_number(json_number(L, "in")) + " -> " + short_number(json_number(L, "out")),
+                    format_count(int64_t(json_number(L, "parameters"))), layer_detail(L, d)});
+  }
+  print_table(rows, {true, false, false, false, true, false});
+}
+
+void print_controls(const rapidjson::Value& effect) {
+  const rapidjson::Value* controls = member(effect, "controls");
+  const unsigned n_controls = controls && controls->IsArray() ? controls->Size() : 0;
+  std::printf("\ncontrols (%u)\n", n_controls);
+  if (n_controls == 0) {
+    std::printf("  none\n");
+    return;
+  }
+  std::vector<std::vector<std::string>> rows;
+  rows.push_back({"name", "unit", "min", "max", "default", "smoothing"});
+  for (const auto& c : controls->GetArray())
+    rows.push_back({json_string(c, "name"), json_string(c, "unit").empty() ? "-" : json_string(c, "unit"),
+                    short_number(json_number(c, "min")), short_number(json_number(c, "max")),
+                    short_number(json_number(c, "default")), short_number(json_number(c, "smoothing_ms", 20)) + " ms"});
+  print_table(rows, std::vector<bool>(rows[0].size(), false));
+}
+
 }  // namespace
 
 int cmd_info(const std::vector<std::string>& argv) {
@@ -157,104 +260,15 @@ int cmd_info(const std::vector<std::string>& argv) {
   if (!effect) effect = &empty;
   const rapidjson::Value* credits = member(*effect, "credits");
   if (!credits) credits = &empty;
-
-  // Every value below may hold the effect file's own text: terminal_text
-  // escapes control characters (docs/cli.md, "Untrusted text").
-  std::printf("%s\n", terminal_text(json_string(info, "title", "(untitled)")).c_str());
-  auto row = [](const char* k, const std::string& v) { std::printf("  %-17s %s\n", k, terminal_text(v).c_str()); };
-  row("file", path + ", " + file_size_text(path));
-  if (const rapidjson::Value* au = member(*credits, "authors"); au && au->IsArray() && au->Size() > 0) {
-    std::string list;
-    for (const auto& x : au->GetArray())
-      if (x.IsString()) list += (list.empty() ? "" : ", ") + std::string(x.GetString());
-    row(au->Size() == 1 ? "author" : "authors", list);
-  }
-  for (const char* k : {"paper", "code", "licence"})
-    if (!json_string(*credits, k).empty()) row(k, json_string(*credits, k));
-  row("format version", short_number(json_number(*effect, "version", 1)));
-  row("model rate", short_number(model_rate) + " Hz");
-  const int64_t params = int64_t(json_number(info, "parameters"));
-  const int64_t macs = int64_t(json_number(info, "macs_per_sample"));
-  row("parameters", format_count(params));
-  row("multiply-adds", format_count(macs) + " per sample (" + format_fixed(double(macs) * model_rate / 1e6, 2) +
-                           " million per second at " + short_number(model_rate) + " Hz)");
-  const rapidjson::Value* rf = member(info, "receptive_field");
-  const bool recurrent = member(info, "recurrent") && info["recurrent"].IsBool() && info["recurrent"].GetBool();
-  if (recurrent || !rf || !rf->IsNumber())
-    row("receptive field", "recurrent (LSTM/GRU state: unbounded)");
-  else
-    row("receptive field", format_count(rf->GetInt64()) + (rf->GetInt64() == 1 ? " sample (" : " samples (") +
-                               format_fixed(rf->GetDouble() / model_rate * 1000, 2) + " ms at the model rate)");
-  row("input skip", member(info, "input_skip") && info["input_skip"].IsBool() && info["input_skip"].GetBool()
-                        ? "yes (output = network + input)"
-                        : "no");
-
-  // Latency at the host rate in use and at the two common rates.
-  std::vector<double> rates = {host};
-  for (double r : {44100.0, 48000.0})
-    if (r != host) rates.push_back(r);
-  std::string lat;
-  for (double r : rates) {
-    int samples;
-    if (r == host) {
-      samples = s.latency();
-    } else {
-      try {
-        Stream t(bytes, r, variant, path);
-        samples = t.latency();
-      } catch (const InputError&) {
-        continue;  // this rate cannot be served; the stream in use can
-      }
-    }
-    if (!lat.empty()) lat += "; ";
-    lat += std::to_string(samples) + " samples at " + short_number(r) + " Hz";
-    if (samples > 0) lat += " (" + format_fixed(samples / r * 1000, 2) + " ms)";
-    if (r == model_rate) lat += " (model rate: no resampling)";
-  }
-  row("latency", lat);
+  print_summary(info, *effect, *credits, path, model_rate);
+  row("latency", latency_text(s, host, model_rate, bytes, variant, path));
   row("stream memory", format_fixed(json_number(info, "stream_bytes") / 1048576.0, 2) + " MiB at " + short_number(host) +
                            " Hz (limit " + format_fixed(double(stream_limit_bytes()) / 1048576.0, 0) + " MiB)");
   std::string vars;
   for (const std::string& v : supported_variants()) vars += (vars.empty() ? "" : ", ") + v;
   row("variant", json_string(info, "variant") + " (this CPU runs " + vars + ")");
-
-  // Layers.
-  const rapidjson::Value* layers = member(info, "layers");
-  const rapidjson::Value* graph = member(*effect, "graph");
-  const rapidjson::Value* dlayers = graph ? member(*graph, "layers") : nullptr;
-  const unsigned n_layers = layers && layers->IsArray() ? layers->Size() : 0;
-  std::printf("\nlayers (%u)\n", n_layers);
-  if (n_layers > 0) {
-    std::vector<std::vector<std::string>> rows;
-    rows.push_back({"#", "name", "type", "in -> out", "parameters", "details"});
-    for (unsigned i = 0; i < n_layers; ++i) {
-      const rapidjson::Value& L = (*layers)[i];
-      const rapidjson::Value* d = nullptr;
-      if (dlayers && dlayers->IsArray())
-        for (const auto& x : dlayers->GetArray())
-          if (json_string(x, "name") == json_string(L, "name")) d = &x;
-      rows.push_back({std::to_string(i), json_string(L, "name"), json_string(L, "type"),
-                      short_number(json_number(L, "in")) + " -> " + short_number(json_number(L, "out")),
-                      format_count(int64_t(json_number(L, "parameters"))), layer_detail(L, d)});
-    }
-    print_table(rows, {true, false, false, false, true, false});
-  }
-
-  // Controls.
-  const rapidjson::Value* controls = member(*effect, "controls");
-  const unsigned n_controls = controls && controls->IsArray() ? controls->Size() : 0;
-  std::printf("\ncontrols (%u)\n", n_controls);
-  if (n_controls == 0) {
-    std::printf("  none\n");
-  } else {
-    std::vector<std::vector<std::string>> rows;
-    rows.push_back({"name", "unit", "min", "max", "default", "smoothing"});
-    for (const auto& c : controls->GetArray())
-      rows.push_back({json_string(c, "name"), json_string(c, "unit").empty() ? "-" : json_string(c, "unit"),
-                      short_number(json_number(c, "min")), short_number(json_number(c, "max")), short_number(json_number(c, "default")),
-                      short_number(json_number(c, "smoothing_ms", 20)) + " ms"});
-    print_table(rows, std::vector<bool>(rows[0].size(), false));
-  }
+  print_layers(info, *effect);
+  print_controls(*effect);
   return kExitOk;
 }
 
