@@ -88,9 +88,8 @@ std::string shape_text(const std::vector<int>& s) {
 // Reads the effect description and the tensors it names into a Model.
 class Builder {
  public:
-  Builder(const unsigned char* data, uint64_t data_len, std::map<std::string, RawTensor>& raw,
-          std::string& error)
-      : data_(data), data_len_(data_len), raw_(raw), fail_{error} {}
+  Builder(const unsigned char* data, std::map<std::string, RawTensor>& raw, std::string& error)
+      : data_(data), raw_(raw), fail_{error} {}
 
   bool build(const Value& d, Model& m) {
     if (!d.IsObject()) return fail_("effect description: must be a JSON object");
@@ -118,7 +117,6 @@ class Builder {
 
  private:
   const unsigned char* data_;
-  uint64_t data_len_;
   std::map<std::string, RawTensor>& raw_;
   Fail fail_;
 
@@ -615,7 +613,7 @@ std::shared_ptr<const Model> load_model(const unsigned char* bytes, size_t len, 
   const rapidjson::Document& d = parsed.doc;
   auto m = std::make_shared<Model>();
   m->description = description;
-  Builder b(data, data_len, raw, error);
+  Builder b(data, raw, error);
   if (!b.build(d, *m)) return nullptr;
   return m;
 }
