@@ -14,6 +14,10 @@
 #include "cli.hpp"
 #include "cpu_variants.hpp"
 #include "test_signal.hpp"
+#include "text_out.hpp"
+
+#include <rapidjson/stringbuffer.h>
+#include <rapidjson/writer.h>
 
 namespace earshot {
 namespace cli {
@@ -47,21 +51,141 @@ double median(std::vector<double> v) {
   return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
 }
 
-std::string json_escape(const std::string& s) {
-  std::string o;
-  for (char c : s) {
-    if (c == '"' || c == '\\') {
-      o += '\\';
-      o += c;
-    } else if ((unsigned char)c < 0x20) {
-      char buf[8];
-      std::snprintf(buf, sizeof buf, "\\u%04x", c);
-      o += buf;
-    } else {
-      o += c;
-    }
+struct BenchOptions {
+  std::string path;
+  double seconds = 3.0;
+  int block = 512, rounds = 3;
+  std::vector<std::string> variants;  // --variant, else every variant this CPU runs
+  bool json = false;
+};
+
+BenchOptions parse_bench(const Args& a) {
+  if (a.positional.size() != 1)
+    throw UsageError(a.positional.empty() ? "missing the effect FILE"
+                                          : "expected one effect FILE, got " + std::to_string(a.positional.size()) +
+                                                " arguments");
+  BenchOptions o;
+  if (a.has("--seconds")) o.seconds = parse_number("--seconds", *a.last("--seconds"), 0.1, 600);
+  if (a.has("--block")) o.block = int(parse_integer("--block", *a.last("--block"), 1, EARSHOT_MAX_BLOCK));
+  if (a.has("--rounds")) o.rounds = int(parse_integer("--rounds", *a.last("--rounds"), 1, 100));
+  if (const std::string* v = a.last("--variant")) {
+    check_variant(*v);
+    o.variants.push_back(*v);
+  } else {
+    o.variants = supported_variants();
   }
+  o.path = a.positional[0];
+  o.json = a.has("--json");
   return o;
+}
+
+struct BenchRow {
+  std::string name;
+  double rtf, madds, peak, share;
+};
+
+struct BenchResult {
+  std::string title;
+  double model_rate = 0, audio_s = 0;
+  int64_t macs = 0;
+  std::vector<BenchRow> rows;
+};
+
+BenchResult measure(const BenchOptions& o, const std::vector<unsigned char>& bytes) {
+  BenchResult R;
+  {
+    Stream probe(bytes, 48000, o.variants[0], o.path);
+    R.model_rate = json_number(probe.info(), "model_rate", 48000);
+  }
+  std::vector<std::unique_ptr<Stream>> streams;
+  for (const std::string& v : o.variants) streams.emplace_back(new Stream(bytes, R.model_rate, v, o.path));
+  const rapidjson::Document info = streams[0]->info();
+  R.macs = int64_t(json_number(info, "macs_per_sample"));
+  R.title = json_string(info, "title");
+
+  const std::vector<float> x = test_signal(R.model_rate, o.seconds);
+  std::vector<float> y(x.size());
+  R.audio_s = double(x.size()) / R.model_rate;
+
+  // Warm-up: caches, page faults, CPU clock ramp.
+  for (auto& s : streams) {
+    s->process(x.data(), y.data(), std::min<size_t>(x.size(), size_t(R.model_rate / 10)), o.block);
+    earshot_reset(s->get());
+  }
+  measure_peak_madd_rate(o.variants[0], 0.1);
+
+  const size_t nv = o.variants.size();
+  std::vector<std::vector<double>> rtf(nv), peak(nv);
+  for (int r = 0; r < o.rounds; ++r) {
+    for (size_t i = 0; i < nv; ++i) {
+      earshot_reset(streams[i]->get());
+      const double t0 = thread_seconds();
+      streams[i]->process(x.data(), y.data(), x.size(), o.block);
+      const double dt = thread_seconds() - t0;
+      rtf[i].push_back(R.audio_s / std::max(dt, 1e-9));
+    }
+    for (size_t i = 0; i < nv; ++i) peak[i].push_back(measure_peak_madd_rate(o.variants[i], 0.25));
+  }
+  for (size_t i = 0; i < nv; ++i) {
+    BenchRow w{o.variants[i], median(rtf[i]), 0, median(peak[i]), 0};
+    w.madds = double(R.macs) * R.model_rate * w.rtf;
+    w.share = w.peak > 0 ? w.madds / w.peak : 0;
+    R.rows.push_back(w);
+  }
+  return R;
+}
+
+void print_json(const BenchOptions& o, const BenchResult& R) {
+  rapidjson::StringBuffer sb;
+  rapidjson::Writer<rapidjson::StringBuffer> w(sb);
+  w.StartObject();
+  w.Key("effect");
+  w.String(o.path);
+  w.Key("title");
+  w.String(R.title);
+  w.Key("model_rate");
+  w.Double(R.model_rate);
+  w.Key("macs_per_sample");
+  w.Int64(R.macs);
+  w.Key("block");
+  w.Int(o.block);
+  w.Key("seconds");
+  w.Double(R.audio_s);
+  w.Key("rounds");
+  w.Int(o.rounds);
+  w.Key("threads");
+  w.Int(1);
+  w.Key("variants");
+  w.StartArray();
+  for (const BenchRow& r : R.rows) {
+    w.StartObject();
+    w.Key("variant");
+    w.String(r.name);
+    w.Key("realtime");
+    w.Double(r.rtf);
+    w.Key("madds_per_second");
+    w.Double(r.madds);
+    w.Key("peak_madds_per_second");
+    w.Double(r.peak);
+    w.Key("share_of_peak");
+    w.Double(r.share);
+    w.EndObject();
+  }
+  w.EndArray();
+  w.EndObject();
+  std::printf("%s\n", sb.GetString());
+}
+
+void print_text(const BenchOptions& o, const BenchResult& R) {
+  // The title is the effect file's own text (docs/cli.md, "Untrusted text").
+  std::printf("%s (%s)\n", terminal_text(R.title).c_str(), terminal_text(o.path).c_str());
+  std::printf("model rate %.0f Hz, %s multiply-adds per sample, block %d, %.2f s of test signal,\n"
+              "one thread, median of %d interleaved round%s\n\n",
+              R.model_rate, format_count(R.macs).c_str(), o.block, R.audio_s, o.rounds, o.rounds == 1 ? "" : "s");
+  std::printf("%-9s %12s %14s %16s %8s\n", "variant", "real time", "Gmadd/s", "peak Gmadd/s", "share");
+  for (const BenchRow& w : R.rows)
+    std::printf("%-9s %11.1fx %14.3f %16.3f %7.1f%%\n", w.name.c_str(), w.rtf, w.madds / 1e9, w.peak / 1e9,
+                100 * w.share);
 }
 
 }  // namespace
@@ -78,90 +202,13 @@ int cmd_bench(const std::vector<std::string>& argv) {
     std::fputs(kHelp, stdout);
     return kExitOk;
   }
-  if (a.positional.size() != 1)
-    throw UsageError(a.positional.empty() ? "missing the effect FILE"
-                                          : "expected one effect FILE, got " + std::to_string(a.positional.size()) +
-                                                " arguments");
-  const double seconds = a.has("--seconds") ? parse_number("--seconds", *a.last("--seconds"), 0.1, 600) : 3.0;
-  const int block = a.has("--block") ? int(parse_integer("--block", *a.last("--block"), 1, EARSHOT_MAX_BLOCK)) : 512;
-  const int rounds = a.has("--rounds") ? int(parse_integer("--rounds", *a.last("--rounds"), 1, 100)) : 3;
-  std::vector<std::string> variants;
-  if (const std::string* v = a.last("--variant")) {
-    check_variant(*v);
-    variants.push_back(*v);
-  } else {
-    variants = supported_variants();
-  }
-  const std::string path = a.positional[0];
-  const std::vector<unsigned char> bytes = read_effect_file(path);
-
-  double model_rate;
-  {
-    Stream probe(bytes, 48000, variants[0], path);
-    model_rate = json_number(probe.info(), "model_rate", 48000);
-  }
-  std::vector<std::unique_ptr<Stream>> streams;
-  for (const std::string& v : variants) streams.emplace_back(new Stream(bytes, model_rate, v, path));
-  const rapidjson::Document info = streams[0]->info();
-  const int64_t macs = int64_t(json_number(info, "macs_per_sample"));
-  const std::string title = json_string(info, "title");
-
-  const std::vector<float> x = test_signal(model_rate, seconds);
-  std::vector<float> y(x.size());
-  const double audio_s = double(x.size()) / model_rate;
-
-  // Warm-up: caches, page faults, CPU clock ramp.
-  for (auto& s : streams) {
-    s->process(x.data(), y.data(), std::min<size_t>(x.size(), size_t(model_rate / 10)), block);
-    earshot_reset(s->get());
-  }
-  measure_peak_madd_rate(variants[0], 0.1);
-
-  std::vector<std::vector<double>> rtf(variants.size()), peak(variants.size());
-  for (int r = 0; r < rounds; ++r) {
-    for (size_t i = 0; i < variants.size(); ++i) {
-      earshot_reset(streams[i]->get());
-      const double t0 = thread_seconds();
-      streams[i]->process(x.data(), y.data(), x.size(), block);
-      const double dt = thread_seconds() - t0;
-      rtf[i].push_back(audio_s / std::max(dt, 1e-9));
-    }
-    for (size_t i = 0; i < variants.size(); ++i) peak[i].push_back(measure_peak_madd_rate(variants[i], 0.25));
-  }
-
-  struct Row {
-    std::string name;
-    double rtf, madds, peak, share;
-  };
-  std::vector<Row> rows;
-  for (size_t i = 0; i < variants.size(); ++i) {
-    Row w{variants[i], median(rtf[i]), 0, median(peak[i]), 0};
-    w.madds = double(macs) * model_rate * w.rtf;
-    w.share = w.peak > 0 ? w.madds / w.peak : 0;
-    rows.push_back(w);
-  }
-
-  if (a.has("--json")) {
-    std::printf("{\"effect\":\"%s\",\"title\":\"%s\",\"model_rate\":%.17g,\"macs_per_sample\":%lld,"
-                "\"block\":%d,\"seconds\":%.17g,\"rounds\":%d,\"threads\":1,\"variants\":[",
-                json_escape(path).c_str(), json_escape(title).c_str(), model_rate, (long long)macs, block, audio_s,
-                rounds);
-    for (size_t i = 0; i < rows.size(); ++i)
-      std::printf("%s{\"variant\":\"%s\",\"realtime\":%.6g,\"madds_per_second\":%.6g,"
-                  "\"peak_madds_per_second\":%.6g,\"share_of_peak\":%.6g}",
-                  i ? "," : "", rows[i].name.c_str(), rows[i].rtf, rows[i].madds, rows[i].peak, rows[i].share);
-    std::printf("]}\n");
-    return kExitOk;
-  }
-
-  std::printf("%s (%s)\n", title.c_str(), path.c_str());
-  std::printf("model rate %.0f Hz, %s multiply-adds per sample, block %d, %.2f s of test signal,\n"
-              "one thread, median of %d interleaved round%s\n\n",
-              model_rate, format_count(macs).c_str(), block, audio_s, rounds, rounds == 1 ? "" : "s");
-  std::printf("%-9s %12s %14s %16s %8s\n", "variant", "real time", "Gmadd/s", "peak Gmadd/s", "share");
-  for (const Row& w : rows)
-    std::printf("%-9s %11.1fx %14.3f %16.3f %7.1f%%\n", w.name.c_str(), w.rtf, w.madds / 1e9, w.peak / 1e9,
-                100 * w.share);
+  const BenchOptions o = parse_bench(a);
+  const std::vector<unsigned char> bytes = read_effect_file(o.path);
+  const BenchResult R = measure(o, bytes);
+  if (o.json)
+    print_json(o, R);
+  else
+    print_text(o, R);
   return kExitOk;
 }
 

@@ -243,7 +243,7 @@ def effect_with_text(tmp_path, title, unit, author):
     return out
 
 
-def test_info_and_verify_escape_the_effect_files_text(tmp_path):
+def test_info_verify_and_bench_escape_the_effect_files_text(tmp_path):
     fx = effect_with_text(tmp_path, "Clipper" + ESC_TITLE + "\u0085", "\x7f\x1b[2J", "\u009b31m" + "Eve")
     p = run("info", fx)
     assert p.returncode == 0, p.stderr
@@ -261,6 +261,13 @@ def test_info_and_verify_escape_the_effect_files_text(tmp_path):
     assert b"Clipper\\x1b]0;pwned\\x07 (" in p.stdout
     assert_terminal_clean(p.stdout)
     assert_terminal_clean(p.stderr)
+    p = run("bench", fx, "--seconds", "0.1", "--rounds", "1", "--variant", "scalar")
+    assert p.returncode == 0, p.stderr
+    assert b"Clipper\\x1b]0;pwned\\x07 (" in p.stdout
+    assert_terminal_clean(p.stdout)
+    p = run("bench", "--json", fx, "--seconds", "0.1", "--rounds", "1", "--variant", "scalar")
+    assert p.returncode == 0
+    assert json.loads(p.stdout)["title"] == "Clipper\x1b]0;pwned\x07"  # the core's title ends at the NUL
 
 
 def test_site_refusals_escape_the_configs_text(tmp_path):
