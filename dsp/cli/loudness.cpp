@@ -121,6 +121,128 @@ std::string status_message(const std::string& path, int st) {
 
 std::string lufs_text(double v) { return std::isinf(v) ? "-inf" : format_fixed(v, 2); }
 
+struct LoudnessOptions {
+  std::vector<double> weights;  // empty: the default layout
+  bool matching = false, json = false;
+  double target = 0;
+  std::string out_path;
+};
+
+LoudnessOptions parse_loudness(const Args& a) {
+  if (a.positional.empty()) throw UsageError("give at least one audio FILE");
+  LoudnessOptions o;
+  if (const std::string* w = a.last("--weights")) o.weights = parse_weights(*w);
+  o.matching = a.has("--match");
+  o.json = a.has("--json");
+  if (o.matching) {
+    o.target = parse_number("--match", *a.last("--match"), -70, 0);
+    if (a.positional.size() != 1) throw UsageError("--match takes exactly one FILE");
+    if (!a.has("--out")) throw UsageError("--match needs --out FILE");
+    o.out_path = *a.last("--out");
+    if (o.out_path == a.positional[0])
+      throw UsageError("--out '" + o.out_path + "' is the same file as FILE '" + a.positional[0] + "'; choose another");
+    refuse_same_file("--out", o.out_path, {{"FILE", a.positional[0]}});
+    check_overwrite(o.out_path, a.has("--force"));
+  } else if (a.has("--out")) {
+    throw UsageError("--out is only used with --match");
+  }
+  return o;
+}
+
+struct FileLoudness {
+  std::string path;
+  int channels = 0, rate = 0;
+  size_t frames = 0;
+  double seconds = 0, lkfs = 0, peak = 0;
+  double gain = 0, peak_after = 0;  // with --match
+};
+
+// Measures one file and, with --match, writes its matched copy to --out.
+FileLoudness measure_file(const std::string& path, const LoudnessOptions& o) {
+  Audio au = read_audio(path);
+  const std::vector<double>& weights = o.weights;
+  if (!weights.empty() && int(weights.size()) != au.channels)
+    throw UsageError("--weights gives " + std::to_string(weights.size()) + " weights but '" + path + "' has " +
+                     std::to_string(au.channels) + " channels");
+  if (weights.empty() && au.channels > 6)
+    throw UsageError("'" + path + "' has " + std::to_string(au.channels) +
+                     " channels, which have no default weights; give --weights");
+  const double* wp = weights.empty() ? nullptr : weights.data();
+  FileLoudness r;
+  r.path = path;
+  r.channels = au.channels;
+  r.rate = au.rate;
+  r.frames = au.frames;
+  const int st = earshot_loudness(au.samples.data(), au.frames, au.channels, double(au.rate), wp, &r.lkfs);
+  if (st != EARSHOT_OK) throw InputError(status_message(path, st));
+  r.seconds = double(au.frames) / double(au.rate);
+  r.peak = peak_dbfs(au.samples);
+  if (!o.matching) return r;
+  if (std::isinf(r.lkfs))
+    throw InputError("'" + path + "' is silent (no 400 ms block above -70 LUFS): there is no loudness to match");
+  const int ms =
+      earshot_loudness_match(au.samples.data(), au.frames, au.channels, double(au.rate), wp, o.target, &r.gain);
+  if (ms != EARSHOT_OK) throw InputError(status_message(path, ms));
+  r.peak_after = peak_dbfs(au.samples);
+  OutputFile out(o.out_path, "audio file");
+  write_float_wav(out, au, au.samples);
+  out.commit();
+  if (r.peak_after > 0)
+    std::fprintf(stderr,
+                 "earshot loudness: note: '%s' peaks at %+.2f dBFS after matching; the float WAV keeps the "
+                 "peaks, but playback at full scale will clip\n",
+                 o.out_path.c_str(), r.peak_after);
+  return r;
+}
+
+template <class W>
+void write_file_json(W& w, const FileLoudness& r, const LoudnessOptions& o) {
+  w.StartObject();
+  w.Key("file");
+  w.String(r.path);
+  w.Key("integrated_lufs");
+  if (std::isinf(r.lkfs))
+    w.Null();
+  else
+    w.Double(r.lkfs);
+  w.Key("channels");
+  w.Int(r.channels);
+  w.Key("sample_rate");
+  w.Int(r.rate);
+  w.Key("frames");
+  w.Uint64(r.frames);
+  w.Key("seconds");
+  w.Double(r.seconds);
+  w.Key("sample_peak_dbfs");
+  if (std::isinf(r.peak))
+    w.Null();
+  else
+    w.Double(r.peak);
+  if (o.matching) {
+    w.Key("matched");
+    w.StartObject();
+    w.Key("out");
+    w.String(o.out_path);
+    w.Key("target_lufs");
+    w.Double(o.target);
+    w.Key("gain_db");
+    w.Double(r.gain);
+    w.Key("sample_peak_dbfs");
+    w.Double(r.peak_after);
+    w.EndObject();
+  }
+  w.EndObject();
+}
+
+void print_file_text(const FileLoudness& r, const LoudnessOptions& o) {
+  std::printf("%8s LUFS  %s  (%d ch, %d Hz, %s s, sample peak %s dBFS)\n", lufs_text(r.lkfs).c_str(), r.path.c_str(),
+              r.channels, r.rate, format_fixed(r.seconds, 3).c_str(),
+              std::isinf(r.peak) ? "-inf" : format_fixed(r.peak, 2).c_str());
+  if (o.matching)
+    std::printf("%8s LUFS  %s  (gain %+.2f dB, sample peak %s dBFS)\n", lufs_text(o.target).c_str(),
+                o.out_path.c_str(), r.gain, format_fixed(r.peak_after, 2).c_str());
+}
+
 }  // namespace
 
 int cmd_loudness(const std::vector<std::string>& argv) {
@@ -134,112 +256,24 @@ int cmd_loudness(const std::vector<std::string>& argv) {
     std::fputs(kLoudnessHelp, stdout);
     return kExitOk;
   }
-  if (a.positional.empty()) throw UsageError("give at least one audio FILE");
-  std::vector<double> weights;
-  if (const std::string* w = a.last("--weights")) weights = parse_weights(*w);
-  const bool matching = a.has("--match");
-  double target = 0;
-  std::string out_path;
-  if (matching) {
-    target = parse_number("--match", *a.last("--match"), -70, 0);
-    if (a.positional.size() != 1) throw UsageError("--match takes exactly one FILE");
-    if (!a.has("--out")) throw UsageError("--match needs --out FILE");
-    out_path = *a.last("--out");
-    if (out_path == a.positional[0])
-      throw UsageError("--out '" + out_path + "' is the same file as FILE '" + a.positional[0] + "'; choose another");
-    refuse_same_file("--out", out_path, {{"FILE", a.positional[0]}});
-    check_overwrite(out_path, a.has("--force"));
-  } else if (a.has("--out")) {
-    throw UsageError("--out is only used with --match");
-  }
-
+  const LoudnessOptions o = parse_loudness(a);
   rapidjson::StringBuffer sb;
   rapidjson::PrettyWriter<rapidjson::StringBuffer> w(sb);
-  const bool json = a.has("--json");
   w.StartObject();
   w.Key("measurement");
   w.String("ITU-R BS.1770-4 integrated loudness");
   w.Key("files");
   w.StartArray();
   for (const std::string& path : a.positional) {
-    Audio au = read_audio(path);
-    if (!weights.empty() && int(weights.size()) != au.channels)
-      throw UsageError("--weights gives " + std::to_string(weights.size()) + " weights but '" + path + "' has " +
-                       std::to_string(au.channels) + " channels");
-    if (weights.empty() && au.channels > 6)
-      throw UsageError("'" + path + "' has " + std::to_string(au.channels) +
-                       " channels, which have no default weights; give --weights");
-    const double* wp = weights.empty() ? nullptr : weights.data();
-    double lkfs = 0;
-    const int st = earshot_loudness(au.samples.data(), au.frames, au.channels, double(au.rate), wp, &lkfs);
-    if (st != EARSHOT_OK) throw InputError(status_message(path, st));
-    const double seconds = double(au.frames) / double(au.rate);
-    const double peak = peak_dbfs(au.samples);
-    double gain = 0, peak_after = 0;
-    if (matching) {
-      if (std::isinf(lkfs))
-        throw InputError("'" + path + "' is silent (no 400 ms block above -70 LUFS): there is no loudness to match");
-      const int ms = earshot_loudness_match(au.samples.data(), au.frames, au.channels, double(au.rate), wp, target,
-                                            &gain);
-      if (ms != EARSHOT_OK) throw InputError(status_message(path, ms));
-      peak_after = peak_dbfs(au.samples);
-      OutputFile out(out_path, "audio file");
-      write_float_wav(out, au, au.samples);
-      out.commit();
-      if (peak_after > 0)
-        std::fprintf(stderr,
-                     "earshot loudness: note: '%s' peaks at %+.2f dBFS after matching; the float WAV keeps the "
-                     "peaks, but playback at full scale will clip\n",
-                     out_path.c_str(), peak_after);
-    }
-    if (json) {
-      w.StartObject();
-      w.Key("file");
-      w.String(path);
-      w.Key("integrated_lufs");
-      if (std::isinf(lkfs))
-        w.Null();
-      else
-        w.Double(lkfs);
-      w.Key("channels");
-      w.Int(au.channels);
-      w.Key("sample_rate");
-      w.Int(au.rate);
-      w.Key("frames");
-      w.Uint64(au.frames);
-      w.Key("seconds");
-      w.Double(seconds);
-      w.Key("sample_peak_dbfs");
-      if (std::isinf(peak))
-        w.Null();
-      else
-        w.Double(peak);
-      if (matching) {
-        w.Key("matched");
-        w.StartObject();
-        w.Key("out");
-        w.String(out_path);
-        w.Key("target_lufs");
-        w.Double(target);
-        w.Key("gain_db");
-        w.Double(gain);
-        w.Key("sample_peak_dbfs");
-        w.Double(peak_after);
-        w.EndObject();
-      }
-      w.EndObject();
-    } else {
-      std::printf("%8s LUFS  %s  (%d ch, %d Hz, %s s, sample peak %s dBFS)\n", lufs_text(lkfs).c_str(), path.c_str(),
-                  au.channels, au.rate, format_fixed(seconds, 3).c_str(),
-                  std::isinf(peak) ? "-inf" : format_fixed(peak, 2).c_str());
-      if (matching)
-        std::printf("%8s LUFS  %s  (gain %+.2f dB, sample peak %s dBFS)\n", lufs_text(target).c_str(),
-                    out_path.c_str(), gain, format_fixed(peak_after, 2).c_str());
-    }
+    const FileLoudness r = measure_file(path, o);
+    if (o.json)
+      write_file_json(w, r, o);
+    else
+      print_file_text(r, o);  // as each file is measured
   }
   w.EndArray();
   w.EndObject();
-  if (json) std::printf("%s\n", sb.GetString());
+  if (o.json) std::printf("%s\n", sb.GetString());
   return kExitOk;
 }
 
