@@ -639,18 +639,11 @@ std::string box_plot_svg(const std::string& title, const std::vector<Condition>&
   return o.str();
 }
 
-int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence) {
-  const std::vector<Condition>& conds = rs[0].conditions;
-  std::string ref_id, low_id, mid_id;
-  for (const Condition& c : conds) {
-    if (c.role == "reference") ref_id = c.id;
-    if (c.role == "anchor-low") low_id = c.id;
-    if (c.role == "anchor-mid") mid_id = c.id;
-  }
-  const bool screening = !a.has("--no-screening");
+// The post-screening report (ITU-R BS.1534-3); returns the assessors kept
+// (every one with --no-screening).
+std::vector<const Result*> screen_assessors(const std::vector<Result>& rs, const std::string& ref_id,
+                                            const std::string& mid_id, bool screening) {
   std::vector<const Result*> kept;
-  std::printf("MUSHRA test '%s': %zu results files\n\n", terminal_text(rs[0].test_id).c_str(), rs.size());
-  report_incomplete(rs);
   std::printf("post-screening (ITU-R BS.1534-3): hidden reference %s, mid anchor %s%s\n", quoted(ref_id).c_str(),
               mid_id.empty() ? "(none declared: that criterion is not applied)" : quoted(mid_id).c_str(),
               screening ? "" : "; --no-screening: every assessor is kept");
@@ -667,18 +660,22 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
   }
   if (n_excluded == 0) std::printf("  no assessor excluded\n");
   std::printf("  %zu of %zu assessors kept\n\n", kept.size(), rs.size());
+  return kept;
+}
 
-  // Items in the order of the first file's stimuli.
+struct MushraRow {
+  std::string scope;  // "all" or an item
+  std::vector<Summary> sums;
+  std::vector<size_t> missing;  // per condition: ratings kept incomplete assessors lack
+};
+
+// One row for all items, then one per item in the order of the first file's stimuli.
+std::vector<MushraRow> mushra_rows(const std::vector<Result>& rs, const std::vector<const Result*>& kept,
+                                   double confidence) {
+  const std::vector<Condition>& conds = rs[0].conditions;
   std::vector<std::string> items;
   for (const Stimulus& s : rs[0].stimuli)
     if (std::find(items.begin(), items.end(), s.item) == items.end()) items.push_back(s.item);
-
-  struct Row {
-    std::string scope;  // "all" or an item
-    std::vector<Summary> sums;
-    std::vector<size_t> missing;  // per condition: ratings kept incomplete assessors lack
-  };
-  std::vector<Row> rows;
   // Ratings kept assessors lack, by (item, condition); item "" is the total.
   // (Item ids are never empty: get_string refuses empty strings.)
   std::map<std::pair<std::string, std::string>, size_t> gaps;
@@ -688,8 +685,9 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
         ++gaps[{m.item, c}];
         ++gaps[{std::string(), c}];
       }
+  std::vector<MushraRow> rows;
   auto gather = [&](const std::string* item) {
-    Row row;
+    MushraRow row;
     row.scope = item ? *item : "all";
     for (const Condition& c : conds) {
       std::vector<double> v;
@@ -706,9 +704,12 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
   };
   gather(nullptr);
   for (const std::string& it : items) gather(&it);
+  return rows;
+}
 
+void print_mushra_rows(const std::vector<MushraRow>& rows, const std::vector<Condition>& conds, double confidence) {
   const std::string ci_head = format_fixed(100 * confidence, 0) + "% CI (t)";
-  for (const Row& row : rows) {
+  for (const MushraRow& row : rows) {
     std::printf("%s\n", row.scope == "all" ? "all items" : ("item " + terminal_text(row.scope)).c_str());
     std::printf("  %-16s %-10s %5s %7s %17s %6s %7s %16s %12s\n", "condition", "role", "n", "mean", ci_head.c_str(),
                 "sd", "median", "IQR (Q1 .. Q3)", "range");
@@ -728,42 +729,61 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
     if (!gaps.empty()) std::printf("  ratings missing (incomplete assessors kept): %s\n", gaps.c_str());
     std::printf("\n");
   }
-  if (kept.empty()) std::printf("no assessor is left after the post-screening: there are no statistics\n");
+}
 
-  if (const std::string* csv = a.last("--csv")) {
-    std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max,missing\n";
-    for (const Row& row : rows)
-      for (size_t i = 0; i < conds.size(); ++i) {
-        const Summary& s = row.sums[i];
-        if (s.n == 0 && row.missing[i] == 0) continue;
-        o += csv_cell(row.scope) + "," + csv_cell(conds[i].id) + "," + conds[i].role + "," + std::to_string(s.n) +
-             "," + csv_num(s.mean) + "," + csv_num(s.sd) + "," + csv_num(s.ci_lo) + "," + csv_num(s.ci_hi) + "," +
-             csv_num(confidence) + "," + csv_num(s.median) + "," + csv_num(s.q1) + "," + csv_num(s.q3) + "," +
-             csv_num(s.min) + "," + csv_num(s.max) + "," + std::to_string(row.missing[i]) + "\n";
-      }
-    write_file(*csv, o);
-  }
-  if (const std::string* dir = a.last("--svg")) {
-    std::set<std::string> names;
-    for (const Row& row : rows) {
-      std::string name = row.scope == "all" ? "all" : "item-" + safe_name(row.scope);
-      while (!names.insert(name).second) name += "_";
-      size_t gaps = 0, incomplete = 0;
-      for (size_t g : row.missing) gaps += g;
-      for (const Result* r : kept)
-        for (const Missing& m : r->missing)
-          if (row.scope == "all" || m.item == row.scope) {
-            ++incomplete;
-            break;
-          }
-      std::string title = "MUSHRA " + rs[0].test_id + ": " + (row.scope == "all" ? "all items" : "item " + row.scope) +
-                          " (" + std::to_string(kept.size()) + " assessors";
-      if (incomplete > 0)
-        title += ", " + std::to_string(incomplete) + " incomplete: " + std::to_string(gaps) +
-                 (gaps == 1 ? " rating" : " ratings") + " missing";
-      write_file(*dir + "/" + name + ".svg", box_plot_svg(title + ")", conds, row.sums, row.missing));
+std::string mushra_csv(const std::vector<MushraRow>& rows, const std::vector<Condition>& conds, double confidence) {
+  std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max,missing\n";
+  for (const MushraRow& row : rows)
+    for (size_t i = 0; i < conds.size(); ++i) {
+      const Summary& s = row.sums[i];
+      if (s.n == 0 && row.missing[i] == 0) continue;
+      o += csv_cell(row.scope) + "," + csv_cell(conds[i].id) + "," + conds[i].role + "," + std::to_string(s.n) +
+           "," + csv_num(s.mean) + "," + csv_num(s.sd) + "," + csv_num(s.ci_lo) + "," + csv_num(s.ci_hi) + "," +
+           csv_num(confidence) + "," + csv_num(s.median) + "," + csv_num(s.q1) + "," + csv_num(s.q3) + "," +
+           csv_num(s.min) + "," + csv_num(s.max) + "," + std::to_string(row.missing[i]) + "\n";
     }
+  return o;
+}
+
+// One box plot per row: DIR/all.svg and DIR/item-<id>.svg.
+void write_mushra_svgs(const std::string& dir, const std::vector<MushraRow>& rows, const std::vector<Result>& rs,
+                       const std::vector<const Result*>& kept) {
+  std::set<std::string> names;
+  for (const MushraRow& row : rows) {
+    std::string name = row.scope == "all" ? "all" : "item-" + safe_name(row.scope);
+    while (!names.insert(name).second) name += "_";
+    size_t gaps = 0, incomplete = 0;
+    for (size_t g : row.missing) gaps += g;
+    for (const Result* r : kept)
+      for (const Missing& m : r->missing)
+        if (row.scope == "all" || m.item == row.scope) {
+          ++incomplete;
+          break;
+        }
+    std::string title = "MUSHRA " + rs[0].test_id + ": " + (row.scope == "all" ? "all items" : "item " + row.scope) +
+                        " (" + std::to_string(kept.size()) + " assessors";
+    if (incomplete > 0)
+      title += ", " + std::to_string(incomplete) + " incomplete: " + std::to_string(gaps) +
+               (gaps == 1 ? " rating" : " ratings") + " missing";
+    write_file(dir + "/" + name + ".svg", box_plot_svg(title + ")", rs[0].conditions, row.sums, row.missing));
   }
+}
+
+int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence) {
+  const std::vector<Condition>& conds = rs[0].conditions;
+  std::string ref_id, mid_id;
+  for (const Condition& c : conds) {
+    if (c.role == "reference") ref_id = c.id;
+    if (c.role == "anchor-mid") mid_id = c.id;
+  }
+  std::printf("MUSHRA test '%s': %zu results files\n\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  report_incomplete(rs);
+  const std::vector<const Result*> kept = screen_assessors(rs, ref_id, mid_id, !a.has("--no-screening"));
+  const std::vector<MushraRow> rows = mushra_rows(rs, kept, confidence);
+  print_mushra_rows(rows, conds, confidence);
+  if (kept.empty()) std::printf("no assessor is left after the post-screening: there are no statistics\n");
+  if (const std::string* csv = a.last("--csv")) write_file(*csv, mushra_csv(rows, conds, confidence));
+  if (const std::string* dir = a.last("--svg")) write_mushra_svgs(*dir, rows, rs, kept);
   return kExitOk;
 }
 
