@@ -10,9 +10,6 @@
 #include <utility>
 #include <vector>
 
-#ifndef RAPIDJSON_HAS_STDSTRING
-#define RAPIDJSON_HAS_STDSTRING 1
-#endif
 #include <rapidjson/document.h>
 
 #include "earshot/earshot.h"

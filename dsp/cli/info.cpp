@@ -11,6 +11,8 @@
 #include "cli.hpp"
 #include "text_out.hpp"
 #include "cpu_variants.hpp"
+#include "model.hpp"
+#include "../layers/types.hpp"
 
 namespace earshot {
 namespace cli {
@@ -40,13 +42,6 @@ const rapidjson::Value* member(const rapidjson::Value& v, const char* key) {
   return it == v.MemberEnd() ? nullptr : &it->value;
 }
 
-// Six significant digits, trailing zeros dropped (printf %.6g): 0.01, 48000, 1e+06.
-std::string short_number(double v) {
-  char buf[64];
-  std::snprintf(buf, sizeof buf, "%.6g", v);
-  return buf;
-}
-
 // Columns padded to their widest cell, two spaces in from the margin; the last
 // column unpadded. `right`: which columns align right (numbers).
 void print_table(std::vector<std::vector<std::string>> rows, const std::vector<bool>& right) {
@@ -64,42 +59,6 @@ void print_table(std::vector<std::vector<std::string>> rows, const std::vector<b
     while (!line.empty() && line.back() == ' ') line.pop_back();
     std::printf("%s\n", line.c_str());
   }
-}
-
-// The structural fields of one layer beyond its channel counts.
-std::string layer_detail(const rapidjson::Value& L, const rapidjson::Value* desc) {
-  const std::string type = json_string(L, "type");
-  std::string d;
-  if (type == "lstm" || type == "gru") {
-    const int layers = int(json_number(L, "num_layers", 1));
-    d = "hidden " + short_number(json_number(L, "hidden")) + ", " + std::to_string(layers) + (layers == 1 ? " layer" : " layers");
-  } else if (type == "conv1d" || type == "tcn") {
-    d = "kernel " + short_number(json_number(L, "kernel")) + ", dilation " + short_number(json_number(L, "dilation", 1));
-    if (type == "tcn" && member(L, "film")) d += ", FiLM";
-  } else if (type == "wavenet") {
-    d = "channels " + short_number(json_number(L, "channels")) + ", kernel " + short_number(json_number(L, "kernel"));
-    if (desc) d += ", skip " + short_number(json_number(*desc, "skip"));
-    if (const rapidjson::Value* ds = member(L, "dilations"); ds && ds->IsArray()) {
-      d += ", dilations";
-      for (const auto& x : ds->GetArray()) d += " " + short_number(x.GetDouble());
-    }
-  } else if (type == "activation" && desc) {
-    const std::string fn = json_string(*desc, "fn");
-    d = fn;
-    if (fn == "leaky_relu") d += " (slope " + short_number(json_number(*desc, "slope", 0.01)) + ")";
-    if (fn == "hardtanh") d += " (" + short_number(json_number(*desc, "min", -1)) + " .. " + short_number(json_number(*desc, "max", 1)) + ")";
-  } else if (type == "film" && desc) {
-    d = "MLP of the controls";
-    if (const rapidjson::Value* h = member(*desc, "hidden"); h && h->IsArray() && h->Size() > 0) {
-      d += ", hidden";
-      for (const auto& x : h->GetArray()) d += " " + short_number(x.GetDouble());
-    }
-  }
-  if (desc && (type == "linear" || type == "conv1d" || type == "lstm" || type == "gru")) {
-    if (const rapidjson::Value* b = member(*desc, "bias"); b && b->IsBool() && !b->GetBool())
-      d += d.empty() ? "no bias" : ", no bias";
-  }
-  return d;
 }
 
 std::string file_size_text(const std::string& path) {
@@ -178,24 +137,19 @@ void print_summary(const rapidjson::Value& info, const rapidjson::Value& effect,
                         : "no");
 }
 
-void print_layers(const rapidjson::Value& info, const rapidjson::Value& effect) {
-  const rapidjson::Value* layers = member(info, "layers");
-  const rapidjson::Value* graph = member(effect, "graph");
-  const rapidjson::Value* dlayers = graph ? member(*graph, "layers") : nullptr;
-  const unsigned n_layers = layers && layers->IsArray() ? layers->Size() : 0;
-  std::printf("\nlayers (%u)\n", n_layers);
-  if (n_layers == 0) return;
+// The layer table, from the core's own description of the graph (model.hpp;
+// the detail column is each type's detail(), dsp/layers/<type>.hpp).
+void print_layers(const Model& m) {
+  std::printf("\nlayers (%zu)\n", m.layers.size());
+  if (m.layers.empty()) return;
   std::vector<std::vector<std::string>> rows;
   rows.push_back({"#", "name", "type", "in -> out", "parameters", "details"});
-  for (unsigned i = 0; i < n_layers; ++i) {
-    const rapidjson::Value& L = (*layers)[i];
-    const rapidjson::Value* d = nullptr;
-    if (dlayers && dlayers->IsArray())
-      for (const auto& x : dlayers->GetArray())
-        if (json_string(x, "name") == json_string(L, "name")) d = &x;
-    rows.push_back({std::to_string(i), json_string(L, "name"), json_string(L, "type"),
-                    short_number(json_number(L, "in")) + " -> " + short_number(json_number(L, "out")),
-                    format_count(int64_t(json_number(L, "parameters"))), layer_detail(L, d)});
+  for (size_t i = 0; i < m.layers.size(); ++i) {
+    const LayerSpec& L = m.layers[i];
+    int64_t params = 0;
+    for (const auto& kv : L.params) params += int64_t(kv.second.size());
+    rows.push_back({std::to_string(i), L.name, layer_type_name(L.type), std::to_string(L.in) + " -> " + std::to_string(L.out),
+                    format_count(params), layer_detail(L)});
   }
   print_table(rows, {true, false, false, false, true, false});
 }
@@ -267,7 +221,10 @@ int cmd_info(const std::vector<std::string>& argv) {
   std::string vars;
   for (const std::string& v : supported_variants()) vars += (vars.empty() ? "" : ", ") + v;
   row("variant", json_string(info, "variant") + " (this CPU runs " + vars + ")");
-  print_layers(info, *effect);
+  std::string load_error;
+  const std::shared_ptr<const Model> model = load_model(bytes.data(), bytes.size(), load_error);
+  if (!model) throw InputError(path + ": " + load_error);  // not reached: the stream above loaded it
+  print_layers(*model);
   print_controls(*effect);
   return kExitOk;
 }

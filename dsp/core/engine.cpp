@@ -22,10 +22,10 @@
 #include "detmath.hpp"
 #include "earshot/earshot.h"
 #include "model.hpp"
+#include "../layers/types.hpp"
 #include "resampler.hpp"
 #include "runner.hpp"
 
-#define RAPIDJSON_HAS_STDSTRING 1
 #include <rapidjson/stringbuffer.h>
 #include <rapidjson/writer.h>
 
@@ -243,59 +243,21 @@ namespace {
 // memory"), in bytes: an upper bound that tests/native/stream_memory_test.cpp
 // holds against the bytes actually allocated. The weights of the file are
 // counted too (a stream cannot run without them), once.
-constexpr double kF = sizeof(float);
-constexpr double kPtr = 8;  // a pointer's bytes, at most: one figure natively and in wasm32
+using stream_memory::kF;
 constexpr double kObjectSlack = 1024;  // per layer: objects, vector headers, allocator rounding
 
-double history_bytes(int channels, int kernel, int dilation) {
-  if (kernel <= 1) return 0;
-  const double h = double(kernel - 1) * dilation;
-  return kF * channels * (h + std::max(8.0 * kChunk, h));
-}
-
-double film_bytes(const MlpSpec& f, int C) {
-  int wmax = 0;
-  for (int w : f.widths) wmax = std::max(wmax, w);
-  const double nctl = f.widths.empty() ? 0 : f.widths.front();
-  return kF * (2 * nctl + 2.0 * wmax + 2.0 * C + 2.0 * C * kChunk);
-}
-
-double layer_params(const LayerSpec& L) {
-  double p = 0;
-  for (auto& kv : L.params) p += double(kv.second.size());
-  return p;
-}
-
 // Per-stream bytes of one layer (its state, histories, scratch and the copies
-// of its weights it makes, e.g. transposed recurrent matrices).
+// of its weights it makes, e.g. transposed recurrent matrices): its type's
+// figure (dsp/layers/<type>.hpp) and the slack every layer has.
 double layer_stream_bytes(const LayerSpec& L) {
-  double b = kObjectSlack;
-  switch (L.type) {
-    case LayerType::linear: b += kPtr * L.in; break;
-    case LayerType::conv1d: b += history_bytes(L.in, L.kernel, L.dilation) + kPtr * L.in; break;
-    case LayerType::lstm:
-      b += kF * (layer_params(L) + 4.0 * L.hidden * L.num_layers + 2.0 * L.hidden * L.num_layers + 4.0 * L.hidden +
-                 std::max(L.in, L.hidden));
-      break;
-    case LayerType::gru:
-      b += kF * (layer_params(L) + 6.0 * L.hidden * L.num_layers + L.hidden * double(L.num_layers) + 6.0 * L.hidden +
-                 std::max(L.in, L.hidden));
-      break;
-    case LayerType::activation:
-    case LayerType::gated: break;
-    case LayerType::film: b += film_bytes(L.film, L.in); break;
-    case LayerType::wavenet: {
-      const int C = L.channels;
-      b += kPtr * L.in + kF * (4.0 * C + std::max(C, L.skip)) * kChunk;
-      for (int d : L.dilations) b += history_bytes(C, L.kernel, d) + 3 * kPtr * C + 3 * 256.0;
-      break;
-    }
-    case LayerType::tcn:
-      b += history_bytes(L.in, L.kernel, L.dilation) + 2 * kPtr * L.in + kF * L.out * double(kChunk);
-      if (L.has_film) b += film_bytes(L.film, L.out);
-      break;
+  switch (L.type) {  // one case per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp)
+#define EARSHOT_X(type, Name) \
+  case LayerType::type:       \
+    return kObjectSlack + Name##Type::stream_bytes(L);
+    EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
   }
-  return b;
+  return kObjectSlack;
 }
 
 // Bytes one round trip keeps; `design` is raised to the largest filter-design
@@ -426,27 +388,13 @@ std::string make_info(const earshot_stream& s) {
     for (auto& kv : L.params) p += int64_t(kv.second.size());
     w.Key("parameters");
     w.Int64(p);
-    if (L.type == LayerType::lstm || L.type == LayerType::gru) {
-      w.Key("hidden");
-      w.Int(L.hidden);
-      w.Key("num_layers");
-      w.Int(L.num_layers);
-    }
-    if (L.type == LayerType::conv1d || L.type == LayerType::tcn || L.type == LayerType::wavenet) {
-      w.Key("kernel");
-      w.Int(L.kernel);
-    }
-    if (L.type == LayerType::conv1d || L.type == LayerType::tcn) {
-      w.Key("dilation");
-      w.Int(L.dilation);
-    }
-    if (L.type == LayerType::wavenet) {
-      w.Key("channels");
-      w.Int(L.channels);
-      w.Key("dilations");
-      w.StartArray();
-      for (int d : L.dilations) w.Int(d);
-      w.EndArray();
+    switch (L.type) {  // the type's own fields (dsp/layers/<type>.hpp)
+#define EARSHOT_X(type, Name)         \
+  case LayerType::type:               \
+    Name##Type::describe(L, w);       \
+    break;
+      EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
     }
     if (L.has_film) {
       w.Key("film");

@@ -3,14 +3,15 @@
 // and each rejection names the field or tensor at fault.
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 #include <cstring>
 #include <set>
 
 #include "earshot/earshot.h"
 #include "model.hpp"
 #include "json_reader.hpp"
+#include "../layers/types.hpp"
 
-#define RAPIDJSON_HAS_STDSTRING 1
 #include <rapidjson/document.h>
 #include <rapidjson/error/en.h>
 
@@ -26,6 +27,12 @@ struct Fail {
     return false;
   }
 };
+
+// The activation functions by their names in effect files.
+const std::pair<const char*, ActFn> kActivations[] = {
+    {"tanh", ActFn::tanh},       {"sigmoid", ActFn::sigmoid},       {"relu", ActFn::relu},
+    {"leaky_relu", ActFn::leaky_relu}, {"softsign", ActFn::softsign}, {"hardtanh", ActFn::hardtanh},
+    {"identity", ActFn::identity}};
 
 struct RawTensor {
   std::string dtype;
@@ -85,11 +92,236 @@ std::string shape_text(const std::vector<int>& s) {
   return t + "]";
 }
 
+}  // namespace
+
+// The file's tensors and the error sink, with the field checks every part of
+// the description uses (LayerFields forwards to these for the layer types).
+struct LayerFields::Source {
+  const unsigned char* data;
+  std::map<std::string, RawTensor>& raw;
+  Fail fail;
+
+  static const Value* member(const Value& o, const char* k) {
+    auto it = o.FindMember(k);
+    return it == o.MemberEnd() ? nullptr : &it->value;
+  }
+
+  bool number(const Value& o, const char* k, double& out, const std::string& where, bool required,
+              double def) {
+    const Value* v = member(o, k);
+    if (!v) {
+      if (required) return fail(where + ": field '" + k + "' is missing");
+      out = def;
+      return true;
+    }
+    if (!v->IsNumber() || !std::isfinite(v->GetDouble()))
+      return fail(where + ": field '" + k + "' must be a finite number");
+    out = v->GetDouble();
+    return true;
+  }
+
+  bool integer(const Value& o, const char* k, int& out, int lo, int hi, const std::string& where,
+               bool required = true, int def = 0) {
+    const Value* v = member(o, k);
+    if (!v) {
+      if (required) return fail(where + ": field '" + k + "' is missing");
+      out = def;
+      return true;
+    }
+    if (!v->IsInt() || v->GetInt() < lo || v->GetInt() > hi)
+      return fail(where + ": field '" + k + "' must be an integer from " + std::to_string(lo) + " to " +
+                   std::to_string(hi));
+    out = v->GetInt();
+    return true;
+  }
+
+  bool boolean(const Value& o, const char* k, bool& out, bool def, const std::string& where) {
+    const Value* v = member(o, k);
+    if (!v) {
+      out = def;
+      return true;
+    }
+    if (!v->IsBool()) return fail(where + ": field '" + k + "' must be true or false");
+    out = v->GetBool();
+    return true;
+  }
+
+  bool activation(const Value& o, ActSpec& a, const std::string& where, const char* fn_key) {
+    const Value* v = member(o, fn_key);
+    if (!v || !v->IsString()) return fail(where + ": field '" + fn_key + "' must name an activation");
+    const std::string fn = v->GetString();
+    bool found = false;
+    for (auto& e : kActivations)
+      if (fn == e.first) {
+        a.fn = e.second;
+        found = true;
+      }
+    if (!found)
+      return fail(where + ": unknown activation '" + fn +
+                   "' (tanh, sigmoid, relu, leaky_relu, softsign, hardtanh, identity)");
+    double x;
+    if (!number(o, "slope", x, where, false, 0.01)) return false;
+    a.slope = float(x);
+    double lo, hi;
+    if (!number(o, "min", lo, where, false, -1) || !number(o, "max", hi, where, false, 1)) return false;
+    if (a.fn == ActFn::hardtanh && !(lo < hi)) return fail(where + ": hardtanh needs min < max");
+    a.lo = float(lo);
+    a.hi = float(hi);
+    return true;
+  }
+
+  // Claims tensor `<layer>.<param>` with the expected shape into L.params.
+  bool take(LayerSpec& L, const std::string& param, std::vector<int> shape) {
+    const std::string key = L.name + "." + param;
+    auto it = raw.find(key);
+    if (it == raw.end()) return fail("tensor '" + key + "' is missing (layer '" + L.name + "' needs it)");
+    RawTensor& r = it->second;
+    if (r.shape != shape)
+      return fail("tensor '" + key + "': shape " + shape_text(r.shape) + " does not match the graph, expected " +
+                   shape_text(shape));
+    r.used = true;
+    Tensor t;
+    t.shape = shape;
+    size_t n = 1;
+    for (int s : shape) n *= size_t(s);
+    t.data.resize(n);
+    const unsigned char* p = data + r.begin;
+    for (size_t i = 0; i < n; ++i) {
+      float f;
+      if (r.dtype == "F32") {
+        uint32_t b = uint32_t(p[4 * i]) | uint32_t(p[4 * i + 1]) << 8 | uint32_t(p[4 * i + 2]) << 16 |
+                     uint32_t(p[4 * i + 3]) << 24;
+        std::memcpy(&f, &b, 4);
+      } else {
+        f = half_to_float(uint16_t(p[2 * i] | p[2 * i + 1] << 8));
+      }
+      if (!std::isfinite(f))
+        return fail("tensor '" + key + "': value " + std::to_string(i) + " is not finite");
+      t.data[i] = f;
+    }
+    L.params[param] = std::move(t);
+    return true;
+  }
+
+  bool mlp(LayerSpec& L, const Value* film_obj, int n_controls, int channels, const std::string& prefix,
+           const std::string& where) {
+    if (n_controls == 0) return fail(where + ": FiLM needs at least one control");
+    MlpSpec& f = L.film;
+    f.widths = {n_controls};
+    f.act.fn = ActFn::relu;
+    if (film_obj) {
+      if (const Value* h = member(*film_obj, "hidden")) {
+        if (!h->IsArray() || h->Size() > unsigned(kMaxFilmHidden))
+          return fail(where + ": FiLM 'hidden' must be an array of at most " + std::to_string(kMaxFilmHidden) +
+                       " widths");
+        for (auto& w : h->GetArray()) {
+          if (!w.IsInt() || w.GetInt() < 1 || w.GetInt() > kMaxChannels)
+            return fail(where + ": FiLM hidden widths must be integers from 1 to " + std::to_string(kMaxChannels));
+          f.widths.push_back(w.GetInt());
+        }
+      }
+      if (member(*film_obj, "activation")) {
+        if (!member(*film_obj, "activation")->IsString())
+          return fail(where + ": FiLM 'activation' must be a string");
+        if (!activation(*film_obj, f.act, where + " FiLM", "activation")) return false;
+      }
+    }
+    f.widths.push_back(2 * channels);
+    for (size_t j = 0; j + 1 < f.widths.size(); ++j) {
+      const std::string p = prefix + "mlp." + std::to_string(j);
+      if (!take(L, p + ".weight", {f.widths[j + 1], f.widths[j]}) || !take(L, p + ".bias", {f.widths[j + 1]}))
+        return false;
+    }
+    for (size_t j = 0; j + 1 < f.widths.size(); ++j) {
+      const std::string p = prefix + "mlp." + std::to_string(j);
+      f.weight.push_back(L.param(p + ".weight"));
+      f.bias.push_back(L.param(p + ".bias"));
+    }
+    return true;
+  }
+
+  bool conv_params(LayerSpec& L, const std::string& p, int out, int in, int k, bool bias) {
+    const std::string pre = p.empty() ? "" : p + ".";
+    if (!take(L, pre + "weight", {out, in, k})) return false;
+    return !bias || take(L, pre + "bias", {out});
+  }
+
+};
+
+const rapidjson::Value* LayerFields::member(const char* key) const { return Source::member(o_, key); }
+bool LayerFields::fail(const std::string& msg) { return src_.fail(msg); }
+bool LayerFields::in(const char* key, LayerSpec& L) {
+  if (!src_.integer(o_, key, L.in, 1, kMaxChannels, where)) return false;
+  if (L.in != width)
+    return fail(where + ": field '" + key + "' is " + std::to_string(L.in) + " but the previous stage gives " +
+                std::to_string(width) + " channels");
+  return true;
+}
+bool LayerFields::integer(const char* key, int& out, int lo, int hi, bool required, int def) {
+  return src_.integer(o_, key, out, lo, hi, where, required, def);
+}
+bool LayerFields::boolean(const char* key, bool& out, bool def) { return src_.boolean(o_, key, out, def, where); }
+bool LayerFields::activation(const Value& o, ActSpec& a, const std::string& at, const char* fn_key) {
+  return src_.activation(o, a, at, fn_key);
+}
+bool LayerFields::take(LayerSpec& L, const std::string& param, std::vector<int> shape) {
+  return src_.take(L, param, std::move(shape));
+}
+bool LayerFields::conv_params(LayerSpec& L, const std::string& prefix, int out, int in, int k, bool bias) {
+  return src_.conv_params(L, prefix, out, in, k, bias);
+}
+bool LayerFields::mlp(LayerSpec& L, const Value* film_obj, int channels, const std::string& prefix) {
+  return src_.mlp(L, film_obj, n_controls, channels, prefix, where);
+}
+
+// ---- display helpers of the layer types (types.hpp) ----
+
+std::string short_number(double v) {
+  char buf[64];
+  std::snprintf(buf, sizeof buf, "%.6g", v);
+  return buf;
+}
+
+const char* activation_name(ActFn fn) {
+  for (auto& e : kActivations)
+    if (e.second == fn) return e.first;
+  return "?";
+}
+
+std::string activation_text(const ActSpec& a) {
+  std::string d = activation_name(a.fn);
+  if (a.fn == ActFn::leaky_relu) d += " (slope " + short_number(a.slope) + ")";
+  if (a.fn == ActFn::hardtanh) d += " (" + short_number(a.lo) + " .. " + short_number(a.hi) + ")";
+  return d;
+}
+
+std::string recurrent_detail(const LayerSpec& L) {
+  return "hidden " + short_number(L.hidden) + ", " + std::to_string(L.num_layers) +
+         (L.num_layers == 1 ? " layer" : " layers") + (L.bias ? "" : ", no bias");
+}
+
+std::string conv_detail(const LayerSpec& L) {
+  return "kernel " + short_number(L.kernel) + ", dilation " + short_number(L.dilation);
+}
+
+std::string layer_detail(const LayerSpec& L) {
+  switch (L.type) {  // one case per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp)
+#define EARSHOT_X(type, Name) \
+  case LayerType::type:       \
+    return Name##Type::detail(L);
+    EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
+  }
+  return "";
+}
+
+namespace {
+
 // Reads the effect description and the tensors it names into a Model.
 class Builder {
  public:
   Builder(const unsigned char* data, std::map<std::string, RawTensor>& raw, std::string& error)
-      : data_(data), raw_(raw), fail_{error} {}
+      : src_{data, raw, Fail{error}} {}
 
   bool build(const Value& d, Model& m) {
     if (!d.IsObject()) return fail_("effect description: must be a JSON object");
@@ -116,53 +348,19 @@ class Builder {
   }
 
  private:
-  const unsigned char* data_;
-  std::map<std::string, RawTensor>& raw_;
-  Fail fail_;
+  LayerFields::Source src_;
 
-  static const Value* member(const Value& o, const char* k) {
-    auto it = o.FindMember(k);
-    return it == o.MemberEnd() ? nullptr : &it->value;
+  bool fail_(const std::string& msg) { return src_.fail(msg); }
+  static const Value* member(const Value& o, const char* k) { return LayerFields::Source::member(o, k); }
+  bool number(const Value& o, const char* k, double& out, const std::string& where, bool required, double def) {
+    return src_.number(o, k, out, where, required, def);
   }
-
-  bool number(const Value& o, const char* k, double& out, const std::string& where, bool required,
-              double def) {
-    const Value* v = member(o, k);
-    if (!v) {
-      if (required) return fail_(where + ": field '" + k + "' is missing");
-      out = def;
-      return true;
-    }
-    if (!v->IsNumber() || !std::isfinite(v->GetDouble()))
-      return fail_(where + ": field '" + k + "' must be a finite number");
-    out = v->GetDouble();
-    return true;
-  }
-
   bool integer(const Value& o, const char* k, int& out, int lo, int hi, const std::string& where,
                bool required = true, int def = 0) {
-    const Value* v = member(o, k);
-    if (!v) {
-      if (required) return fail_(where + ": field '" + k + "' is missing");
-      out = def;
-      return true;
-    }
-    if (!v->IsInt() || v->GetInt() < lo || v->GetInt() > hi)
-      return fail_(where + ": field '" + k + "' must be an integer from " + std::to_string(lo) + " to " +
-                   std::to_string(hi));
-    out = v->GetInt();
-    return true;
+    return src_.integer(o, k, out, lo, hi, where, required, def);
   }
-
   bool boolean(const Value& o, const char* k, bool& out, bool def, const std::string& where) {
-    const Value* v = member(o, k);
-    if (!v) {
-      out = def;
-      return true;
-    }
-    if (!v->IsBool()) return fail_(where + ": field '" + k + "' must be true or false");
-    out = v->GetBool();
-    return true;
+    return src_.boolean(o, k, out, def, where);
   }
 
   bool controls(const Value& d, Model& m) {
@@ -228,110 +426,6 @@ class Builder {
     return true;
   }
 
-  bool activation(const Value& o, ActSpec& a, const std::string& where, const char* fn_key) {
-    const Value* v = member(o, fn_key);
-    if (!v || !v->IsString()) return fail_(where + ": field '" + fn_key + "' must name an activation");
-    const std::string fn = v->GetString();
-    static const std::pair<const char*, ActFn> table[] = {
-        {"tanh", ActFn::tanh},       {"sigmoid", ActFn::sigmoid},       {"relu", ActFn::relu},
-        {"leaky_relu", ActFn::leaky_relu}, {"softsign", ActFn::softsign}, {"hardtanh", ActFn::hardtanh},
-        {"identity", ActFn::identity}};
-    bool found = false;
-    for (auto& e : table)
-      if (fn == e.first) {
-        a.fn = e.second;
-        found = true;
-      }
-    if (!found)
-      return fail_(where + ": unknown activation '" + fn +
-                   "' (tanh, sigmoid, relu, leaky_relu, softsign, hardtanh, identity)");
-    double x;
-    if (!number(o, "slope", x, where, false, 0.01)) return false;
-    a.slope = float(x);
-    double lo, hi;
-    if (!number(o, "min", lo, where, false, -1) || !number(o, "max", hi, where, false, 1)) return false;
-    if (a.fn == ActFn::hardtanh && !(lo < hi)) return fail_(where + ": hardtanh needs min < max");
-    a.lo = float(lo);
-    a.hi = float(hi);
-    return true;
-  }
-
-  // Claims tensor `<layer>.<param>` with the expected shape into L.params.
-  bool take(LayerSpec& L, const std::string& param, std::vector<int> shape) {
-    const std::string key = L.name + "." + param;
-    auto it = raw_.find(key);
-    if (it == raw_.end()) return fail_("tensor '" + key + "' is missing (layer '" + L.name + "' needs it)");
-    RawTensor& r = it->second;
-    if (r.shape != shape)
-      return fail_("tensor '" + key + "': shape " + shape_text(r.shape) + " does not match the graph, expected " +
-                   shape_text(shape));
-    r.used = true;
-    Tensor t;
-    t.shape = shape;
-    size_t n = 1;
-    for (int s : shape) n *= size_t(s);
-    t.data.resize(n);
-    const unsigned char* p = data_ + r.begin;
-    for (size_t i = 0; i < n; ++i) {
-      float f;
-      if (r.dtype == "F32") {
-        uint32_t b = uint32_t(p[4 * i]) | uint32_t(p[4 * i + 1]) << 8 | uint32_t(p[4 * i + 2]) << 16 |
-                     uint32_t(p[4 * i + 3]) << 24;
-        std::memcpy(&f, &b, 4);
-      } else {
-        f = half_to_float(uint16_t(p[2 * i] | p[2 * i + 1] << 8));
-      }
-      if (!std::isfinite(f))
-        return fail_("tensor '" + key + "': value " + std::to_string(i) + " is not finite");
-      t.data[i] = f;
-    }
-    L.params[param] = std::move(t);
-    return true;
-  }
-
-  bool mlp(LayerSpec& L, const Value* film_obj, int n_controls, int channels, const std::string& prefix,
-           const std::string& where) {
-    if (n_controls == 0) return fail_(where + ": FiLM needs at least one control");
-    MlpSpec& f = L.film;
-    f.widths = {n_controls};
-    f.act.fn = ActFn::relu;
-    if (film_obj) {
-      if (const Value* h = member(*film_obj, "hidden")) {
-        if (!h->IsArray() || h->Size() > unsigned(kMaxFilmHidden))
-          return fail_(where + ": FiLM 'hidden' must be an array of at most " + std::to_string(kMaxFilmHidden) +
-                       " widths");
-        for (auto& w : h->GetArray()) {
-          if (!w.IsInt() || w.GetInt() < 1 || w.GetInt() > kMaxChannels)
-            return fail_(where + ": FiLM hidden widths must be integers from 1 to " + std::to_string(kMaxChannels));
-          f.widths.push_back(w.GetInt());
-        }
-      }
-      if (member(*film_obj, "activation")) {
-        if (!member(*film_obj, "activation")->IsString())
-          return fail_(where + ": FiLM 'activation' must be a string");
-        if (!activation(*film_obj, f.act, where + " FiLM", "activation")) return false;
-      }
-    }
-    f.widths.push_back(2 * channels);
-    for (size_t j = 0; j + 1 < f.widths.size(); ++j) {
-      const std::string p = prefix + "mlp." + std::to_string(j);
-      if (!take(L, p + ".weight", {f.widths[j + 1], f.widths[j]}) || !take(L, p + ".bias", {f.widths[j + 1]}))
-        return false;
-    }
-    for (size_t j = 0; j + 1 < f.widths.size(); ++j) {
-      const std::string p = prefix + "mlp." + std::to_string(j);
-      f.weight.push_back(L.param(p + ".weight"));
-      f.bias.push_back(L.param(p + ".bias"));
-    }
-    return true;
-  }
-
-  bool conv_params(LayerSpec& L, const std::string& p, int out, int in, int k, bool bias) {
-    const std::string pre = p.empty() ? "" : p + ".";
-    if (!take(L, pre + "weight", {out, in, k})) return false;
-    return !bias || take(L, pre + "bias", {out});
-  }
-
   bool layer(const Value& o, int width, int n_controls, Model& m, std::set<std::string>& names, int index) {
     std::string where = "layer " + std::to_string(index);
     if (!o.IsObject()) return fail_(where + ": must be an object");
@@ -346,130 +440,25 @@ class Builder {
     if (!v || !v->IsString()) return fail_(where + ": field 'type' must be a string");
     const std::string type = v->GetString();
     if (!boolean(o, "bias", L.bias, true, where)) return false;
-    auto check_in = [&](const char* key) {
-      if (!integer(o, key, L.in, 1, kMaxChannels, where)) return false;
-      if (L.in != width)
-        return fail_(where + ": field '" + key + "' is " + std::to_string(L.in) + " but the previous stage gives " +
-                     std::to_string(width) + " channels");
-      return true;
-    };
-    int64_t macs = 0;
     if (!layer_type_from_name(type, L.type))
       return fail_(where + ": unknown layer type '" + type + "' (" + layer_type_list() + ")");
+    LayerFields f(src_, o, where, width, n_controls);
+    LayerCost cost;
     switch (L.type) {  // one case per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp)
-    case LayerType::linear: {
-      if (!check_in("in") || !integer(o, "out", L.out, 1, kMaxChannels, where)) return false;
-      if (!take(L, "weight", {L.out, L.in}) || (L.bias && !take(L, "bias", {L.out}))) return false;
-      macs = int64_t(L.out) * L.in;
-      break;
+#define EARSHOT_X(type, Name)                 \
+  case LayerType::type:                       \
+    if (!Name##Type::parse(f, L)) return false; \
+    cost = Name##Type::cost(L);               \
+    break;
+      EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
     }
-    case LayerType::conv1d: {
-      if (!check_in("in") || !integer(o, "out", L.out, 1, kMaxChannels, where) ||
-          !integer(o, "kernel", L.kernel, 1, kMaxKernel, where) ||
-          !integer(o, "dilation", L.dilation, 1, kMaxDilation, where, false, 1))
-        return false;
-      if (!conv_params(L, "", L.out, L.in, L.kernel, L.bias)) return false;
-      macs = int64_t(L.out) * L.in * L.kernel;
-      m.receptive_field += int64_t(L.kernel - 1) * L.dilation;
-      break;
-    }
-    case LayerType::lstm:
-    case LayerType::gru: {
-      const int gates = type == "lstm" ? 4 : 3;
-      if (!check_in("in") || !integer(o, "hidden", L.hidden, 1, kMaxChannels, where) ||
-          !integer(o, "num_layers", L.num_layers, 1, kMaxRecurrentLayers, where, false, 1))
-        return false;
-      for (int l = 0; l < L.num_layers; ++l) {
-        const int in = l == 0 ? L.in : L.hidden;
-        const std::string s = std::to_string(l);
-        if (!take(L, "weight_ih_l" + s, {gates * L.hidden, in}) || !take(L, "weight_hh_l" + s, {gates * L.hidden, L.hidden}))
-          return false;
-        if (L.bias && (!take(L, "bias_ih_l" + s, {gates * L.hidden}) || !take(L, "bias_hh_l" + s, {gates * L.hidden})))
-          return false;
-        macs += int64_t(gates) * L.hidden * (in + L.hidden);
-      }
-      L.out = L.hidden;
-      m.recurrent = true;
-      break;
-    }
-    case LayerType::activation: {
-      if (!check_in("channels") || !activation(o, L.act, where, "fn")) return false;
-      L.out = L.in;
-      break;
-    }
-    case LayerType::gated: {
-      if (!check_in("channels")) return false;
-      if (L.in % 2) return fail_(where + ": 'channels' must be even (tanh half and sigmoid half)");
-      L.out = L.in / 2;
-      break;
-    }
-    case LayerType::film: {
-      if (!check_in("channels")) return false;
-      L.out = L.in;
-      L.has_film = true;
-      if (!mlp(L, &o, n_controls, L.in, "", where)) return false;
-      break;
-    }
-    case LayerType::wavenet: {
-      if (!check_in("in") || !integer(o, "channels", L.channels, 1, kMaxChannels, where) ||
-          !integer(o, "skip", L.skip, 1, kMaxChannels, where) || !integer(o, "kernel", L.kernel, 1, kMaxKernel, where))
-        return false;
-      const Value* d = member(o, "dilations");
-      if (!d || !d->IsArray() || d->Size() < 1 || d->Size() > unsigned(kMaxWavenetLayers))
-        return fail_(where + ": field 'dilations' must be an array of 1 to " + std::to_string(kMaxWavenetLayers) +
-                     " integers");
-      for (auto& e : d->GetArray()) {
-        if (!e.IsInt() || e.GetInt() < 1 || e.GetInt() > kMaxDilation)
-          return fail_(where + ": each dilation must be an integer from 1 to " + std::to_string(kMaxDilation));
-        L.dilations.push_back(e.GetInt());
-      }
-      const int C = L.channels;
-      if (!conv_params(L, "input", C, L.in, 1, L.bias)) return false;
-      macs += int64_t(C) * L.in;
-      for (size_t l = 0; l < L.dilations.size(); ++l) {
-        const std::string p = "layers." + std::to_string(l);
-        if (!conv_params(L, p + ".conv", 2 * C, C, L.kernel, L.bias) || !conv_params(L, p + ".res", C, C, 1, L.bias) ||
-            !conv_params(L, p + ".skip", L.skip, C, 1, L.bias))
-          return false;
-        macs += int64_t(2 * C) * C * L.kernel + int64_t(C) * C + int64_t(L.skip) * C;
-        m.receptive_field += int64_t(L.kernel - 1) * L.dilations[l];
-      }
-      L.out = L.skip;
-      m.max_channels = std::max(m.max_channels, 2 * C);
-      break;
-    }
-    case LayerType::tcn: {
-      if (!check_in("in") || !integer(o, "out", L.out, 1, kMaxChannels, where) ||
-          !integer(o, "kernel", L.kernel, 1, kMaxKernel, where) ||
-          !integer(o, "dilation", L.dilation, 1, kMaxDilation, where, false, 1) ||
-          !boolean(o, "residual", L.residual, true, where))
-        return false;
-      L.act.fn = ActFn::leaky_relu;
-      L.act.slope = 0.2f;
-      if (const Value* a = member(o, "activation")) {
-        if (!a->IsObject()) return fail_(where + ": field 'activation' must be an object {\"fn\": ...}");
-        if (!activation(*a, L.act, where + " activation", "fn")) return false;
-        if (!member(*a, "slope")) L.act.slope = L.act.fn == ActFn::leaky_relu ? 0.2f : 0.01f;
-      }
-      if (!conv_params(L, "conv", L.out, L.in, L.kernel, L.bias)) return false;
-      macs += int64_t(L.out) * L.in * L.kernel;
-      if (const Value* f = member(o, "film")) {
-        if (!f->IsObject()) return fail_(where + ": field 'film' must be an object");
-        L.has_film = true;
-        if (!mlp(L, f, n_controls, L.out, "film.", where)) return false;
-      }
-      if (L.residual && L.in != L.out) {
-        if (!take(L, "res.weight", {L.out, L.in, 1})) return false;
-        macs += int64_t(L.out) * L.in;
-      }
-      m.receptive_field += int64_t(L.kernel - 1) * L.dilation;
-      break;
-    }
-    }
+    m.receptive_field += cost.receptive_field;
     if (m.receptive_field > kMaxReceptiveField)
       return fail_(where + ": receptive field exceeds " + std::to_string(kMaxReceptiveField) + " samples");
-    m.macs_per_sample += macs;
-    m.max_channels = std::max({m.max_channels, L.in, L.out});
+    m.macs_per_sample += cost.macs;
+    m.recurrent = m.recurrent || cost.recurrent;
+    m.max_channels = std::max({m.max_channels, cost.widest, L.in, L.out});
     m.layers.push_back(std::move(L));
     return true;
   }
@@ -506,7 +495,7 @@ class Builder {
     }
     if (width != 1)
       return fail_("graph: the last layer gives " + std::to_string(width) + " channels; an effect must end in 1");
-    for (auto& kv : raw_)
+    for (auto& kv : src_.raw)
       if (!kv.second.used) return fail_("tensor '" + kv.first + "' is not used by any layer of the graph");
     for (auto& L : m.layers)
       for (auto& p : L.params) m.parameters += int64_t(p.second.size());

@@ -32,7 +32,7 @@ struct Tensor {
 
 // One value per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp).
 enum class LayerType {
-#define EARSHOT_X(type, Kernel) type,
+#define EARSHOT_X(type, Name) type,
   EARSHOT_LAYER_TYPES(EARSHOT_X)
 #undef EARSHOT_X
 };
@@ -40,7 +40,7 @@ enum class LayerType {
 // The type's name in effect files, e.g. "gru".
 inline const char* layer_type_name(LayerType t) {
   static const char* const kNames[] = {
-#define EARSHOT_X(type, Kernel) #type,
+#define EARSHOT_X(type, Name) #type,
       EARSHOT_LAYER_TYPES(EARSHOT_X)
 #undef EARSHOT_X
   };
@@ -49,7 +49,7 @@ inline const char* layer_type_name(LayerType t) {
 
 // The type named `name`; false when no row of the table has that name.
 inline bool layer_type_from_name(const std::string& name, LayerType& t) {
-#define EARSHOT_X(type, Kernel)  \
+#define EARSHOT_X(type, Name)  \
   if (name == #type) {           \
     t = LayerType::type;         \
     return true;                 \
@@ -62,7 +62,7 @@ inline bool layer_type_from_name(const std::string& name, LayerType& t) {
 // "linear, conv1d, ..." in table order.
 inline std::string layer_type_list() {
   std::string s;
-#define EARSHOT_X(type, Kernel) s += std::string(s.empty() ? "" : ", ") + #type;
+#define EARSHOT_X(type, Name) s += std::string(s.empty() ? "" : ", ") + #type;
   EARSHOT_LAYER_TYPES(EARSHOT_X)
 #undef EARSHOT_X
   return s;

@@ -38,15 +38,10 @@ inline std::vector<float> transpose(const Tensor& t) {
 
 #include "kernels.hpp"
 #include "../layers/layer.hpp"
-#include "../layers/linear.hpp"
-#include "../layers/conv1d.hpp"
-#include "../layers/activation.hpp"
-#include "../layers/gated.hpp"
-#include "../layers/film.hpp"
-#include "../layers/lstm.hpp"
-#include "../layers/gru.hpp"
-#include "../layers/wavenet.hpp"
-#include "../layers/tcn.hpp"
+// Every layer type's kernel part, in table order (dsp/layers/registry.hpp).
+#define EARSHOT_LAYER_KERNELS
+#include "../layers/registry.hpp"
+#undef EARSHOT_LAYER_KERNELS
 
 using Arch = EARSHOT_ARCH;
 
@@ -56,9 +51,9 @@ class GraphRunner final : public Runner {
     const Model& M = *model_;
     for (const LayerSpec& s : M.layers) {
       switch (s.type) {  // one case per row of EARSHOT_LAYER_TYPES (dsp/layers/registry.hpp)
-#define EARSHOT_X(type, Kernel)                         \
+#define EARSHOT_X(type, Name)                           \
   case LayerType::type:                                 \
-    layers_.emplace_back(new Kernel<Arch>(s));          \
+    layers_.emplace_back(new Name##Layer<Arch>(s));     \
     break;
         EARSHOT_LAYER_TYPES(EARSHOT_X)
 #undef EARSHOT_X

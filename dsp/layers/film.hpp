@@ -5,7 +5,35 @@
 // with the MLP's activation between its layers, none after the last. FilmGen
 // evaluates the MLP only when the controls move; the film layer and the tcn
 // block (tcn.hpp) both use it.
-#pragma once
+// ---- description part (types.hpp): fields, figures, stream memory, display ----
+#ifndef EARSHOT_LAYER_KERNELS
+namespace earshot {
+
+struct FilmType {
+  static bool parse(LayerFields& f, LayerSpec& L) {
+    if (!f.in("channels", L)) return false;
+    L.out = L.in;
+    L.has_film = true;
+    return f.mlp(L, &f.object(), L.in, "");
+  }
+  static LayerCost cost(const LayerSpec&) { return {}; }
+  static double stream_bytes(const LayerSpec& L) { return stream_memory::film(L.film, L.in); }
+  template <class W>
+  static void describe(const LayerSpec&, W&) {}
+  static std::string detail(const LayerSpec& L) {
+    std::string d = "MLP of the controls";
+    if (L.film.widths.size() > 2) {
+      d += ", hidden";
+      for (size_t j = 1; j + 1 < L.film.widths.size(); ++j) d += " " + short_number(L.film.widths[j]);
+    }
+    return d;
+  }
+};
+
+}  // namespace earshot
+
+// ---- kernel part: included once per variant, inside its namespace (variant_graph.cpp) ----
+#else
 
 // The FiLM generator: [γ; β] = MLP(controls), evaluated per sample only when
 // the control vector changes (plain float loops in a fixed order: the same in
@@ -108,3 +136,4 @@ struct FilmLayer : Layer {
   }
   void reset() override { gen.reset(); }
 };
+#endif  // EARSHOT_LAYER_KERNELS

@@ -3,7 +3,28 @@
 //   y[c] = tanh(x[c]) ⊙ sigmoid(x[C + c]),   c = 0 … C−1,  2C channels in, C out.
 //
 // gated_rows is also the gate of every WaveNet layer (wavenet.hpp).
-#pragma once
+// ---- description part (types.hpp): fields, figures, stream memory, display ----
+#ifndef EARSHOT_LAYER_KERNELS
+namespace earshot {
+
+struct GatedType {
+  static bool parse(LayerFields& f, LayerSpec& L) {
+    if (!f.in("channels", L)) return false;
+    if (L.in % 2) return f.fail(f.where + ": 'channels' must be even (tanh half and sigmoid half)");
+    L.out = L.in / 2;
+    return true;
+  }
+  static LayerCost cost(const LayerSpec&) { return {}; }
+  static double stream_bytes(const LayerSpec&) { return 0; }
+  template <class W>
+  static void describe(const LayerSpec&, W&) {}
+  static std::string detail(const LayerSpec&) { return ""; }
+};
+
+}  // namespace earshot
+
+// ---- kernel part: included once per variant, inside its namespace (variant_graph.cpp) ----
+#else
 
 // y rows [0, C) from x rows [0, 2C): tanh of the first half times sigmoid of the second.
 template <class A>
@@ -27,3 +48,4 @@ struct GatedLayer : Layer {
   explicit GatedLayer(const LayerSpec& s) : C(s.in / 2) {}
   void run(const float* x, float* y, int n, const Ctx&) override { gated_rows<A>(x, y, C, n); }
 };
+#endif  // EARSHOT_LAYER_KERNELS

@@ -5,7 +5,18 @@
 //   h' = (1 − z) ⊙ n + z ⊙ h
 // The input and hidden products are kept apart (the hidden bias of n sits
 // inside the reset product). Weights transposed for column-form products.
-#pragma once
+// ---- description part (types.hpp): fields, figures, stream memory, display ----
+#ifndef EARSHOT_LAYER_KERNELS
+namespace earshot {
+
+// 3 gates; per level 7H values (the 3H input and 3H hidden biases, h); 6H gate
+// scratch (the input and hidden products).
+struct GruType : RecurrentType<3, 7, 6> {};
+
+}  // namespace earshot
+
+// ---- kernel part: included once per variant, inside its namespace (variant_graph.cpp) ----
+#else
 
 template <class A>
 struct GruLayer : Layer {
@@ -73,3 +84,4 @@ struct GruLayer : Layer {
     for (auto& L : levels) v.insert(v.end(), L.h.begin(), L.h.end());
   }
 };
+#endif  // EARSHOT_LAYER_KERNELS

@@ -4,7 +4,17 @@
 //   c' = f ⊙ c + i ⊙ g,  h' = o ⊙ tanh(c')
 // Weights are stored transposed ([in][4H]) so the products run in column
 // (axpy) form over the 4H gate rows; b_ih + b_hh are summed once at load.
-#pragma once
+// ---- description part (types.hpp): fields, figures, stream memory, display ----
+#ifndef EARSHOT_LAYER_KERNELS
+namespace earshot {
+
+// 4 gates; per level 6H values (the 4H summed biases, h and c); 4H gate scratch.
+struct LstmType : RecurrentType<4, 6, 4> {};
+
+}  // namespace earshot
+
+// ---- kernel part: included once per variant, inside its namespace (variant_graph.cpp) ----
+#else
 
 template <class A>
 struct LstmLayer : Layer {
@@ -83,3 +93,4 @@ struct LstmLayer : Layer {
     }
   }
 };
+#endif  // EARSHOT_LAYER_KERNELS

@@ -6,7 +6,76 @@
 //                x = x + res_l(g)        1×1, C → C
 //                s = s + skip_l(g)       1×1, C → S
 //   output s (S channels)
-#pragma once
+// ---- description part (types.hpp): fields, figures, stream memory, display ----
+#ifndef EARSHOT_LAYER_KERNELS
+namespace earshot {
+
+struct WavenetType {
+  static bool parse(LayerFields& f, LayerSpec& L) {
+    if (!f.in("in", L) || !f.integer("channels", L.channels, 1, kMaxChannels) ||
+        !f.integer("skip", L.skip, 1, kMaxChannels) || !f.integer("kernel", L.kernel, 1, kMaxKernel))
+      return false;
+    const rapidjson::Value* d = f.member("dilations");
+    if (!d || !d->IsArray() || d->Size() < 1 || d->Size() > unsigned(kMaxWavenetLayers))
+      return f.fail(f.where + ": field 'dilations' must be an array of 1 to " + std::to_string(kMaxWavenetLayers) +
+                    " integers");
+    for (auto& e : d->GetArray()) {
+      if (!e.IsInt() || e.GetInt() < 1 || e.GetInt() > kMaxDilation)
+        return f.fail(f.where + ": each dilation must be an integer from 1 to " + std::to_string(kMaxDilation));
+      L.dilations.push_back(e.GetInt());
+    }
+    const int C = L.channels;
+    if (!f.conv_params(L, "input", C, L.in, 1, L.bias)) return false;
+    for (size_t l = 0; l < L.dilations.size(); ++l) {
+      const std::string p = "layers." + std::to_string(l);
+      if (!f.conv_params(L, p + ".conv", 2 * C, C, L.kernel, L.bias) || !f.conv_params(L, p + ".res", C, C, 1, L.bias) ||
+          !f.conv_params(L, p + ".skip", L.skip, C, 1, L.bias))
+        return false;
+    }
+    L.out = L.skip;
+    return true;
+  }
+  static LayerCost cost(const LayerSpec& L) {
+    const int C = L.channels;
+    LayerCost c;
+    c.macs = int64_t(C) * L.in;
+    for (int d : L.dilations) {
+      c.macs += int64_t(2 * C) * C * L.kernel + int64_t(C) * C + int64_t(L.skip) * C;
+      c.receptive_field += int64_t(L.kernel - 1) * d;
+    }
+    c.widest = 2 * C;
+    return c;
+  }
+  static double stream_bytes(const LayerSpec& L) {
+    using namespace stream_memory;
+    const int C = L.channels;
+    double b = kPtr * L.in + kF * (4.0 * C + std::max(C, L.skip)) * kChunk;
+    for (int d : L.dilations) b += history(C, L.kernel, d) + 3 * kPtr * C + 3 * 256.0;
+    return b;
+  }
+  template <class W>
+  static void describe(const LayerSpec& L, W& w) {
+    w.Key("kernel");
+    w.Int(L.kernel);
+    w.Key("channels");
+    w.Int(L.channels);
+    w.Key("dilations");
+    w.StartArray();
+    for (int d : L.dilations) w.Int(d);
+    w.EndArray();
+  }
+  static std::string detail(const LayerSpec& L) {
+    std::string d = "channels " + short_number(L.channels) + ", kernel " + short_number(L.kernel) + ", skip " +
+                    short_number(L.skip) + ", dilations";
+    for (int x : L.dilations) d += " " + short_number(x);
+    return d;
+  }
+};
+
+}  // namespace earshot
+
+// ---- kernel part: included once per variant, inside its namespace (variant_graph.cpp) ----
+#else
 
 template <class A>
 struct WavenetLayer : Layer {
@@ -56,3 +125,4 @@ struct WavenetLayer : Layer {
     for (auto& L : levels) L.conv.values(v);
   }
 };
+#endif  // EARSHOT_LAYER_KERNELS

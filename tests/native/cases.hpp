@@ -3,12 +3,14 @@
 // powers of two. Weights are seeded uniform values scaled by 1/sqrt(fan-in).
 #pragma once
 #include <cmath>
+#include <map>
 #include <string>
 #include <vector>
 
 #include <Eigen/Dense>
 
 #include "effect_builder.hpp"
+#include "model.hpp"
 
 namespace testfx {
 
@@ -109,68 +111,71 @@ inline void tcn(Builder& b, int in, int out, int K, int d, bool with_film, int n
   if (in != out) b.tensor(n + ".res.weight", {out, in, 1}, fan(in));
 }
 
-// Every case: per layer type (framed by linear layers) and whole models.
-inline std::vector<Case> all_cases(float smoothing_ms = 0) {
-  std::vector<Case> cs;
+// The list the cases are added to: each case gets the next seed, and the
+// control smoothing the caller asked for.
+struct CaseList {
+  explicit CaseList(float smoothing_ms) : smoothing_ms(smoothing_ms) {}
+  std::vector<Case> cases;
   uint32_t seed = 1;
-  auto add = [&](const std::string& name, int nctl, auto&& fill) {
+  float smoothing_ms;
+
+  template <class Fill>
+  void add(const std::string& name, int nctl, Fill&& fill) {
     Builder b(seed++);
-    if (nctl) {
-      b.controls_json = two_controls(smoothing_ms);
-    }
+    if (nctl) b.controls_json = two_controls(smoothing_ms);
     fill(b);
-    cs.push_back({name, b.build(), nctl});
-  };
-  add("linear 1-5-1", 0, [](Builder& b) { linear(b, 1, 5); act(b, 5, "tanh"); linear(b, 5, 1); });
-  add("linear no bias", 0, [](Builder& b) { linear(b, 1, 3, false); act(b, 3, "softsign"); linear(b, 3, 1, false); });
-  for (int k : {1, 2, 3, 5})
-    for (int d : {1, 3, 7}) {
-      if (k == 1 && d > 1) continue;
-      add("conv1d k" + std::to_string(k) + " d" + std::to_string(d), 0, [k, d](Builder& b) {
-        linear(b, 1, 3);
-        conv(b, 3, 5, k, d);
-        act(b, 5, "tanh");
-        linear(b, 5, 1);
+    cases.push_back({name, b.build(), nctl});
+  }
+};
+
+// The recurrent types' cases: hidden 1, 5, 13, 32, one and two levels, with a
+// linear head and the input skip.
+inline void recurrent_cases(CaseList& list, const char* type) {
+  for (int H : {1, 5, 13, 32})
+    for (int L : {1, 2}) {
+      if (H == 1 && L == 2) continue;
+      list.add(std::string(type) + " H" + std::to_string(H) + " x" + std::to_string(L), 0, [=](Builder& b) {
+        recurrent(b, type, 1, H, L);
+        linear(b, H, 1);
+        b.input_skip = true;
       });
     }
-  for (const char* fn : {"tanh", "sigmoid", "relu", "leaky_relu", "softsign", "hardtanh"})
-    add(std::string("activation ") + fn, 0, [fn](Builder& b) {
-      linear(b, 1, 4);
-      act(b, 4, fn, std::string(fn) == "hardtanh" ? ",\"min\":-0.3,\"max\":0.5" : (std::string(fn) == "leaky_relu" ? ",\"slope\":0.1" : ""));
-      linear(b, 4, 1);
-    });
-  add("gated 6-3", 0, [](Builder& b) { linear(b, 1, 6); b.layer("gated", "\"channels\":6"); linear(b, 3, 1); });
-  for (const char* type : {"lstm", "gru"})
-    for (int H : {1, 5, 13, 32})
-      for (int L : {1, 2}) {
-        if (H == 1 && L == 2) continue;
-        add(std::string(type) + " H" + std::to_string(H) + " x" + std::to_string(L), 0, [=](Builder& b) {
-          recurrent(b, type, 1, H, L);
-          linear(b, H, 1);
-          b.input_skip = true;
-        });
-      }
-  add("film 2 controls", 2, [](Builder& b) { linear(b, 1, 4); film(b, 4, {5}, 2); act(b, 4, "tanh"); linear(b, 4, 1); });
-  add("film no hidden", 2, [](Builder& b) { linear(b, 1, 3); film(b, 3, {}, 2); linear(b, 3, 1); });
+}
+
+// A layer type's cases (framed by linear layers), by type name; filled by
+// the types' test files (layer_test.hpp).
+using CaseFill = void (*)(CaseList&);
+inline std::map<std::string, CaseFill>& layer_cases() {
+  static std::map<std::string, CaseFill> table;
+  return table;
+}
+
+// The type names of the core's table (dsp/layers/registry.hpp), in order.
+inline std::vector<std::string> layer_type_names() {
+  return {
+#define EARSHOT_X(type, Name) #type,
+      EARSHOT_LAYER_TYPES(EARSHOT_X)
+#undef EARSHOT_X
+  };
+}
+
+// Whole models of the three published families, mixing the types.
+inline void model_cases(CaseList& list) {
   // Recurrent family: controls as extra inputs, linear head, input skip (Wright et al. 2019/2020).
-  add("model lstm-12 + controls", 2, [](Builder& b) {
+  list.add("model lstm-12 + controls", 2, [](Builder& b) {
     b.inputs = {"audio", "drive", "tone"};
     recurrent(b, "lstm", 3, 12, 1);
     linear(b, 12, 1);
     b.input_skip = true;
   });
-  add("model gru-9 x2 + controls", 2, [](Builder& b) {
+  list.add("model gru-9 x2 + controls", 2, [](Builder& b) {
     b.inputs = {"audio", "drive", "tone"};
     recurrent(b, "gru", 3, 9, 2);
     linear(b, 9, 1);
     b.input_skip = true;
   });
   // Feed-forward WaveNet family (Damskägg et al. 2019).
-  add("model wavenet k3", 0, [](Builder& b) {
-    wavenet(b, 1, 6, 5, 3, {1, 2, 5, 7, 12});
-    linear(b, 5, 1);
-  });
-  add("model wavenet k2 + controls in", 2, [](Builder& b) {
+  list.add("model wavenet k2 + controls in", 2, [](Builder& b) {
     b.inputs = {"audio", "drive", "tone"};
     wavenet(b, 3, 7, 4, 2, {1, 3, 9});
     linear(b, 4, 3);
@@ -178,19 +183,23 @@ inline std::vector<Case> all_cases(float smoothing_ms = 0) {
     linear(b, 3, 1);
   });
   // TCN with FiLM on two controls (Steinmetz & Reiss 2022).
-  add("model tcn + film", 2, [](Builder& b) {
+  list.add("model tcn + film", 2, [](Builder& b) {
     tcn(b, 1, 6, 5, 1, true, 2);
     tcn(b, 6, 6, 3, 7, true, 2);
     tcn(b, 6, 5, 5, 13, true, 2, "{\"fn\":\"tanh\"}");
     linear(b, 5, 1);
   });
-  add("tcn no film no residual", 0, [](Builder& b) {
-    const std::string n = b.layer("tcn", "\"in\":1,\"out\":4,\"kernel\":3,\"dilation\":2,\"residual\":false");
-    b.tensor(n + ".conv.weight", {4, 1, 3}, 0.5f);
-    b.tensor(n + ".conv.bias", {4}, 0.1f);
-    linear(b, 4, 1);
-  });
-  return cs;
+}
+
+// Every case: each type's (in the table's order), then the whole models.
+inline std::vector<Case> all_cases(float smoothing_ms = 0) {
+  CaseList list(smoothing_ms);
+  for (const std::string& type : layer_type_names()) {
+    auto it = layer_cases().find(type);
+    if (it != layer_cases().end()) it->second(list);
+  }
+  model_cases(list);
+  return list.cases;
 }
 
 // Per-sample control trajectory (controls × T) for a case with constant

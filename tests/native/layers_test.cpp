@@ -1,36 +1,24 @@
 // Proves every layer type and model family matches an independent double-precision
 // reference (reference.hpp: the published equations, evaluated with Eigen), and that
 // the parity variants give bit-identical output while avx2fma stays within −120 dB ESR.
-// One test case per layer type (the first word of a case's name in cases.hpp), so
-// `ctest -R gru` or `earshot_tests "layer gru*"` runs one type alone; a failing case
-// is reported and the next case still runs.
-#include <catch2/catch.hpp>
+// Each layer type's oracle, cases and TEST_CASE live in tests/native/layers/<type>_test.cpp;
+// this file holds the check they share, the whole-model cases and the proof that every
+// row of the core's table has its test file.
 #include <algorithm>
 #include <cstdio>
 #include <iterator>
 #include <string>
 
-#include "cases.hpp"
 #include "cpu_variants.hpp"
-#include "reference.hpp"
+#include "layer_test.hpp"
 #include "stream_util.hpp"
 
-using namespace testfx;
+namespace testfx {
 
-namespace {
-
-// The groups of cases.hpp, by the first word of a case's name.
-const char* const kGroups[] = {"linear", "conv1d", "activation", "gated", "lstm", "gru", "film", "tcn", "model"};
-
-std::string group_of(const Case& c) { return c.name.substr(0, c.name.find(' ')); }
-
-void check_group(const std::string& group) {
+void check_cases(const std::vector<Case>& cases) {
   const int T = 9600;  // 0.2 s at 48 kHz
   const std::vector<float> x = test_signal(T);
-  int n = 0;
-  for (const Case& c : all_cases()) {
-    if (group_of(c) != group) continue;
-    ++n;
+  for (const Case& c : cases) {
     CAPTURE(c.name);
     const auto bytes = c.fx.bytes();
     Reference ref(c.fx);
@@ -76,28 +64,32 @@ void check_group(const std::string& group) {
       CHECK(e <= std::max(-120.0, floor_db + 3.0));
     }
   }
-  CHECK(n > 0);  // the group exists in cases.hpp
+  CHECK(!cases.empty());  // the type registered its cases
 }
 
-}  // namespace
+std::vector<Case> cases_of(const std::string& type) {
+  std::vector<Case> out;
+  for (Case& c : all_cases())
+    if (c.name.compare(0, type.size() + 1, type + " ") == 0) out.push_back(std::move(c));
+  return out;
+}
 
-#define EARSHOT_LAYER_TEST(group)                                                                    \
-  TEST_CASE("layer " group ": matches the double-precision reference in every variant", "[layers]") { \
-    check_group(group);                                                                              \
-  }
-EARSHOT_LAYER_TEST("linear")
-EARSHOT_LAYER_TEST("conv1d")
-EARSHOT_LAYER_TEST("activation")
-EARSHOT_LAYER_TEST("gated")
-EARSHOT_LAYER_TEST("lstm")
-EARSHOT_LAYER_TEST("gru")
-EARSHOT_LAYER_TEST("film")
-EARSHOT_LAYER_TEST("tcn")
-EARSHOT_LAYER_TEST("model")
+}  // namespace testfx
 
-TEST_CASE("layer cases: every case of cases.hpp belongs to one of the layer tests", "[layers]") {
-  for (const Case& c : all_cases()) {
-    CAPTURE(c.name);
-    CHECK(std::find(std::begin(kGroups), std::end(kGroups), group_of(c)) != std::end(kGroups));
+using namespace testfx;
+
+TEST_CASE("layer model: whole models of the three families match the reference in every variant", "[layers]") {
+  CaseList list(0);
+  model_cases(list);
+  check_cases(list.cases);
+}
+
+TEST_CASE("layer types: every row of the core's table has its test file with an oracle and cases", "[layers]") {
+  for (const std::string& type : layer_type_names()) {
+    CAPTURE(type);
+    CHECK(layer_oracles().count(type) == 1);
+    CHECK(layer_cases().count(type) == 1);
+    CHECK(!cases_of(type).empty());
   }
+  CHECK(layer_oracles().size() == layer_type_names().size());  // no oracle for a type the core lacks
 }

@@ -11,6 +11,7 @@
 #pragma once
 #include <Eigen/Dense>
 #include <cmath>
+#include <map>
 #include <stdexcept>
 #include <string>
 
@@ -20,6 +21,18 @@ namespace testfx {
 
 using Mat = Eigen::MatrixXd;  // channels × time
 using Vec = Eigen::VectorXd;
+
+class Reference;
+
+// One layer type's oracle: its output (channels × time) for input x, from the
+// layer object `L` of the description and the per-sample controls.
+using LayerOracle = Mat (*)(const Reference& r, const rapidjson::Value& L, const Mat& x, const Mat& controls);
+
+// Every type's oracle by its name in effect files.
+inline std::map<std::string, LayerOracle>& layer_oracles() {
+  static std::map<std::string, LayerOracle> table;
+  return table;
+}
 
 class Reference {
  public:
@@ -47,9 +60,8 @@ class Reference {
     return y;
   }
 
- private:
-  const Effect& fx_;
-  rapidjson::Document doc_;
+  // ---- tools for the types' oracles ----
+  const Effect& effect() const { return fx_; }
 
   Mat W2(const std::string& name) const {  // [rows][cols] tensor as a matrix
     const TensorData& t = fx_.tensors.at(name);
@@ -133,78 +145,46 @@ class Reference {
     return z.topRows(C).array().tanh().matrix().cwiseProduct(z.bottomRows(C).unaryExpr([](double v) { return sigm(v); }));
   }
 
+  // One layer, by its type's oracle (registered by tests/native/layers/<type>_test.cpp).
   Mat layer(const rapidjson::Value& L, const Mat& x, const Mat& controls) const {
-    const std::string type = L["type"].GetString(), name = L["name"].GetString();
-    const bool bias = flag(L, "bias", true);
-    const int T = int(x.cols());
-    if (type == "linear") return conv(name + ".weight", name + ".bias", bias, 1, x);
-    if (type == "conv1d")
-      return conv(name + ".weight", name + ".bias", bias, L.HasMember("dilation") ? L["dilation"].GetInt() : 1, x);
-    if (type == "activation") return act_mat(L, "fn", x, 0.01);
-    if (type == "gated") return gated(x);
-    if (type == "film") return film(&L, name + ".", L["channels"].GetInt(), x, controls);
-    if (type == "lstm" || type == "gru") {
-      const int H = L["hidden"].GetInt(), layers = L.HasMember("num_layers") ? L["num_layers"].GetInt() : 1;
-      Mat cur = x;
-      for (int l = 0; l < layers; ++l) {
-        const std::string s = std::to_string(l);
-        const Mat Wih = W2(name + ".weight_ih_l" + s), Whh = W2(name + ".weight_hh_l" + s);
-        const int G = type == "lstm" ? 4 : 3;
-        const Vec bih = B(name + ".bias_ih_l" + s, G * H, bias), bhh = B(name + ".bias_hh_l" + s, G * H, bias);
-        Vec h = Vec::Zero(H), c = Vec::Zero(H);
-        Mat out(H, T);
-        for (int t = 0; t < T; ++t) {
-          const Vec gi = Wih * cur.col(t) + bih, gh = Whh * h + bhh;
-          if (type == "lstm") {
-            const Vec z = gi + gh;  // i, f, g, o
-            const Vec i = z.segment(0, H).unaryExpr([](double v) { return sigm(v); });
-            const Vec f = z.segment(H, H).unaryExpr([](double v) { return sigm(v); });
-            const Vec g = z.segment(2 * H, H).array().tanh().matrix();
-            const Vec o = z.segment(3 * H, H).unaryExpr([](double v) { return sigm(v); });
-            c = f.cwiseProduct(c) + i.cwiseProduct(g);
-            h = o.cwiseProduct(c.array().tanh().matrix());
-          } else {  // r, z, n
-            const Vec r = (gi.segment(0, H) + gh.segment(0, H)).unaryExpr([](double v) { return sigm(v); });
-            const Vec z = (gi.segment(H, H) + gh.segment(H, H)).unaryExpr([](double v) { return sigm(v); });
-            const Vec n = (gi.segment(2 * H, H) + r.cwiseProduct(gh.segment(2 * H, H))).array().tanh().matrix();
-            h = (Vec::Ones(H) - z).cwiseProduct(n) + z.cwiseProduct(h);
-          }
-          out.col(t) = h;
-        }
-        cur = out;
-      }
-      return cur;
-    }
-    if (type == "wavenet") {
-      Mat h = conv(name + ".input.weight", name + ".input.bias", bias, 1, x);
-      Mat s;
-      const auto& dil = L["dilations"];
-      for (unsigned l = 0; l < dil.Size(); ++l) {
-        const std::string p = name + ".layers." + std::to_string(l);
-        const Mat g = gated(conv(p + ".conv.weight", p + ".conv.bias", bias, dil[l].GetInt(), h));
-        h = h + conv(p + ".res.weight", p + ".res.bias", bias, 1, g);
-        const Mat sk = conv(p + ".skip.weight", p + ".skip.bias", bias, 1, g);
-        s = l == 0 ? sk : Mat(s + sk);
-      }
-      return s;
-    }
-    if (type == "tcn") {
-      const int out = L["out"].GetInt(), in = L["in"].GetInt();
-      Mat y = conv(name + ".conv.weight", name + ".conv.bias", bias, L.HasMember("dilation") ? L["dilation"].GetInt() : 1, x);
-      if (L.HasMember("film")) y = film(&L["film"], name + ".film.", out, y, controls);
-      if (L.HasMember("activation")) {
-        const auto& a = L["activation"];
-        const std::string fn = a["fn"].GetString();
-        y = act_mat(a, "fn", y, fn == "leaky_relu" ? 0.2 : 0.01);
-      } else {
-        y = y.unaryExpr([](double v) { return v > 0 ? v : 0.2 * v; });
-      }
-      if (flag(L, "residual", true)) y += in == out ? x : conv(name + ".res.weight", "", false, 1, x);
-      return y;
-    }
-    throw std::runtime_error("reference: unknown layer type " + type);
+    const std::string type = L["type"].GetString();
+    auto it = layer_oracles().find(type);
+    if (it == layer_oracles().end()) throw std::runtime_error("reference: no oracle for layer type " + type);
+    return it->second(*this, L, x, controls);
   }
+
+ private:
+  const Effect& fx_;
+  rapidjson::Document doc_;
 };
+
+// A recurrent layer over its levels: gi = W_ih x + b_ih, gh = W_hh h + b_hh per
+// time step, then `cell(gi, gh, h, c)` updates the state (lstm, gru).
+template <class Cell>
+Mat recurrent_oracle(const Reference& r, const rapidjson::Value& L, const Mat& x, int gates, Cell cell) {
+  const std::string name = L["name"].GetString();
+  const bool bias = !L.HasMember("bias") || L["bias"].GetBool();
+  const int H = L["hidden"].GetInt(), levels = L.HasMember("num_layers") ? L["num_layers"].GetInt() : 1;
+  const int T = int(x.cols());
+  Mat cur = x;
+  for (int l = 0; l < levels; ++l) {
+    const std::string s = std::to_string(l);
+    const Mat Wih = r.W2(name + ".weight_ih_l" + s), Whh = r.W2(name + ".weight_hh_l" + s);
+    const Vec bih = r.B(name + ".bias_ih_l" + s, gates * H, bias), bhh = r.B(name + ".bias_hh_l" + s, gates * H, bias);
+    Vec h = Vec::Zero(H), c = Vec::Zero(H);
+    Mat out(H, T);
+    for (int t = 0; t < T; ++t) {
+      cell(Vec(Wih * cur.col(t) + bih), Vec(Whh * h + bhh), h, c);
+      out.col(t) = h;
+    }
+    cur = out;
+  }
+  return cur;
+}
+
+// A layer name and its boolean field, as in the file.
+inline std::string layer_name(const rapidjson::Value& L) { return L["name"].GetString(); }
+inline bool layer_bias(const rapidjson::Value& L) { return !L.HasMember("bias") || L["bias"].GetBool(); }
 
 // Error-to-signal ratio in dB: 10·log10(Σ(y − ŷ)² / Σ y²).
 inline double esr_db(const std::vector<double>& ref, const std::vector<float>& y) {
