@@ -16,7 +16,7 @@ or by hand:
     model = earshot.Effect({"rnn": earshot.LSTM(2, 16), "head": earshot.Linear(16, 1)},
                            inputs=["audio", "drive"], input_skip=True)
 
-Layer modules: Linear, CausalConv1d(in, out, kernel, dilation, bias),
+Layer modules (earshot.modules; one per row of earshot.layer_types): Linear, CausalConv1d(in, out, kernel, dilation, bias),
 LSTM(in, hidden, num_layers, bias) and GRU (batch_first, forward returns the
 output), Activation(channels, fn, slope, min, max) with fn in tanh, sigmoid,
 relu, leaky_relu, softsign, hardtanh, Gated(2C), FiLM(channels, n_controls,
@@ -39,9 +39,7 @@ Files
     python3 -m earshot export ... / info ... (see python3 -m earshot --help)
 """
 
-from .modules import (ACTIVATIONS, Activation, CausalConv1d, Effect, FiLM, GRU, Gated, LSTM, Linear,
-                      TCNBlock, WaveNet, WaveNetLayer, apply_activation, control_spec, ramp_steps,
-                      smooth_controls)
+from .modules import *  # noqa: F401,F403 (the names in modules.__all__)
 from . import models
 
 __version__ = "0.1.0"

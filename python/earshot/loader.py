@@ -11,11 +11,10 @@ import torch
 
 from . import container
 from .container import FormatError
-from .limits import (MAX_CHANNELS, MAX_CONTROLS, MAX_DILATION, MAX_FILM_HIDDEN, MAX_KERNEL, MAX_LAYERS,
-                     MAX_RATE, MAX_RECEPTIVE_FIELD, MAX_RECURRENT_LAYERS, MAX_WAVENET_LAYERS, MIN_RATE)
 from .exporter import CREDIT_KEYS, LAYER_NAME
-from .modules import (ACTIVATIONS, GRU, LSTM, Activation, CausalConv1d, Effect, FiLM, Gated, Linear, TCNBlock,
-                      WaveNet, _activation_object, control_spec)
+from .layer_types import LAYER_TYPES, layer_figures
+from .limits import MAX_CONTROLS, MAX_LAYERS, MAX_RATE, MAX_RECEPTIVE_FIELD, MIN_RATE
+from .modules import Effect, control_spec
 
 
 def read(source):
@@ -34,120 +33,17 @@ def read(source):
     return desc, tensors
 
 
-def _int(layer, key, lo=1, hi=MAX_CHANNELS, default=None):
-    v = layer.get(key, default)
-    if isinstance(v, bool) or not isinstance(v, int) or not lo <= v <= hi:
-        raise FormatError(f"layer {layer.get('name')!r}: {key} must be an integer in {lo} .. {hi}, got {v!r}")
-    return v
-
-
-def _bool(layer, key, default):
-    v = layer.get(key, default)
-    if not isinstance(v, bool):
-        raise FormatError(f"layer {layer.get('name')!r}: {key} must be true or false, got {v!r}")
-    return v
-
-
-def _film_args(name, f):
-    hidden = f.get("hidden", [])
-    if (not isinstance(hidden, list) or len(hidden) > MAX_FILM_HIDDEN
-            or not all(isinstance(h, int) and not isinstance(h, bool) and 1 <= h <= MAX_CHANNELS for h in hidden)):
-        raise FormatError(f"layer {name!r}: film hidden must be a list of 0 .. {MAX_FILM_HIDDEN} widths of "
-                          f"1 .. {MAX_CHANNELS}, got {hidden!r}")
-    act = f.get("activation", "relu")
-    if act not in ACTIVATIONS:
-        raise FormatError(f"layer {name!r}: film activation {act!r} is not one of {', '.join(ACTIVATIONS)}")
-    extra = {}
-    for key, default in (("slope", 0.01), ("min", -1.0), ("max", 1.0)):
-        v = f.get(key, default)
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise FormatError(f"layer {name!r}: film field {key!r} must be a finite number, got {v!r}")
-        extra[key] = float(v)
-    if act == "hardtanh" and not extra["min"] < extra["max"]:
-        raise FormatError(f"layer {name!r}: film hardtanh needs min < max")
-    return hidden, act, extra
-
-
 def build_layer(layer, width, n_controls):
-    """(module, output width) for one layer object."""
+    """(module, output width) for one layer object: its type's load (layer_types.py)."""
     name, kind = layer.get("name"), layer.get("type")
-    key = "channels" if kind in ("activation", "gated", "film") else "in"
-    declared = layer.get(key)
+    t = LAYER_TYPES.get(kind)
+    declared = layer.get(t.width_key if t else "in")
     if declared != width:
-        raise FormatError(f"layer {name!r}: field {key!r} is {declared!r} but the previous stage gives "
-                          f"{width} channels")
-    if kind == "linear":
-        out = _int(layer, "out")
-        return Linear(width, out, bias=_bool(layer, "bias", True)), out
-    if kind == "conv1d":
-        out = _int(layer, "out")
-        return CausalConv1d(width, out, _int(layer, "kernel", hi=MAX_KERNEL),
-                            _int(layer, "dilation", hi=MAX_DILATION, default=1), _bool(layer, "bias", True)), out
-    if kind in ("lstm", "gru"):
-        h = _int(layer, "hidden")
-        cls = LSTM if kind == "lstm" else GRU
-        return cls(width, h, _int(layer, "num_layers", 1, MAX_RECURRENT_LAYERS, 1), _bool(layer, "bias", True)), h
-    if kind == "activation":
-        fn = layer.get("fn")
-        if fn not in ACTIVATIONS:
-            raise FormatError(f"layer {name!r}: fn {fn!r} is not one of {', '.join(ACTIVATIONS)}")
-        for key in ("slope", "min", "max"):
-            v = layer.get(key, 0.0)
-            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-                raise FormatError(f"layer {name!r}: field {key!r} must be a finite number, got {v!r}")
-        try:
-            return Activation(width, fn, layer.get("slope", 0.01), layer.get("min", -1.0),
-                              layer.get("max", 1.0)), width
-        except ValueError as e:
-            raise FormatError(f"layer {name!r}: {e}") from None
-    if kind == "gated":
-        if width % 2:
-            raise FormatError(f"layer {name!r}: gated needs an even channel count, got {width}")
-        return Gated(width), width // 2
-    if kind == "film":
-        if n_controls < 1:
-            raise FormatError(f"layer {name!r}: film needs at least one control")
-        hidden, act, extra = _film_args(name, layer)
-        try:
-            return FiLM(width, n_controls, hidden, act, extra["slope"], extra["min"], extra["max"]), width
-        except ValueError as e:
-            raise FormatError(f"layer {name!r}: {e}") from None
-    if kind == "wavenet":
-        c, s = _int(layer, "channels"), _int(layer, "skip")
-        dil = layer.get("dilations")
-        if (not isinstance(dil, list) or not 1 <= len(dil) <= MAX_WAVENET_LAYERS
-                or not all(isinstance(d, int) and not isinstance(d, bool) and 1 <= d <= MAX_DILATION for d in dil)):
-            raise FormatError(f"layer {name!r}: dilations must be a list of 1 .. {MAX_WAVENET_LAYERS} integers "
-                              f"of 1 .. {MAX_DILATION}")
-        return WaveNet(width, c, s, _int(layer, "kernel", hi=MAX_KERNEL), dil, _bool(layer, "bias", True)), s
-    if kind == "tcn":
-        out = _int(layer, "out")
-        film = film_in = layer.get("film")
-        if film is not None:
-            if not isinstance(film, dict):
-                raise FormatError(f"layer {name!r}: film must be an object")
-            if n_controls < 1:
-                raise FormatError(f"layer {name!r}: film needs at least one control")
-            hidden, act, extra = _film_args(name, film)
-            film = {"hidden": hidden, "activation": act}
-            film.update({k: v for k, v in extra.items() if k in film_in})
-        if not isinstance(layer.get("activation", {}), dict):
-            raise FormatError(f"layer {name!r}: field 'activation' must be an object {{\"fn\": ...}}")
-        try:
-            a = layer.get("activation", {"fn": "leaky_relu", "slope": 0.2})
-            for key in ("slope", "min", "max"):
-                v = a.get(key, 0.0)
-                if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-                    raise ValueError(f"activation field {key!r} must be a finite number, got {v!r}")
-            # keys the format does not define are ignored, as the core does
-            act = _activation_object({k: v for k, v in a.items() if k in ("fn", "slope", "min", "max")})
-        except ValueError as e:
-            raise FormatError(f"layer {name!r}: {e}") from None
-        return TCNBlock(width, out, _int(layer, "kernel", hi=MAX_KERNEL),
-                        _int(layer, "dilation", hi=MAX_DILATION, default=1),
-                        _bool(layer, "bias", True), act, film, n_controls,
-                        _bool(layer, "residual", True)), out
-    raise FormatError(f"layer {name!r}: unknown type {kind!r}")
+        raise FormatError(f"layer {name!r}: field {t.width_key if t else 'in'!r} is {declared!r} but the previous "
+                          f"stage gives {width} channels")
+    if t is None:
+        raise FormatError(f"layer {name!r}: unknown type {kind!r}")
+    return t.load(layer, width, n_controls)
 
 
 def _check_desc(desc):
@@ -233,11 +129,7 @@ def load(source):
             raise FormatError(f"layer {name!r}: name used twice")
         seen.add(name)
         m, width = build_layer(layer, width, len(specs))
-        kind = layer.get("type")
-        if kind in ("conv1d", "tcn"):
-            receptive += (layer["kernel"] - 1) * layer.get("dilation", 1)
-        elif kind == "wavenet":
-            receptive += sum((layer["kernel"] - 1) * d for d in layer["dilations"])
+        receptive += layer_figures(layer)[1]
         if receptive > MAX_RECEPTIVE_FIELD:
             raise FormatError(f"layer {name!r}: receptive field exceeds {MAX_RECEPTIVE_FIELD} samples")
         names.append(name)

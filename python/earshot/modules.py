@@ -16,6 +16,12 @@ import torch
 import torch.nn as nn
 import torch.nn.functional as F
 
+# What `import earshot` exposes (earshot/__init__.py imports these): a new
+# layer type's twin is added here, beside its class.
+__all__ = ["ACTIVATIONS", "Activation", "CausalConv1d", "Effect", "FiLM", "GRU", "Gated", "LSTM", "Linear",
+           "TCNBlock", "WaveNet", "WaveNetLayer", "apply_activation", "control_spec", "ramp_steps",
+           "smooth_controls"]
+
 ACTIVATIONS = ("identity", "tanh", "sigmoid", "relu", "leaky_relu", "softsign", "hardtanh")
 
 
@@ -359,23 +365,10 @@ def smooth_controls(n_samples, sample_rate, initial, events=(), smoothing_ms=20.
 # --------------------------------------------------------------------------
 
 def _kind(m):
-    if isinstance(m, (nn.LSTM,)):
-        return "lstm"
-    if isinstance(m, nn.GRU):
-        return "gru"
-    if isinstance(m, nn.Conv1d):
-        return "conv1d"
-    if isinstance(m, nn.Linear):
-        return "linear"
-    if isinstance(m, WaveNet):
-        return "wavenet"
-    if isinstance(m, TCNBlock):
-        return "tcn"
-    if isinstance(m, FiLM):
-        return "film"
-    if isinstance(m, Gated):
-        return "gated"
-    return "activation"
+    """The type name a module is written as (layer_types.py), for default layer names."""
+    from .layer_types import type_of_module  # the table imports this module
+    t = type_of_module(m)
+    return t.name if t is not None else "activation"
 
 
 class Effect(nn.Module):

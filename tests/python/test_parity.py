@@ -21,6 +21,7 @@ import torch
 import torch.nn as nn
 
 import earshot
+import earshot.exporter
 from earshot import native
 from conftest import add_report_row
 
@@ -46,66 +47,31 @@ def scaled(model, factor):
     return model
 
 
-def gain_in(width, gain):
-    """A Linear(1 -> width) whose weights are scaled so the next layer sees |x| well above 1."""
-    lin = nn.Linear(1, width)
-    with torch.no_grad():
-        lin.weight.mul_(gain)
-    return lin
-
-
 # --- the cases -----------------------------------------------------------------------------------
 # build(seed) -> Effect; events: (fraction of the signal, control name, value).
 
-EVENTS_2 = [(0.21, "a", 0.9), (0.21, "b", -1.5), (0.2103, "a", 0.1), (0.5, "b", 1.8), (0.77, "a", 0.6)]
-CTL_2 = [{"name": "a", "min": 0, "max": 1, "default": 0.3, "smoothing_ms": 20},
-         {"name": "b", "min": -2, "max": 2, "default": 0.5, "smoothing_ms": 3.3}]
-CTL_1 = [{"name": "drive", "min": 0, "max": 4, "default": 1, "smoothing_ms": 50}]
-EVENTS_1 = [(0.13, "drive", 3.5), (0.1301, "drive", 0.5), (0.6, "drive", 2.2)]
+from earshot.layer_types import EXAMPLE_CTL_1 as CTL_1, EXAMPLE_CTL_2 as CTL_2  # noqa: E402
+from earshot.layer_types import EXAMPLE_EVENTS_1 as EVENTS_1, EXAMPLE_EVENTS_2 as EVENTS_2  # noqa: E402
+from earshot.layer_types import LAYER_TYPES  # noqa: E402
 
 
 def layer_cases():
+    """Every row's examples (earshot/layer_types.py), in the table's order."""
     c = {}
-    c["linear"] = (lambda: earshot.Effect([nn.Linear(2, 7), earshot.Linear(7, 1, bias=False)],
-                                          inputs=["audio", "drive"], controls=CTL_1), EVENTS_1)
-    for k, d, w, torch_conv in [(1, 1, 3, False), (2, 5, 5, False), (3, 7, 6, True), (5, 3, 11, True),
-                                (3, 100, 4, False)]:
-        conv = (lambda a, b, kk, dd: nn.Conv1d(a, b, kk, dilation=dd)) if torch_conv else earshot.CausalConv1d
-        c[f"conv1d k{k} d{d} C{w}{' (nn.Conv1d)' if torch_conv else ''}"] = (
-            lambda k=k, d=d, w=w, conv=conv: earshot.Effect([conv(1, w, k, d), conv(w, 1, k, d)]), [])
-    c["lstm H5"] = (lambda: earshot.Effect([earshot.LSTM(1, 5), nn.Linear(5, 1)]), [])
-    c["lstm H13 x3 no bias"] = (lambda: earshot.Effect([earshot.LSTM(1, 13, 3, bias=False), nn.Linear(13, 1)]), [])
-    c["lstm H9 (nn.LSTM) + control"] = (lambda: earshot.Effect([nn.LSTM(2, 9, batch_first=True), nn.Linear(9, 1)],
-                                                               inputs=["audio", "drive"], controls=CTL_1), EVENTS_1)
-    c["gru H7 x2"] = (lambda: earshot.Effect([earshot.GRU(1, 7, 2), nn.Linear(7, 1)]), [])
-    c["gru H3 (nn.GRU)"] = (lambda: earshot.Effect([nn.GRU(1, 3), nn.Linear(3, 1)]), [])
-    for fn, extra in [("tanh", {}), ("sigmoid", {}), ("relu", {}), ("leaky_relu", {}),
-                      ("leaky_relu", {"slope": 0.3}), ("softsign", {}), ("hardtanh", {}),
-                      ("hardtanh", {"min": -0.4, "max": 0.7})]:
-        name = f"activation {fn}" + "".join(f" {k}={v}" for k, v in extra.items())
-        c[name] = (lambda fn=fn, extra=extra: earshot.Effect(
-            [gain_in(6, 4.0), earshot.Activation(6, fn, **extra), nn.Linear(6, 1)]), [])
-    c["activation torch modules"] = (lambda: earshot.Effect(
-        [gain_in(4, 4.0), nn.LeakyReLU(0.05), nn.Softsign(), nn.Hardtanh(-0.2, 0.3), nn.Linear(4, 1)]), [])
-    c["gated C5"] = (lambda: earshot.Effect([gain_in(10, 3.0), earshot.Gated(10), nn.Linear(5, 1)]), [])
-    c["film C6 hidden [5] tanh"] = (lambda: earshot.Effect(
-        [nn.Linear(1, 6), earshot.FiLM(6, 2, [5], "tanh"), nn.Linear(6, 1)], controls=CTL_2), EVENTS_2)
-    c["film C3 no hidden relu"] = (lambda: earshot.Effect(
-        [nn.Linear(1, 3), earshot.FiLM(3, 2, []), nn.Linear(3, 1)], controls=CTL_2), EVENTS_2)
-    c["film C4 hidden [7, 3] leaky_relu"] = (lambda: earshot.Effect(
-        [nn.Linear(1, 4), earshot.FiLM(4, 2, [7, 3], "leaky_relu"), nn.Linear(4, 1)], controls=CTL_2), EVENTS_2)
-    c["wavenet C5 S3 k2 d[1,3,5]"] = (lambda: earshot.Effect(
-        [earshot.WaveNet(1, 5, 3, 2, [1, 3, 5]), nn.Linear(3, 1)]), [])
-    c["wavenet C3 S2 k1 d[1,1] no bias"] = (lambda: earshot.Effect(
-        [earshot.WaveNet(1, 3, 2, 1, [1, 1], bias=False), nn.Linear(2, 1)]), [])
-    c["tcn FiLM, in!=out, hardtanh"] = (lambda: earshot.Effect([
-        earshot.TCNBlock(1, 6, 5, 3, film={"hidden": [4]}, n_controls=2),
-        earshot.TCNBlock(6, 6, 3, 7, activation={"fn": "hardtanh", "min": -0.5, "max": 0.5}),
-        nn.Linear(6, 1)], controls=CTL_2), EVENTS_2)
-    c["tcn no residual, no bias, sigmoid"] = (lambda: earshot.Effect([
-        earshot.TCNBlock(1, 5, 2, 11, bias=False, residual=False, activation={"fn": "sigmoid"}),
-        nn.Linear(5, 1)]), [])
+    for t in LAYER_TYPES.values():
+        c.update(t.examples())
     return c
+
+
+def test_every_layer_type_has_examples():
+    """A row without examples would join the table unchecked against the core."""
+    for name, t in LAYER_TYPES.items():
+        examples = t.examples()
+        assert examples, f"layer type {name!r} has no examples"
+        for case, (build, _) in examples.items():
+            assert case.startswith(name), f"{name}: example {case!r} must start with the type's name"
+            kinds = {layer["type"] for layer in earshot.exporter.build(build(), sample_rate=RATE)[0]["graph"]["layers"]}
+            assert name in kinds, f"{name}: example {case!r} holds no {name} layer ({sorted(kinds)})"
 
 
 def model_cases():
