@@ -24,7 +24,7 @@ import torch
 import torch.nn as nn
 
 from . import container
-from .layer_types import ExportError, _where, layer_figures, type_of_module
+from .layer_types import LAYER_TYPES, ExportError, _where, layer_figures, type_of_module
 from .limits import MAX_CONTROLS, MAX_LAYERS, MAX_RATE, MAX_RECEPTIVE_FIELD, MIN_RATE
 from .modules import Effect, control_spec
 
@@ -46,8 +46,7 @@ def describe_layer(path, m, width, n_controls):
     if isinstance(m, nn.RNNBase):
         raise ExportError(f"{_where(path, m)}: only LSTM and GRU recurrences are supported")
     raise ExportError(f"{_where(path, m)}: this module type cannot be exported; earshot exports "
-                      "Linear, Conv1d, LSTM, GRU, activations (tanh, sigmoid, relu, leaky_relu, softsign, "
-                      "hardtanh), Gated, FiLM, WaveNet, TCNBlock and nn.Sequential of them")
+                      f"{', '.join(t.modules for t in LAYER_TYPES.values())} and nn.Sequential of them")
 
 
 def _flatten(names, modules, paths):

@@ -14,7 +14,8 @@ PyTorch twin in modules.py:
   load        (layer object, width, n_controls) -> (twin module, output
               width), or FormatError;
   examples    small effects of the type that tests/python/test_parity.py runs
-              against the core: {name: (build() -> Effect, control events)}.
+              against the core: {name: (build() -> Effect, control events)};
+  modules     the modules it exports, as the exporter's refusal lists them.
 
 exporter.py and loader.py walk the graph and dispatch on this table.
 """
@@ -510,27 +511,28 @@ def _tcn_examples():
 
 # ---- the table ---------------------------------------------------------------------------------
 
-LayerType = namedtuple("LayerType", "name width_key recurrent madds field matches export load examples")
+LayerType = namedtuple("LayerType", "name width_key recurrent madds field matches export load examples modules")
 
 LAYER_TYPES = {t.name: t for t in (
     LayerType("linear", "in", False, lambda l: l["out"] * l["in"], _none,
-              lambda m: isinstance(m, nn.Linear), _linear_export, _linear_load, _linear_examples),
+              lambda m: isinstance(m, nn.Linear), _linear_export, _linear_load, _linear_examples, "Linear"),
     LayerType("conv1d", "in", False, lambda l: l["out"] * l["in"] * l["kernel"], _conv_field,
-              lambda m: isinstance(m, nn.Conv1d), _conv1d_export, _conv1d_load, _conv1d_examples),
+              lambda m: isinstance(m, nn.Conv1d), _conv1d_export, _conv1d_load, _conv1d_examples, "Conv1d"),
     LayerType("lstm", "in", True, _recurrent_madds(4), _none,
-              lambda m: isinstance(m, nn.LSTM), _recurrent_export("lstm"), _recurrent_load(LSTM), _lstm_examples),
+              lambda m: isinstance(m, nn.LSTM), _recurrent_export("lstm"), _recurrent_load(LSTM), _lstm_examples, "LSTM"),
     LayerType("gru", "in", True, _recurrent_madds(3), _none,
-              lambda m: isinstance(m, nn.GRU), _recurrent_export("gru"), _recurrent_load(GRU), _gru_examples),
+              lambda m: isinstance(m, nn.GRU), _recurrent_export("gru"), _recurrent_load(GRU), _gru_examples, "GRU"),
     LayerType("activation", "channels", False, _none, _none,
-              lambda m: _activation_of(m) is not None, _activation_export, _activation_load, _activation_examples),
+              lambda m: _activation_of(m) is not None, _activation_export, _activation_load, _activation_examples,
+              "activations (tanh, sigmoid, relu, leaky_relu, softsign, hardtanh)"),
     LayerType("gated", "channels", False, _none, _none,
-              lambda m: isinstance(m, Gated), _gated_export, _gated_load, _gated_examples),
+              lambda m: isinstance(m, Gated), _gated_export, _gated_load, _gated_examples, "Gated"),
     LayerType("film", "channels", False, _none, _none,
-              lambda m: isinstance(m, FiLM), _film_export, _film_load, _film_examples),
+              lambda m: isinstance(m, FiLM), _film_export, _film_load, _film_examples, "FiLM"),
     LayerType("wavenet", "in", False, _wavenet_madds, lambda l: sum((l["kernel"] - 1) * d for d in l["dilations"]),
-              lambda m: isinstance(m, WaveNet), _wavenet_export, _wavenet_load, _wavenet_examples),
+              lambda m: isinstance(m, WaveNet), _wavenet_export, _wavenet_load, _wavenet_examples, "WaveNet"),
     LayerType("tcn", "in", False, _tcn_madds, _conv_field,
-              lambda m: isinstance(m, TCNBlock), _tcn_export, _tcn_load, _tcn_examples),
+              lambda m: isinstance(m, TCNBlock), _tcn_export, _tcn_load, _tcn_examples, "TCNBlock"),
 )}
 
 
