@@ -535,35 +535,37 @@ void write_optional(Writer& w, const char* key, const std::string& v) {
   if (!v.empty()) write_string(w, key, v);
 }
 
-}  // namespace
+// ---- the steps of `earshot site` -------------------------------------------
 
-int cmd_site(const std::vector<std::string>& argv) {
-  const Args a = parse_args(argv, {{"--help", false},
-                                   {"--out", true},
-                                   {"--assets", true},
-                                   {"--wasm-simd", true},
-                                   {"--wasm-scalar", true},
-                                   {"--force", false},
-                                   {"--allow-root", true},
-                                   {"--quiet", false}});
-  if (a.has("--help")) {
-    std::fputs(kHelp, stdout);
-    return kExitOk;
-  }
+struct SiteOptions {
+  std::string config_path;
+  fs::path config_dir;
+  std::string out;
+  bool force = false, quiet = false;
+};
+
+SiteOptions parse_site(const Args& a) {
   if (a.positional.size() != 1)
     throw UsageError(a.positional.empty() ? "missing the site CONFIG file"
                                           : "expected one CONFIG file, got " + std::to_string(a.positional.size()) +
                                                 " arguments");
   const std::string* out_opt = a.last("--out");
   if (!out_opt || out_opt->empty()) throw UsageError("missing --out DIR (where to write the site)");
-  const std::string config_path = a.positional[0];
-  const fs::path config_dir = fs::path(config_path).parent_path().empty() ? fs::path(".") : fs::path(config_path).parent_path();
-  Config cfg = parse_config(config_path);
-  const Where where{config_path, cfg.source};
-  // Every path in the config resolves inside its folder (site_listening.hpp, confine).
+  SiteOptions o;
+  o.config_path = a.positional[0];
+  o.config_dir = fs::path(o.config_path).parent_path().empty() ? fs::path(".") : fs::path(o.config_path).parent_path();
+  o.out = *out_opt;
+  o.force = a.has("--force");
+  o.quiet = a.has("--quiet");
+  return o;
+}
+
+// The folders every config path must resolve inside: the config's own and each
+// --allow-root; checks every path the config names (site_listening.hpp, confine).
+std::vector<fs::path> confine_config(const Args& a, const SiteOptions& o, const Config& cfg) {
   std::error_code root_ec;
-  const fs::path root = fs::canonical(config_dir, root_ec);
-  if (root_ec) throw InputError("cannot resolve the folder of '" + config_path + "': " + root_ec.message());
+  const fs::path root = fs::canonical(o.config_dir, root_ec);
+  if (root_ec) throw InputError("cannot resolve the folder of '" + o.config_path + "': " + root_ec.message());
   std::vector<fs::path> roots = {root};
   for (const std::string& r : a.all("--allow-root")) {
     std::error_code ec;
@@ -571,42 +573,79 @@ int cmd_site(const std::vector<std::string>& argv) {
     if (ec || !fs::is_directory(p, ec)) throw UsageError("--allow-root '" + r + "' is not an existing folder");
     roots.push_back(p);
   }
-  for (const EffectEntry& fx : cfg.effects) confine(config_path, fx.field + ".file", roots, config_dir, fx.file);
-  for (const ClipEntry& cl : cfg.clips) confine(config_path, cl.field + ".file", roots, config_dir, cl.file);
-  if (!cfg.listening.empty()) confine(config_path, "listening", roots, config_dir, cfg.listening);
+  for (const EffectEntry& fx : cfg.effects) confine(o.config_path, fx.field + ".file", roots, o.config_dir, fx.file);
+  for (const ClipEntry& cl : cfg.clips) confine(o.config_path, cl.field + ".file", roots, o.config_dir, cl.file);
+  if (!cfg.listening.empty()) confine(o.config_path, "listening", roots, o.config_dir, cfg.listening);
+  return roots;
+}
 
-  fs::path assets;
+// The page's sources: the tree holding web/ and worklet/, and the two builds.
+struct PageSources {
+  fs::path assets, wasm_simd_path, wasm_scalar_path;
+  std::vector<unsigned char> wasm_simd, wasm_scalar;
+};
+
+PageSources page_sources(const Args& a, const fs::path& config_dir) {
+  PageSources s;
   if (const std::string* p = a.last("--assets")) {
-    assets = *p;
-    if (!is_assets_root(assets))
+    s.assets = *p;
+    if (!is_assets_root(s.assets))
       throw UsageError("--assets '" + *p + "' does not hold web/index.html and worklet/loader.js");
   } else {
-    assets = find_assets(config_dir);
+    s.assets = find_assets(config_dir);
   }
-  const fs::path wasm_simd_path =
-      a.last("--wasm-simd") ? fs::path(*a.last("--wasm-simd")) : assets / "build/wasm-simd/earshot-simd.wasm";
-  const fs::path wasm_scalar_path =
-      a.last("--wasm-scalar") ? fs::path(*a.last("--wasm-scalar")) : assets / "build/wasm-scalar/earshot-scalar.wasm";
-  const std::vector<unsigned char> wasm_simd = read_wasm(wasm_simd_path, "--wasm-simd", "wasm-simd");
-  const std::vector<unsigned char> wasm_scalar = read_wasm(wasm_scalar_path, "--wasm-scalar", "wasm-scalar");
+  s.wasm_simd_path =
+      a.last("--wasm-simd") ? fs::path(*a.last("--wasm-simd")) : s.assets / "build/wasm-simd/earshot-simd.wasm";
+  s.wasm_scalar_path =
+      a.last("--wasm-scalar") ? fs::path(*a.last("--wasm-scalar")) : s.assets / "build/wasm-scalar/earshot-scalar.wasm";
+  s.wasm_simd = read_wasm(s.wasm_simd_path, "--wasm-simd", "wasm-simd");
+  s.wasm_scalar = read_wasm(s.wasm_scalar_path, "--wasm-scalar", "wasm-scalar");
   for (const char* f : kWorkletFiles) {
     std::error_code ec;
-    if (!fs::is_regular_file(assets / "worklet" / f, ec))
-      throw InputError("missing '" + (assets / "worklet" / f).string() + "' in the source tree");
+    if (!fs::is_regular_file(s.assets / "worklet" / f, ec))
+      throw InputError("missing '" + (s.assets / "worklet" / f).string() + "' in the source tree");
   }
+  return s;
+}
 
-  // Effects: load each through the C ABI (the loader's message names any
-  // fault), check the page defaults, compute the reference. All before DIR is touched.
-  struct Loaded {
-    std::vector<unsigned char> bytes;
-    rapidjson::Document info;
-    Reference ref;
-  };
-  std::vector<Loaded> loaded(cfg.effects.size());
+struct LoadedEffect {
+  std::vector<unsigned char> bytes;
+  rapidjson::Document info;
+  Reference ref;
+};
+
+// The page defaults of one effect, set on a probe stream: the core refuses
+// an unknown name or a value out of range, and the message says which.
+void check_defaults(const Where& where, const EffectEntry& fx, Stream& probe, const rapidjson::Document& info) {
+  for (const auto& c : fx.controls) {
+    const int index = earshot_control_index(probe.get(), c.first.c_str());
+    const std::string field = fx.field + ".controls." + c.first;
+    const rapidjson::Value& list = info["effect"]["controls"];
+    if (index < 0) {
+      std::string names;
+      for (const auto& d : list.GetArray()) names += (names.empty() ? "" : ", ") + json_string(d, "name");
+      where.fail(field, "the effect '" + fx.file + "' has no control named '" + c.first + "' (" +
+                            (names.empty() ? std::string("it has no controls") : "its controls: " + names) + ")");
+    }
+    const int st = earshot_set_control(probe.get(), index, float(c.second));
+    if (st != EARSHOT_OK) {
+      const rapidjson::Value& d = list[rapidjson::SizeType(index)];
+      char buf[200];
+      std::snprintf(buf, sizeof buf, "%.10g is refused: %s (%s takes %.10g .. %.10g)", c.second,
+                    earshot_status_text(st), c.first.c_str(), json_number(d, "min"), json_number(d, "max"));
+      where.fail(field, buf);
+    }
+  }
+}
+
+// Effects: load each through the C ABI (the loader's message names any
+// fault), check the page defaults, compute the reference. All before DIR is touched.
+std::vector<LoadedEffect> load_effects(Config& cfg, const fs::path& config_dir, const Where& where) {
+  std::vector<LoadedEffect> loaded(cfg.effects.size());
   for (size_t i = 0; i < cfg.effects.size(); ++i) {
     EffectEntry& fx = cfg.effects[i];
     const fs::path file = (config_dir / fx.file).lexically_normal();
-    Loaded& L = loaded[i];
+    LoadedEffect& L = loaded[i];
     try {
       L.bytes = read_effect_file(file.string());
     } catch (const InputError& e) {
@@ -620,25 +659,7 @@ int cmd_site(const std::vector<std::string>& argv) {
     }
     L.info = probe->info();
     const double model_rate = json_number(L.info, "model_rate", 48000);
-    for (const auto& c : fx.controls) {
-      const int index = earshot_control_index(probe->get(), c.first.c_str());
-      const std::string field = fx.field + ".controls." + c.first;
-      const rapidjson::Value& list = L.info["effect"]["controls"];
-      if (index < 0) {
-        std::string names;
-        for (const auto& d : list.GetArray()) names += (names.empty() ? "" : ", ") + json_string(d, "name");
-        where.fail(field, "the effect '" + fx.file + "' has no control named '" + c.first + "' (" +
-                              (names.empty() ? std::string("it has no controls") : "its controls: " + names) + ")");
-      }
-      const int st = earshot_set_control(probe->get(), index, float(c.second));
-      if (st != EARSHOT_OK) {
-        const rapidjson::Value& d = list[rapidjson::SizeType(index)];
-        char buf[200];
-        std::snprintf(buf, sizeof buf, "%.10g is refused: %s (%s takes %.10g .. %.10g)", c.second,
-                      earshot_status_text(st), c.first.c_str(), json_number(d, "min"), json_number(d, "max"));
-        where.fail(field, buf);
-      }
-    }
+    check_defaults(where, fx, *probe, L.info);
     probe.reset();
     if (fx.name.empty()) fx.name = json_string(L.info, "title", fx.id);
     L.ref = reference_of(L.bytes, model_rate, file.string());
@@ -646,13 +667,17 @@ int cmd_site(const std::vector<std::string>& argv) {
       std::fprintf(stderr, "earshot site: warning: %s: %u block(s) of the test signal gave non-finite output\n",
                    terminal_text(fx.file).c_str(), L.ref.nonfinite);
   }
+  return loaded;
+}
 
-  // Clips: readable, mono or stereo, WAV or FLAC (both the page and browsers read them).
-  struct ClipInfo {
-    int rate = 0, channels = 0;
-    int64_t frames = 0;
-    std::string ext;
-  };
+struct ClipInfo {
+  int rate = 0, channels = 0;
+  int64_t frames = 0;
+  std::string ext;
+};
+
+// Clips: readable, mono or stereo, WAV or FLAC (both the page and browsers read them).
+std::vector<ClipInfo> check_clips(const Config& cfg, const fs::path& config_dir, const Where& where) {
   std::vector<ClipInfo> clip_info(cfg.clips.size());
   for (size_t i = 0; i < cfg.clips.size(); ++i) {
     const ClipEntry& cl = cfg.clips[i];
@@ -678,50 +703,34 @@ int cmd_site(const std::vector<std::string>& argv) {
                                          " Hz; " + stream_rates_text());
     clip_info[i] = {info.samplerate, info.channels, int64_t(info.frames), ext};
   }
+  return clip_info;
+}
 
-  // The listening tests: checked against the effects and clips above, every
-  // audio file read (site_listening.hpp).
+// The listening tests: checked against the effects and clips above, every
+// audio file read (site_listening.hpp).
+ListeningPlan plan_site_listening(const Config& cfg, const std::vector<LoadedEffect>& loaded,
+                                  const std::vector<ClipInfo>& clip_info, const fs::path& config_dir,
+                                  const std::vector<fs::path>& roots, const Where& where) {
   ListeningPlan listening;
-  if (!cfg.listening.empty()) {
-    const fs::path def = (config_dir / cfg.listening).lexically_normal();
-    std::error_code ec;
-    if (!fs::is_regular_file(def, ec))
-      where.fail("listening", "no listening test definition at '" + def.string() + "' (the path is relative to the config's folder)");
-    std::vector<ListeningEffect> fx(cfg.effects.size());
-    for (size_t i = 0; i < cfg.effects.size(); ++i) {
-      fx[i].id = cfg.effects[i].id;
-      for (const auto& d : loaded[i].info["effect"]["controls"].GetArray())
-        fx[i].controls.push_back({json_string(d, "name"), json_number(d, "min"), json_number(d, "max")});
-    }
-    std::vector<ListeningClip> bundled(cfg.clips.size());
-    for (size_t i = 0; i < cfg.clips.size(); ++i)
-      bundled[i] = {(config_dir / cfg.clips[i].file).lexically_normal(), "clips/" + cfg.clips[i].id + clip_info[i].ext};
-    listening = plan_listening(def, fx, bundled, roots);
+  if (cfg.listening.empty()) return listening;
+  const fs::path def = (config_dir / cfg.listening).lexically_normal();
+  std::error_code ec;
+  if (!fs::is_regular_file(def, ec))
+    where.fail("listening", "no listening test definition at '" + def.string() + "' (the path is relative to the config's folder)");
+  std::vector<ListeningEffect> fx(cfg.effects.size());
+  for (size_t i = 0; i < cfg.effects.size(); ++i) {
+    fx[i].id = cfg.effects[i].id;
+    for (const auto& d : loaded[i].info["effect"]["controls"].GetArray())
+      fx[i].controls.push_back({json_string(d, "name"), json_number(d, "min"), json_number(d, "max")});
   }
+  std::vector<ListeningClip> bundled(cfg.clips.size());
+  for (size_t i = 0; i < cfg.clips.size(); ++i)
+    bundled[i] = {(config_dir / cfg.clips[i].file).lexically_normal(), "clips/" + cfg.clips[i].id + clip_info[i].ext};
+  return plan_listening(def, fx, bundled, roots);
+}
 
-  // Write: into a fresh folder beside DIR, swapped in at the end (SiteFolder).
-  fs::path out = fs::path(*out_opt).lexically_normal();
-  if (!out.has_filename() && out.has_relative_path()) out = out.parent_path();  // "dir/" names "dir"
-  std::vector<std::pair<std::string, fs::path>> inputs = {{"config file", config_path}, {"config folder", root},
-                                                          {"page source", assets / "web"},
-                                                          {"worklet source", assets / "worklet"}};
-  inputs.emplace_back("WebAssembly build", wasm_simd_path);
-  inputs.emplace_back("WebAssembly build", wasm_scalar_path);
-  for (const EffectEntry& fx : cfg.effects) inputs.emplace_back("effect", config_dir / fx.file);
-  for (const ClipEntry& cl : cfg.clips) inputs.emplace_back("clip", config_dir / cl.file);
-  for (const auto& c : listening.copies) inputs.emplace_back("listening test file", c.first);
-  for (size_t i = 1; i < roots.size(); ++i) inputs.emplace_back("--allow-root folder", roots[i]);
-  SiteFolder folder(out, a.has("--force"), inputs);
-  SiteFiles files(folder.build());
-  const size_t page_files = copy_page(assets / "web", files);
-  for (const char* f : kWorkletFiles) files.copy(assets / "worklet" / f, std::string("worklet/") + f, "worklet file");
-  files.write("wasm/earshot-simd.wasm", wasm_simd.data(), wasm_simd.size());
-  files.write("wasm/earshot-scalar.wasm", wasm_scalar.data(), wasm_scalar.size());
-
-  rapidjson::StringBuffer sb;
-  Writer w(sb);
-  w.SetIndent(' ', 1);
-  w.StartObject();
+// site.json's opening fields: title, credits, the builds and the test signal.
+void write_site_head(Writer& w, const Config& cfg) {
   write_string(w, "format", "earshot-site");
   w.Key("version");
   w.Int(1);
@@ -746,108 +755,138 @@ int cmd_site(const std::vector<std::string>& argv) {
   w.Double(kSignalSeconds);
   write_string(w, "hash", "fnv1a64-float32le");
   w.EndObject();
+}
 
+// One effect: its file and native reference into the site, its entry in site.json.
+void write_effect(Writer& w, SiteFiles& files, const EffectEntry& fx, const LoadedEffect& L) {
+  const std::string site_file = "effects/" + fx.id + ".nfx";
+  const std::string ref_file = "reference/" + fx.id + ".f32";
+  files.write(site_file, L.bytes.data(), L.bytes.size());
+  // reference/<id>.f32: the native output, float32 little-endian (x86 and
+  // every WebAssembly engine are little-endian).
+  files.write(ref_file, L.ref.out.data(), L.ref.out.size() * 4);
+
+  w.StartObject();
+  write_string(w, "id", fx.id);
+  write_string(w, "name", fx.name);
+  write_optional(w, "description", fx.description);
+  write_string(w, "file", site_file);
+  w.Key("bytes");
+  w.Uint64(L.bytes.size());
+  write_string(w, "title", json_string(L.info, "title"));
+  w.Key("model_rate");
+  w.Double(L.ref.rate);
+  w.Key("defaults");
+  w.StartObject();
+  for (const auto& c : fx.controls) {
+    w.Key(c.first.c_str());
+    w.Double(c.second);
+  }
+  w.EndObject();
+  w.Key("reference");
+  w.StartObject();
+  write_string(w, "variant", "native scalar");
+  w.Key("rate");
+  w.Double(L.ref.rate);
+  w.Key("seconds");
+  w.Double(kSignalSeconds);
+  w.Key("samples");
+  w.Uint64(L.ref.samples);
+  write_string(w, "signal_hash", hex64(L.ref.signal_hash));
+  write_string(w, "output_hash", hex64(L.ref.output_hash));
+  w.Key("nonfinite_blocks");
+  w.Uint(L.ref.nonfinite);
+  write_string(w, "data", ref_file);
+  w.Key("excerpt");
+  w.StartArray();
+  for (int k = 0; k < kExcerpt && size_t(k) < L.ref.out.size(); ++k) w.Double(double(L.ref.out[size_t(k)]));
+  w.EndArray();
+  w.Key("excerpt_bits");
+  w.StartArray();
+  for (int k = 0; k < kExcerpt && size_t(k) < L.ref.out.size(); ++k) {
+    const std::string b = bits_hex(L.ref.out[size_t(k)]);
+    w.String(b.c_str());
+  }
+  w.EndArray();
+  w.EndObject();
+  w.EndObject();
+}
+
+// One clip: copied into the site, its entry in site.json.
+void write_clip(Writer& w, SiteFiles& files, const ClipEntry& cl, const ClipInfo& ci, const fs::path& config_dir) {
+  const std::string site_file = "clips/" + cl.id + ci.ext;
+  files.copy((config_dir / cl.file).lexically_normal(), site_file, "clip");
+  w.StartObject();
+  write_string(w, "id", cl.id);
+  write_string(w, "name", cl.name);
+  write_optional(w, "description", cl.description);
+  write_string(w, "file", site_file);
+  w.Key("rate");
+  w.Int(ci.rate);
+  w.Key("channels");
+  w.Int(ci.channels);
+  w.Key("seconds");
+  w.Double(double(ci.frames) / ci.rate);
+  w.EndObject();
+}
+
+// The listening tests: their definition and files into the site, the summary in site.json.
+void write_listening(Writer& w, SiteFiles& files, const ListeningPlan& listening) {
+  files.write("listening.json", listening.json.data(), listening.json.size());
+  for (const auto& c : listening.copies) files.copy(c.first, c.second, "listening test file");
+  w.Key("listening");
+  w.StartObject();
+  write_string(w, "file", "listening.json");
+  write_string(w, "page", "listen.html");
+  write_string(w, "title", listening.title);
+  w.Key("tests");
+  w.StartArray();
+  for (const auto& t : listening.tests) {
+    w.StartObject();
+    write_string(w, "id", t.id);
+    write_string(w, "type", t.type);
+    write_string(w, "title", t.title);
+    w.EndObject();
+  }
+  w.EndArray();
+  w.EndObject();
+}
+
+// Everything checked: the site is written into a fresh folder beside DIR and
+// swapped in at the end (SiteFolder). Returns the number of page files.
+size_t write_site(const fs::path& out, const SiteOptions& o, const Config& cfg, const PageSources& src,
+                  const std::vector<fs::path>& roots, const std::vector<LoadedEffect>& loaded,
+                  const std::vector<ClipInfo>& clip_info, const ListeningPlan& listening) {
+  std::vector<std::pair<std::string, fs::path>> inputs = {{"config file", o.config_path}, {"config folder", roots[0]},
+                                                          {"page source", src.assets / "web"},
+                                                          {"worklet source", src.assets / "worklet"}};
+  inputs.emplace_back("WebAssembly build", src.wasm_simd_path);
+  inputs.emplace_back("WebAssembly build", src.wasm_scalar_path);
+  for (const EffectEntry& fx : cfg.effects) inputs.emplace_back("effect", o.config_dir / fx.file);
+  for (const ClipEntry& cl : cfg.clips) inputs.emplace_back("clip", o.config_dir / cl.file);
+  for (const auto& c : listening.copies) inputs.emplace_back("listening test file", c.first);
+  for (size_t i = 1; i < roots.size(); ++i) inputs.emplace_back("--allow-root folder", roots[i]);
+  SiteFolder folder(out, o.force, inputs);
+  SiteFiles files(folder.build());
+  const size_t page_files = copy_page(src.assets / "web", files);
+  for (const char* f : kWorkletFiles) files.copy(src.assets / "worklet" / f, std::string("worklet/") + f, "worklet file");
+  files.write("wasm/earshot-simd.wasm", src.wasm_simd.data(), src.wasm_simd.size());
+  files.write("wasm/earshot-scalar.wasm", src.wasm_scalar.data(), src.wasm_scalar.size());
+
+  rapidjson::StringBuffer sb;
+  Writer w(sb);
+  w.SetIndent(' ', 1);
+  w.StartObject();
+  write_site_head(w, cfg);
   w.Key("effects");
   w.StartArray();
-  for (size_t i = 0; i < cfg.effects.size(); ++i) {
-    const EffectEntry& fx = cfg.effects[i];
-    const Loaded& L = loaded[i];
-    const std::string site_file = "effects/" + fx.id + ".nfx";
-    const std::string ref_file = "reference/" + fx.id + ".f32";
-    files.write(site_file, L.bytes.data(), L.bytes.size());
-    // reference/<id>.f32: the native output, float32 little-endian (x86 and
-    // every WebAssembly engine are little-endian).
-    files.write(ref_file, L.ref.out.data(), L.ref.out.size() * 4);
-
-    w.StartObject();
-    write_string(w, "id", fx.id);
-    write_string(w, "name", fx.name);
-    write_optional(w, "description", fx.description);
-    write_string(w, "file", site_file);
-    w.Key("bytes");
-    w.Uint64(L.bytes.size());
-    write_string(w, "title", json_string(L.info, "title"));
-    w.Key("model_rate");
-    w.Double(L.ref.rate);
-    w.Key("defaults");
-    w.StartObject();
-    for (const auto& c : fx.controls) {
-      w.Key(c.first.c_str());
-      w.Double(c.second);
-    }
-    w.EndObject();
-    w.Key("reference");
-    w.StartObject();
-    write_string(w, "variant", "native scalar");
-    w.Key("rate");
-    w.Double(L.ref.rate);
-    w.Key("seconds");
-    w.Double(kSignalSeconds);
-    w.Key("samples");
-    w.Uint64(L.ref.samples);
-    write_string(w, "signal_hash", hex64(L.ref.signal_hash));
-    write_string(w, "output_hash", hex64(L.ref.output_hash));
-    w.Key("nonfinite_blocks");
-    w.Uint(L.ref.nonfinite);
-    write_string(w, "data", ref_file);
-    w.Key("excerpt");
-    w.StartArray();
-    for (int k = 0; k < kExcerpt && size_t(k) < L.ref.out.size(); ++k) w.Double(double(L.ref.out[size_t(k)]));
-    w.EndArray();
-    w.Key("excerpt_bits");
-    w.StartArray();
-    for (int k = 0; k < kExcerpt && size_t(k) < L.ref.out.size(); ++k) {
-      const std::string b = bits_hex(L.ref.out[size_t(k)]);
-      w.String(b.c_str());
-    }
-    w.EndArray();
-    w.EndObject();
-    w.EndObject();
-  }
+  for (size_t i = 0; i < cfg.effects.size(); ++i) write_effect(w, files, cfg.effects[i], loaded[i]);
   w.EndArray();
-
   w.Key("clips");
   w.StartArray();
-  for (size_t i = 0; i < cfg.clips.size(); ++i) {
-    const ClipEntry& cl = cfg.clips[i];
-    const ClipInfo& ci = clip_info[i];
-    const std::string site_file = "clips/" + cl.id + ci.ext;
-    files.copy((config_dir / cl.file).lexically_normal(), site_file, "clip");
-    w.StartObject();
-    write_string(w, "id", cl.id);
-    write_string(w, "name", cl.name);
-    write_optional(w, "description", cl.description);
-    write_string(w, "file", site_file);
-    w.Key("rate");
-    w.Int(ci.rate);
-    w.Key("channels");
-    w.Int(ci.channels);
-    w.Key("seconds");
-    w.Double(double(ci.frames) / ci.rate);
-    w.EndObject();
-  }
+  for (size_t i = 0; i < cfg.clips.size(); ++i) write_clip(w, files, cfg.clips[i], clip_info[i], o.config_dir);
   w.EndArray();
-
-  if (!cfg.listening.empty()) {
-    files.write("listening.json", listening.json.data(), listening.json.size());
-    for (const auto& c : listening.copies) files.copy(c.first, c.second, "listening test file");
-    w.Key("listening");
-    w.StartObject();
-    write_string(w, "file", "listening.json");
-    write_string(w, "page", "listen.html");
-    write_string(w, "title", listening.title);
-    w.Key("tests");
-    w.StartArray();
-    for (const auto& t : listening.tests) {
-      w.StartObject();
-      write_string(w, "id", t.id);
-      write_string(w, "type", t.type);
-      write_string(w, "title", t.title);
-      w.EndObject();
-    }
-    w.EndArray();
-    w.EndObject();
-  }
+  if (!cfg.listening.empty()) write_listening(w, files, listening);
   w.EndObject();
 
   std::string json = sb.GetString();
@@ -857,23 +896,55 @@ int cmd_site(const std::vector<std::string>& argv) {
   for (const std::string& f : files.written()) marker += f + "\n";
   files.write(kMarker, marker.data(), marker.size());
   folder.commit();
+  return page_files;
+}
 
-  if (!a.has("--quiet")) {
-    std::error_code ec;
-    uintmax_t total = 0;
-    for (auto it = fs::recursive_directory_iterator(out, ec); !ec && it != fs::recursive_directory_iterator();
-         it.increment(ec))
-      if (it->is_regular_file()) total += it->file_size();
-    std::printf("wrote site %s: %zu effect(s), %zu clip(s), %zu page file(s), %s kB\n", out.string().c_str(),
-                cfg.effects.size(), cfg.clips.size(), page_files, format_count(int64_t(total / 1024)).c_str());
-    if (!cfg.listening.empty())
-      std::printf("  listening tests: %zu in listening.json (%zu file(s) copied to listening/), page listen.html\n",
-                  listening.tests.size(), listening.copies.size());
-    for (size_t i = 0; i < cfg.effects.size(); ++i)
-      std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", terminal_text(cfg.effects[i].id).c_str(), loaded[i].ref.rate,
-                  hex64(loaded[i].ref.output_hash).c_str(), hex64(loaded[i].ref.signal_hash).c_str());
-    std::printf("serve it: tools/serve.sh %s\n", out.string().c_str());
+void print_site(const fs::path& out, const Config& cfg, size_t page_files, const std::vector<LoadedEffect>& loaded,
+                const ListeningPlan& listening) {
+  std::error_code ec;
+  uintmax_t total = 0;
+  for (auto it = fs::recursive_directory_iterator(out, ec); !ec && it != fs::recursive_directory_iterator();
+       it.increment(ec))
+    if (it->is_regular_file()) total += it->file_size();
+  std::printf("wrote site %s: %zu effect(s), %zu clip(s), %zu page file(s), %s kB\n", out.string().c_str(),
+              cfg.effects.size(), cfg.clips.size(), page_files, format_count(int64_t(total / 1024)).c_str());
+  if (!cfg.listening.empty())
+    std::printf("  listening tests: %zu in listening.json (%zu file(s) copied to listening/), page listen.html\n",
+                listening.tests.size(), listening.copies.size());
+  for (size_t i = 0; i < cfg.effects.size(); ++i)
+    std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", terminal_text(cfg.effects[i].id).c_str(),
+                loaded[i].ref.rate, hex64(loaded[i].ref.output_hash).c_str(), hex64(loaded[i].ref.signal_hash).c_str());
+  std::printf("serve it: tools/serve.sh %s\n", out.string().c_str());
+}
+
+}  // namespace
+
+int cmd_site(const std::vector<std::string>& argv) {
+  const Args a = parse_args(argv, {{"--help", false},
+                                   {"--out", true},
+                                   {"--assets", true},
+                                   {"--wasm-simd", true},
+                                   {"--wasm-scalar", true},
+                                   {"--force", false},
+                                   {"--allow-root", true},
+                                   {"--quiet", false}});
+  if (a.has("--help")) {
+    std::fputs(kHelp, stdout);
+    return kExitOk;
   }
+  const SiteOptions o = parse_site(a);
+  Config cfg = parse_config(o.config_path);
+  const Where where{o.config_path, cfg.source};
+  const std::vector<fs::path> roots = confine_config(a, o, cfg);
+  const PageSources src = page_sources(a, o.config_dir);
+  const std::vector<LoadedEffect> loaded = load_effects(cfg, o.config_dir, where);
+  const std::vector<ClipInfo> clip_info = check_clips(cfg, o.config_dir, where);
+  const ListeningPlan listening = plan_site_listening(cfg, loaded, clip_info, o.config_dir, roots, where);
+
+  fs::path out = fs::path(o.out).lexically_normal();
+  if (!out.has_filename() && out.has_relative_path()) out = out.parent_path();  // "dir/" names "dir"
+  const size_t page_files = write_site(out, o, cfg, src, roots, loaded, clip_info, listening);
+  if (!o.quiet) print_site(out, cfg, page_files, loaded, listening);
   return kExitOk;
 }
 
