@@ -156,6 +156,60 @@ struct Config {
   std::string listening;  // the listening test definition, relative to the config's folder
 };
 
+// One entry of "effects": file, id (unique, from the file name by default),
+// name, description and the page defaults of its controls.
+EffectEntry parse_effect(const Where& w, const rapidjson::Value& e, rapidjson::SizeType i, std::set<std::string>& ids) {
+  EffectEntry fx;
+  fx.field = "effects[" + std::to_string(i) + "]";
+  if (!e.IsObject()) w.fail(fx.field, std::string("must be an object, got ") + type_name(e));
+  only_fields(w, fx.field, e, {"file", "id", "name", "description", "controls"});
+  fx.file = text_field(w, fx.field + ".file", member(e, "file"), true, 1000, 1);
+  fx.name = text_field(w, fx.field + ".name", member(e, "name"), false, 200);
+  fx.description = text_field(w, fx.field + ".description", member(e, "description"), false, 4000);
+  if (const rapidjson::Value* v = member(e, "id")) {
+    fx.id = text_field(w, fx.field + ".id", v, true, 64, 1);
+    if (!id_ok(fx.id)) w.fail(fx.field + ".id", "'" + fx.id + "' may hold only letters, digits, '-' and '_'");
+  } else {
+    fx.id = id_from(fx.file);
+  }
+  if (!ids.insert(fx.id).second)
+    w.fail(fx.field + ".id", "'" + fx.id + "' is used by an earlier effect; give each effect its own \"id\"");
+  if (const rapidjson::Value* v = member(e, "controls")) {
+    if (!v->IsObject()) w.fail(fx.field + ".controls", std::string("must be an object of name: value, got ") + type_name(*v));
+    for (auto it = v->MemberBegin(); it != v->MemberEnd(); ++it) {
+      const std::string name = it->name.GetString();
+      if (!it->value.IsNumber())
+        w.fail(fx.field + ".controls." + name, std::string("must be a number, got ") + type_name(it->value));
+      fx.controls.emplace_back(name, it->value.GetDouble());
+    }
+  }
+  return fx;
+}
+
+// "clips": each a WAV or FLAC file with a name and description; ids from the
+// file names, made unique.
+std::vector<ClipEntry> parse_clips(const Where& w, const rapidjson::Value& clips) {
+  std::vector<ClipEntry> out;
+  if (!clips.IsArray()) w.fail("clips", std::string("must be an array, got ") + type_name(clips));
+  if (clips.Size() > 64) w.fail("clips", "has " + std::to_string(clips.Size()) + " entries, over the limit of 64");
+  std::set<std::string> clip_ids;
+  for (rapidjson::SizeType i = 0; i < clips.Size(); ++i) {
+    const rapidjson::Value& e = clips[i];
+    ClipEntry cl;
+    cl.field = "clips[" + std::to_string(i) + "]";
+    if (!e.IsObject()) w.fail(cl.field, std::string("must be an object, got ") + type_name(e));
+    only_fields(w, cl.field, e, {"file", "name", "description"});
+    cl.file = text_field(w, cl.field + ".file", member(e, "file"), true, 1000, 1);
+    cl.name = text_field(w, cl.field + ".name", member(e, "name"), false, 200);
+    cl.description = text_field(w, cl.field + ".description", member(e, "description"), false, 4000);
+    if (cl.name.empty()) cl.name = fs::path(cl.file).filename().string();
+    cl.id = id_from(cl.file);
+    for (int k = 2; !clip_ids.insert(cl.id).second; ++k) cl.id = id_from(cl.file) + "-" + std::to_string(k);
+    out.push_back(std::move(cl));
+  }
+  return out;
+}
+
 Config parse_config(const std::string& path) {
   Where w{path, nullptr};
   const std::string text = read_text_file(path, "site config");
@@ -202,54 +256,9 @@ Config parse_config(const std::string& path) {
   if (effects->Empty()) w.fail("effects", "is empty; list at least one effect");
   if (effects->Size() > 64) w.fail("effects", "has " + std::to_string(effects->Size()) + " entries, over the limit of 64");
   std::set<std::string> ids;
-  for (rapidjson::SizeType i = 0; i < effects->Size(); ++i) {
-    const rapidjson::Value& e = (*effects)[i];
-    EffectEntry fx;
-    fx.field = "effects[" + std::to_string(i) + "]";
-    if (!e.IsObject()) w.fail(fx.field, std::string("must be an object, got ") + type_name(e));
-    only_fields(w, fx.field, e, {"file", "id", "name", "description", "controls"});
-    fx.file = text_field(w, fx.field + ".file", member(e, "file"), true, 1000, 1);
-    fx.name = text_field(w, fx.field + ".name", member(e, "name"), false, 200);
-    fx.description = text_field(w, fx.field + ".description", member(e, "description"), false, 4000);
-    if (const rapidjson::Value* v = member(e, "id")) {
-      fx.id = text_field(w, fx.field + ".id", v, true, 64, 1);
-      if (!id_ok(fx.id)) w.fail(fx.field + ".id", "'" + fx.id + "' may hold only letters, digits, '-' and '_'");
-    } else {
-      fx.id = id_from(fx.file);
-    }
-    if (!ids.insert(fx.id).second)
-      w.fail(fx.field + ".id", "'" + fx.id + "' is used by an earlier effect; give each effect its own \"id\"");
-    if (const rapidjson::Value* v = member(e, "controls")) {
-      if (!v->IsObject()) w.fail(fx.field + ".controls", std::string("must be an object of name: value, got ") + type_name(*v));
-      for (auto it = v->MemberBegin(); it != v->MemberEnd(); ++it) {
-        const std::string name = it->name.GetString();
-        if (!it->value.IsNumber())
-          w.fail(fx.field + ".controls." + name, std::string("must be a number, got ") + type_name(it->value));
-        fx.controls.emplace_back(name, it->value.GetDouble());
-      }
-    }
-    c.effects.push_back(std::move(fx));
-  }
+  for (rapidjson::SizeType i = 0; i < effects->Size(); ++i) c.effects.push_back(parse_effect(w, (*effects)[i], i, ids));
 
-  if (const rapidjson::Value* clips = member(root, "clips")) {
-    if (!clips->IsArray()) w.fail("clips", std::string("must be an array, got ") + type_name(*clips));
-    if (clips->Size() > 64) w.fail("clips", "has " + std::to_string(clips->Size()) + " entries, over the limit of 64");
-    std::set<std::string> clip_ids;
-    for (rapidjson::SizeType i = 0; i < clips->Size(); ++i) {
-      const rapidjson::Value& e = (*clips)[i];
-      ClipEntry cl;
-      cl.field = "clips[" + std::to_string(i) + "]";
-      if (!e.IsObject()) w.fail(cl.field, std::string("must be an object, got ") + type_name(e));
-      only_fields(w, cl.field, e, {"file", "name", "description"});
-      cl.file = text_field(w, cl.field + ".file", member(e, "file"), true, 1000, 1);
-      cl.name = text_field(w, cl.field + ".name", member(e, "name"), false, 200);
-      cl.description = text_field(w, cl.field + ".description", member(e, "description"), false, 4000);
-      if (cl.name.empty()) cl.name = fs::path(cl.file).filename().string();
-      cl.id = id_from(cl.file);
-      for (int k = 2; !clip_ids.insert(cl.id).second; ++k) cl.id = id_from(cl.file) + "-" + std::to_string(k);
-      c.clips.push_back(std::move(cl));
-    }
-  }
+  if (const rapidjson::Value* clips = member(root, "clips")) c.clips = parse_clips(w, *clips);
 
   // The listening test definition is checked once the effects and clips are
   // known (plan_listening).
