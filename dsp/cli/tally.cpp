@@ -199,19 +199,9 @@ std::string read_text(const std::string& path) {
   return ss.str();
 }
 
-Result load(const std::string& path) {
-  const std::string text = read_text(path);
-  // The shared reader (dsp/core/json_reader.hpp): iterative, depth and size
-  // capped, NUL and trailing text refused, UTF-8 validated.
-  auto parsed = std::make_shared<JsonDocument>();
-  const std::string error = json_read(path, text.data(), text.size(), *parsed);
-  if (!error.empty()) throw InputError(error);
-  const JsonDocument& D = *parsed;
-  const rapidjson::Document& doc = parsed->doc;
-  if (!doc.IsObject()) fail(D, "(top level)", "must be a JSON object, not " + type_name(doc));
-  Result r;
-  r.file = path;
-  r.doc = parsed;
+// format, version, test and participant.
+void load_header(const JsonDocument& D, Result& r) {
+  const rapidjson::Document& doc = D.doc;
   const std::string format = get_string(D, doc, "", "format");
   if (format != kFormat)
     fail(D, "format", quoted(format) + " is not an earshot results file (expected " + quoted(kFormat) + ")");
@@ -233,9 +223,12 @@ Result load(const std::string& path) {
   if (!seed.IsUint64() || seed.GetUint64() > 9007199254740991ull)
     fail(D, "participant.seed", "must be a whole number from 0 to 2^53 - 1");
   r.seed = seed.GetUint64();
+}
 
-  // Conditions.
-  const rapidjson::Value& conds = get_array(D, doc, "", "conditions");
+// Conditions: unique ids, at most one of each special role, and a MUSHRA
+// test's hidden reference.
+void load_conditions(const JsonDocument& D, Result& r) {
+  const rapidjson::Value& conds = get_array(D, D.doc, "", "conditions");
   if (conds.Empty()) fail(D, "conditions", "must list at least one condition");
   std::set<std::string> cond_ids;
   int n_ref = 0, n_low = 0, n_mid = 0;
@@ -257,12 +250,21 @@ Result load(const std::string& path) {
     fail(D, "conditions", "at most one condition may have each of the roles reference, anchor-low, anchor-mid");
   if (r.type == "mushra" && n_ref != 1)
     fail(D, "conditions", "a mushra test needs exactly one condition with role 'reference' (the hidden reference)");
+}
 
-  // Stimuli: one per (item, condition).
-  const rapidjson::Value& stims = get_array(D, doc, "", "stimuli");
-  if (stims.Empty()) fail(D, "stimuli", "must list at least one stimulus");
+// What the stimuli hold: each (item, condition) pair, and stimuli per item.
+struct StimulusIndex {
   std::set<std::pair<std::string, std::string>> have;
   std::map<std::string, int> per_item;
+};
+
+// Stimuli: one per (item, condition), each of a listed condition with a hash.
+StimulusIndex load_stimuli(const JsonDocument& D, Result& r) {
+  std::set<std::string> cond_ids;
+  for (const Condition& c : r.conditions) cond_ids.insert(c.id);
+  const rapidjson::Value& stims = get_array(D, D.doc, "", "stimuli");
+  if (stims.Empty()) fail(D, "stimuli", "must list at least one stimulus");
+  StimulusIndex ix;
   for (rapidjson::SizeType i = 0; i < stims.Size(); ++i) {
     const std::string p = "stimuli[" + std::to_string(i) + "]";
     if (!stims[i].IsObject()) fail(D, p, "must be an object, not " + type_name(stims[i]));
@@ -274,19 +276,76 @@ Result load(const std::string& path) {
       fail(D, p + ".condition", quoted(s.condition) + " is not one of the conditions");
     if (!valid_hash(s.hash))
       fail(D, p + ".hash", quoted(s.hash) + " is not ALGORITHM:HEX (e.g. fnv1a64-float32le:0123456789abcdef)");
-    if (!have.insert({s.item, s.condition}).second)
+    if (!ix.have.insert({s.item, s.condition}).second)
       fail(D, p, "item " + quoted(s.item) + " has condition " + quoted(s.condition) + " twice");
-    ++per_item[s.item];
+    ++ix.per_item[s.item];
     r.stimuli.push_back(s);
   }
   if (r.type == "mushra")
-    for (const auto& kv : per_item)
+    for (const auto& kv : ix.per_item)
       if (kv.second > kMaxMushraStimuli)
         fail(D, "stimuli", "item " + quoted(kv.first) + " has " + std::to_string(kv.second) +
                                   " stimuli; a MUSHRA trial has at most 12 (ITU-R BS.1534-3)");
+  return ix;
+}
 
-  // Trials.
-  const rapidjson::Value& trials = get_array(D, doc, "", "trials");
+// One MUSHRA trial's ratings (0 .. 100, one per stimulus of its item); a
+// stimulus left unrated is recorded in r.missing.
+void load_ratings(const JsonDocument& D, const rapidjson::Value& tv, const std::string& p, const StimulusIndex& ix,
+                  Result& r, Trial& t) {
+  const rapidjson::Value& ratings = get_object(D, tv, p, "ratings");
+  std::set<std::string> seen;
+  for (auto m = ratings.MemberBegin(); m != ratings.MemberEnd(); ++m) {
+    const std::string cid(m->name.GetString(), m->name.GetStringLength());
+    const std::string f = p + ".ratings." + cid;
+    if (!seen.insert(cid).second) fail(D, f, "rated twice");
+    if (!ix.have.count({t.item, cid}))
+      fail(D, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
+    if (!m->value.IsNumber()) fail(D, f, "must be a number, not " + type_name(m->value));
+    const double v = m->value.GetDouble();
+    if (!(v >= 0 && v <= 100)) {
+      char buf[40];
+      std::snprintf(buf, sizeof buf, "%.10g", v);
+      fail(D, f, std::string(buf) + " is outside the scale 0 .. 100");
+    }
+    t.ratings.push_back({cid, v});
+  }
+  Missing gap;
+  for (const Condition& c : r.conditions)
+    if (ix.have.count({t.item, c.id}) && !seen.count(c.id)) gap.conditions.push_back(c.id);
+  if (!gap.conditions.empty()) {
+    gap.item = t.item;
+    gap.field = p + ".ratings";
+    r.missing.push_back(gap);
+  }
+}
+
+// One ABX or AB trial: two different conditions of its item and the answer.
+void load_choice(const JsonDocument& D, const rapidjson::Value& tv, const std::string& p, const StimulusIndex& ix,
+                 const std::string& type, Trial& t) {
+  t.a = get_string(D, tv, p, "a");
+  t.b = get_string(D, tv, p, "b");
+  if (t.a == t.b) fail(D, p, "a and b are the same condition " + quoted(t.a));
+  for (const std::string* c : {&t.a, &t.b})
+    if (!ix.have.count({t.item, *c}))
+      fail(D, p + (c == &t.a ? ".a" : ".b"), "item " + quoted(t.item) + " has no stimulus of condition " + quoted(*c));
+  const std::string answer = get_string(D, tv, p, "answer");
+  if (type == "abx") {
+    const std::string x = get_string(D, tv, p, "x");
+    if (x != "a" && x != "b") fail(D, p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
+    if (answer != "a" && answer != "b")
+      fail(D, p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
+    t.x = x[0];
+    t.answer = answer[0];
+  } else {
+    if (answer != "a" && answer != "b" && answer != "none")
+      fail(D, p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
+    t.answer = answer == "none" ? 'n' : answer[0];
+  }
+}
+
+void load_trials(const JsonDocument& D, const StimulusIndex& ix, Result& r) {
+  const rapidjson::Value& trials = get_array(D, D.doc, "", "trials");
   if (trials.Empty()) fail(D, "trials", "holds no answers");
   std::set<std::string> rated_items;
   for (rapidjson::SizeType i = 0; i < trials.Size(); ++i) {
@@ -295,60 +354,20 @@ Result load(const std::string& path) {
     if (!tv.IsObject()) fail(D, p, "must be an object, not " + type_name(tv));
     Trial t;
     t.item = get_string(D, tv, p, "item");
-    if (!per_item.count(t.item)) fail(D, p + ".item", quoted(t.item) + " has no stimuli");
+    if (!ix.per_item.count(t.item)) fail(D, p + ".item", quoted(t.item) + " has no stimuli");
     if (r.type == "mushra") {
       if (!rated_items.insert(t.item).second)
         fail(D, p + ".item", quoted(t.item) + " was already rated in an earlier trial");
-      const rapidjson::Value& ratings = get_object(D, tv, p, "ratings");
-      std::set<std::string> seen;
-      for (auto m = ratings.MemberBegin(); m != ratings.MemberEnd(); ++m) {
-        const std::string cid(m->name.GetString(), m->name.GetStringLength());
-        const std::string f = p + ".ratings." + cid;
-        if (!seen.insert(cid).second) fail(D, f, "rated twice");
-        if (!have.count({t.item, cid}))
-          fail(D, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
-        if (!m->value.IsNumber()) fail(D, f, "must be a number, not " + type_name(m->value));
-        const double v = m->value.GetDouble();
-        if (!(v >= 0 && v <= 100)) {
-          char buf[40];
-          std::snprintf(buf, sizeof buf, "%.10g", v);
-          fail(D, f, std::string(buf) + " is outside the scale 0 .. 100");
-        }
-        t.ratings.push_back({cid, v});
-      }
-      Missing gap;
-      for (const Condition& c : r.conditions)
-        if (have.count({t.item, c.id}) && !seen.count(c.id)) gap.conditions.push_back(c.id);
-      if (!gap.conditions.empty()) {
-        gap.item = t.item;
-        gap.field = p + ".ratings";
-        r.missing.push_back(gap);
-      }
+      load_ratings(D, tv, p, ix, r, t);
     } else {
-      t.a = get_string(D, tv, p, "a");
-      t.b = get_string(D, tv, p, "b");
-      if (t.a == t.b) fail(D, p, "a and b are the same condition " + quoted(t.a));
-      for (const std::string* c : {&t.a, &t.b})
-        if (!have.count({t.item, *c}))
-          fail(D, p + (c == &t.a ? ".a" : ".b"),
-               "item " + quoted(t.item) + " has no stimulus of condition " + quoted(*c));
-      const std::string answer = get_string(D, tv, p, "answer");
-      if (r.type == "abx") {
-        const std::string x = get_string(D, tv, p, "x");
-        if (x != "a" && x != "b") fail(D, p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
-        if (answer != "a" && answer != "b")
-          fail(D, p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
-        t.x = x[0];
-        t.answer = answer[0];
-      } else {
-        if (answer != "a" && answer != "b" && answer != "none")
-          fail(D, p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
-        t.answer = answer == "none" ? 'n' : answer[0];
-      }
+      load_choice(D, tv, p, ix, r.type, t);
     }
     r.trials.push_back(t);
   }
-  // Items of the stimuli without any trial, in the stimuli's order.
+}
+
+// Items of the stimuli without any trial, in the stimuli's order, into r.missing.
+void find_unanswered_items(Result& r) {
   std::set<std::string> answered;
   for (const Trial& t : r.trials) answered.insert(t.item);
   std::map<std::string, size_t> gap_of;
@@ -364,6 +383,25 @@ Result load(const std::string& path) {
     }
     if (r.type == "mushra") r.missing[gap_of[st.item]].conditions.push_back(st.condition);
   }
+}
+
+Result load(const std::string& path) {
+  const std::string text = read_text(path);
+  // The shared reader (dsp/core/json_reader.hpp): iterative, depth and size
+  // capped, NUL and trailing text refused, UTF-8 validated.
+  auto parsed = std::make_shared<JsonDocument>();
+  const std::string error = json_read(path, text.data(), text.size(), *parsed);
+  if (!error.empty()) throw InputError(error);
+  const JsonDocument& D = *parsed;
+  if (!D.doc.IsObject()) fail(D, "(top level)", "must be a JSON object, not " + type_name(D.doc));
+  Result r;
+  r.file = path;
+  r.doc = parsed;
+  load_header(D, r);
+  load_conditions(D, r);
+  const StimulusIndex ix = load_stimuli(D, r);
+  load_trials(D, ix, r);
+  find_unanswered_items(r);
   return r;
 }
 
