@@ -1,5 +1,5 @@
 // Checking JSON documents field by field (the site config, the listening test
-// definition): every refusal names the file, where the field's value starts
+// definition, the results files of `tally`): every refusal names the file, where the field's value starts
 // and the field, in the shape of the shared reader (dsp/core/json_reader.hpp), e.g.
 // "demos/site.json: line 12, column 17: effects[1].controls.drive: must be a number, got a string".
 #pragma once
@@ -26,11 +26,23 @@ struct Where {
   std::shared_ptr<const JsonDocument> doc;
   // Field and message may quote the document's text: escaped for the terminal
   // here (text_out.hpp), before a NUL could cut the message short.
+  // true: a line break in a message is kept (the site's own messages);
+  // false: escaped like any other control character (results files).
+  bool keep_line_breaks = true;
+
   [[noreturn]] void fail(const std::string& field, const std::string& msg) const {
-    const std::string f = terminal_text(field), m = terminal_lines(msg);
+    const std::string f = terminal_text(field), m = keep_line_breaks ? terminal_lines(msg) : terminal_text(msg);
     if (doc) throw InputError(json_field_error(*doc, json_find_path(*doc, field), f, m));
     throw InputError(file + ": " + (f.empty() ? "" : f + ": ") + m);
   }
+
+  // Member `key` of `obj`, the object at `path` ("" for the top level);
+  // refused as "<path>.<key>: missing". The typed forms refuse another type
+  // as "must be a string, not a number" and an empty string as empty.
+  const rapidjson::Value& required(const rapidjson::Value& obj, const std::string& path, const char* key) const;
+  std::string nonempty_string(const rapidjson::Value& obj, const std::string& path, const char* key) const;
+  const rapidjson::Value& object(const rapidjson::Value& obj, const std::string& path, const char* key) const;
+  const rapidjson::Value& array(const rapidjson::Value& obj, const std::string& path, const char* key) const;
 };
 
 inline const char* type_name(const rapidjson::Value& v) {
@@ -43,6 +55,35 @@ inline const char* type_name(const rapidjson::Value& v) {
     case rapidjson::kStringType: return "a string";
     default: return "a number";
   }
+}
+
+inline std::string field_path(const std::string& path, const char* key) { return path.empty() ? key : path + "." + key; }
+
+inline const rapidjson::Value& Where::required(const rapidjson::Value& obj, const std::string& path,
+                                               const char* key) const {
+  auto it = obj.FindMember(key);
+  if (it == obj.MemberEnd()) fail(field_path(path, key), "missing");
+  return it->value;
+}
+
+inline std::string Where::nonempty_string(const rapidjson::Value& obj, const std::string& path, const char* key) const {
+  const rapidjson::Value& v = required(obj, path, key);
+  if (!v.IsString()) fail(field_path(path, key), std::string("must be a string, not ") + type_name(v));
+  std::string s(v.GetString(), v.GetStringLength());
+  if (s.empty()) fail(field_path(path, key), "must not be empty");
+  return s;
+}
+
+inline const rapidjson::Value& Where::object(const rapidjson::Value& obj, const std::string& path, const char* key) const {
+  const rapidjson::Value& v = required(obj, path, key);
+  if (!v.IsObject()) fail(field_path(path, key), std::string("must be an object, not ") + type_name(v));
+  return v;
+}
+
+inline const rapidjson::Value& Where::array(const rapidjson::Value& obj, const std::string& path, const char* key) const {
+  const rapidjson::Value& v = required(obj, path, key);
+  if (!v.IsArray()) fail(field_path(path, key), std::string("must be an array, not ") + type_name(v));
+  return v;
 }
 
 inline void only_fields(const Where& w, const std::string& field, const rapidjson::Value& obj,

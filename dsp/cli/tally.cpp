@@ -30,6 +30,7 @@
 #include <vector>
 
 #include "cli.hpp"  // first: it configures rapidjson
+#include "json_fields.hpp"
 #include "json_reader.hpp"
 #include "text_out.hpp"
 #include "output_file.hpp"
@@ -121,51 +122,12 @@ struct Result {
   std::vector<Trial> trials;
 };
 
-// "<file>: line L, column C: <field>: <what>", the shared reader's shape
-// (dsp/core/json_reader.hpp), at the value `field` names.
-// Field and message may quote the file's text: escaped for the terminal here
-// (text_out.hpp), before a NUL could cut the message short.
-[[noreturn]] void fail(const JsonDocument& file, const std::string& field, const std::string& what) {
-  throw InputError(json_field_error(file, json_find_path(file, field), terminal_text(field), terminal_text(what)));
-}
-
-std::string type_name(const rapidjson::Value& v) {
-  if (v.IsNull()) return "null";
-  if (v.IsBool()) return "a boolean";
-  if (v.IsNumber()) return "a number";
-  if (v.IsString()) return "a string";
-  if (v.IsArray()) return "an array";
-  return "an object";
-}
-
-const rapidjson::Value& member(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path,
-                               const char* key) {
-  auto it = obj.FindMember(key);
-  if (it == obj.MemberEnd()) fail(file, path.empty() ? key : path + "." + key, "missing");
-  return it->value;
-}
-
-std::string get_string(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path, const char* key) {
-  const rapidjson::Value& v = member(file, obj, path, key);
-  const std::string field = path.empty() ? key : path + "." + key;
-  if (!v.IsString()) fail(file, field, "must be a string, not " + type_name(v));
-  std::string s(v.GetString(), v.GetStringLength());
-  if (s.empty()) fail(file, field, "must not be empty");
-  return s;
-}
-
-const rapidjson::Value& get_object(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path,
-                                   const char* key) {
-  const rapidjson::Value& v = member(file, obj, path, key);
-  if (!v.IsObject()) fail(file, path.empty() ? key : path + "." + key, "must be an object, not " + type_name(v));
-  return v;
-}
-
-const rapidjson::Value& get_array(const JsonDocument& file, const rapidjson::Value& obj, const std::string& path,
-                                  const char* key) {
-  const rapidjson::Value& v = member(file, obj, path, key);
-  if (!v.IsArray()) fail(file, path.empty() ? key : path + "." + key, "must be an array, not " + type_name(v));
-  return v;
+// Refusals of a results file: "<file>: line L, column C: <field>: <what>" at
+// the value `field` names (json_fields.hpp), the message escaped whole.
+Where where_of(const std::string& file, std::shared_ptr<const JsonDocument> doc) {
+  Where w{file, std::move(doc)};
+  w.keep_line_breaks = false;
+  return w;
 }
 
 // Input text inside a message: escaped for the terminal (text_out.hpp).
@@ -200,56 +162,56 @@ std::string read_text(const std::string& path) {
 }
 
 // format, version, test and participant.
-void load_header(const JsonDocument& D, Result& r) {
-  const rapidjson::Document& doc = D.doc;
-  const std::string format = get_string(D, doc, "", "format");
+void load_header(const Where& w, Result& r) {
+  const rapidjson::Document& doc = w.doc->doc;
+  const std::string format = w.nonempty_string(doc, "", "format");
   if (format != kFormat)
-    fail(D, "format", quoted(format) + " is not an earshot results file (expected " + quoted(kFormat) + ")");
-  const rapidjson::Value& ver = member(D, doc, "", "version");
-  if (!ver.IsInt()) fail(D, "version", "must be a whole number, not " + type_name(ver));
+    w.fail("format", quoted(format) + " is not an earshot results file (expected " + quoted(kFormat) + ")");
+  const rapidjson::Value& ver = w.required(doc, "", "version");
+  if (!ver.IsInt()) w.fail("version", std::string("must be a whole number, not ") + type_name(ver));
   if (ver.GetInt() != kVersion)
-    fail(D, "version", std::to_string(ver.GetInt()) + " is not supported (this tally reads version " +
+    w.fail("version", std::to_string(ver.GetInt()) + " is not supported (this tally reads version " +
                               std::to_string(kVersion) + ")");
 
-  const rapidjson::Value& test = get_object(D, doc, "", "test");
-  r.test_id = get_string(D, test, "test", "id");
-  r.type = get_string(D, test, "test", "type");
+  const rapidjson::Value& test = w.object(doc, "", "test");
+  r.test_id = w.nonempty_string(test, "test", "id");
+  r.type = w.nonempty_string(test, "test", "type");
   if (r.type != "mushra" && r.type != "abx" && r.type != "ab")
-    fail(D, "test.type", quoted(r.type) + " is not a test type (mushra, abx or ab)");
+    w.fail("test.type", quoted(r.type) + " is not a test type (mushra, abx or ab)");
 
-  const rapidjson::Value& who = get_object(D, doc, "", "participant");
-  r.participant = get_string(D, who, "participant", "id");
-  const rapidjson::Value& seed = member(D, who, "participant", "seed");
+  const rapidjson::Value& who = w.object(doc, "", "participant");
+  r.participant = w.nonempty_string(who, "participant", "id");
+  const rapidjson::Value& seed = w.required(who, "participant", "seed");
   if (!seed.IsUint64() || seed.GetUint64() > 9007199254740991ull)
-    fail(D, "participant.seed", "must be a whole number from 0 to 2^53 - 1");
+    w.fail("participant.seed", "must be a whole number from 0 to 2^53 - 1");
   r.seed = seed.GetUint64();
 }
 
 // Conditions: unique ids, at most one of each special role, and a MUSHRA
 // test's hidden reference.
-void load_conditions(const JsonDocument& D, Result& r) {
-  const rapidjson::Value& conds = get_array(D, D.doc, "", "conditions");
-  if (conds.Empty()) fail(D, "conditions", "must list at least one condition");
+void load_conditions(const Where& w, Result& r) {
+  const rapidjson::Value& conds = w.array(w.doc->doc, "", "conditions");
+  if (conds.Empty()) w.fail("conditions", "must list at least one condition");
   std::set<std::string> cond_ids;
   int n_ref = 0, n_low = 0, n_mid = 0;
   for (rapidjson::SizeType i = 0; i < conds.Size(); ++i) {
     const std::string p = "conditions[" + std::to_string(i) + "]";
-    if (!conds[i].IsObject()) fail(D, p, "must be an object, not " + type_name(conds[i]));
+    if (!conds[i].IsObject()) w.fail(p, std::string("must be an object, not ") + type_name(conds[i]));
     Condition c;
-    c.id = get_string(D, conds[i], p, "id");
-    c.role = conds[i].HasMember("role") ? get_string(D, conds[i], p, "role") : "test";
+    c.id = w.nonempty_string(conds[i], p, "id");
+    c.role = conds[i].HasMember("role") ? w.nonempty_string(conds[i], p, "role") : "test";
     if (c.role != "reference" && c.role != "anchor-low" && c.role != "anchor-mid" && c.role != "test")
-      fail(D, p + ".role", quoted(c.role) + " is not a role (reference, anchor-low, anchor-mid or test)");
-    if (!cond_ids.insert(c.id).second) fail(D, p + ".id", quoted(c.id) + " is listed twice");
+      w.fail(p + ".role", quoted(c.role) + " is not a role (reference, anchor-low, anchor-mid or test)");
+    if (!cond_ids.insert(c.id).second) w.fail(p + ".id", quoted(c.id) + " is listed twice");
     n_ref += c.role == "reference";
     n_low += c.role == "anchor-low";
     n_mid += c.role == "anchor-mid";
     r.conditions.push_back(c);
   }
   if (n_ref > 1 || n_low > 1 || n_mid > 1)
-    fail(D, "conditions", "at most one condition may have each of the roles reference, anchor-low, anchor-mid");
+    w.fail("conditions", "at most one condition may have each of the roles reference, anchor-low, anchor-mid");
   if (r.type == "mushra" && n_ref != 1)
-    fail(D, "conditions", "a mushra test needs exactly one condition with role 'reference' (the hidden reference)");
+    w.fail("conditions", "a mushra test needs exactly one condition with role 'reference' (the hidden reference)");
 }
 
 // What the stimuli hold: each (item, condition) pair, and stimuli per item.
@@ -259,54 +221,54 @@ struct StimulusIndex {
 };
 
 // Stimuli: one per (item, condition), each of a listed condition with a hash.
-StimulusIndex load_stimuli(const JsonDocument& D, Result& r) {
+StimulusIndex load_stimuli(const Where& w, Result& r) {
   std::set<std::string> cond_ids;
   for (const Condition& c : r.conditions) cond_ids.insert(c.id);
-  const rapidjson::Value& stims = get_array(D, D.doc, "", "stimuli");
-  if (stims.Empty()) fail(D, "stimuli", "must list at least one stimulus");
+  const rapidjson::Value& stims = w.array(w.doc->doc, "", "stimuli");
+  if (stims.Empty()) w.fail("stimuli", "must list at least one stimulus");
   StimulusIndex ix;
   for (rapidjson::SizeType i = 0; i < stims.Size(); ++i) {
     const std::string p = "stimuli[" + std::to_string(i) + "]";
-    if (!stims[i].IsObject()) fail(D, p, "must be an object, not " + type_name(stims[i]));
+    if (!stims[i].IsObject()) w.fail(p, std::string("must be an object, not ") + type_name(stims[i]));
     Stimulus s;
-    s.item = get_string(D, stims[i], p, "item");
-    s.condition = get_string(D, stims[i], p, "condition");
-    s.hash = get_string(D, stims[i], p, "hash");
+    s.item = w.nonempty_string(stims[i], p, "item");
+    s.condition = w.nonempty_string(stims[i], p, "condition");
+    s.hash = w.nonempty_string(stims[i], p, "hash");
     if (!cond_ids.count(s.condition))
-      fail(D, p + ".condition", quoted(s.condition) + " is not one of the conditions");
+      w.fail(p + ".condition", quoted(s.condition) + " is not one of the conditions");
     if (!valid_hash(s.hash))
-      fail(D, p + ".hash", quoted(s.hash) + " is not ALGORITHM:HEX (e.g. fnv1a64-float32le:0123456789abcdef)");
+      w.fail(p + ".hash", quoted(s.hash) + " is not ALGORITHM:HEX (e.g. fnv1a64-float32le:0123456789abcdef)");
     if (!ix.have.insert({s.item, s.condition}).second)
-      fail(D, p, "item " + quoted(s.item) + " has condition " + quoted(s.condition) + " twice");
+      w.fail(p, "item " + quoted(s.item) + " has condition " + quoted(s.condition) + " twice");
     ++ix.per_item[s.item];
     r.stimuli.push_back(s);
   }
   if (r.type == "mushra")
     for (const auto& kv : ix.per_item)
       if (kv.second > kMaxMushraStimuli)
-        fail(D, "stimuli", "item " + quoted(kv.first) + " has " + std::to_string(kv.second) +
+        w.fail("stimuli", "item " + quoted(kv.first) + " has " + std::to_string(kv.second) +
                                   " stimuli; a MUSHRA trial has at most 12 (ITU-R BS.1534-3)");
   return ix;
 }
 
 // One MUSHRA trial's ratings (0 .. 100, one per stimulus of its item); a
 // stimulus left unrated is recorded in r.missing.
-void load_ratings(const JsonDocument& D, const rapidjson::Value& tv, const std::string& p, const StimulusIndex& ix,
+void load_ratings(const Where& w, const rapidjson::Value& tv, const std::string& p, const StimulusIndex& ix,
                   Result& r, Trial& t) {
-  const rapidjson::Value& ratings = get_object(D, tv, p, "ratings");
+  const rapidjson::Value& ratings = w.object(tv, p, "ratings");
   std::set<std::string> seen;
   for (auto m = ratings.MemberBegin(); m != ratings.MemberEnd(); ++m) {
     const std::string cid(m->name.GetString(), m->name.GetStringLength());
     const std::string f = p + ".ratings." + cid;
-    if (!seen.insert(cid).second) fail(D, f, "rated twice");
+    if (!seen.insert(cid).second) w.fail(f, "rated twice");
     if (!ix.have.count({t.item, cid}))
-      fail(D, f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
-    if (!m->value.IsNumber()) fail(D, f, "must be a number, not " + type_name(m->value));
+      w.fail(f, "item " + quoted(t.item) + " has no stimulus of condition " + quoted(cid));
+    if (!m->value.IsNumber()) w.fail(f, std::string("must be a number, not ") + type_name(m->value));
     const double v = m->value.GetDouble();
     if (!(v >= 0 && v <= 100)) {
       char buf[40];
       std::snprintf(buf, sizeof buf, "%.10g", v);
-      fail(D, f, std::string(buf) + " is outside the scale 0 .. 100");
+      w.fail(f, std::string(buf) + " is outside the scale 0 .. 100");
     }
     t.ratings.push_back({cid, v});
   }
@@ -321,46 +283,46 @@ void load_ratings(const JsonDocument& D, const rapidjson::Value& tv, const std::
 }
 
 // One ABX or AB trial: two different conditions of its item and the answer.
-void load_choice(const JsonDocument& D, const rapidjson::Value& tv, const std::string& p, const StimulusIndex& ix,
+void load_choice(const Where& w, const rapidjson::Value& tv, const std::string& p, const StimulusIndex& ix,
                  const std::string& type, Trial& t) {
-  t.a = get_string(D, tv, p, "a");
-  t.b = get_string(D, tv, p, "b");
-  if (t.a == t.b) fail(D, p, "a and b are the same condition " + quoted(t.a));
+  t.a = w.nonempty_string(tv, p, "a");
+  t.b = w.nonempty_string(tv, p, "b");
+  if (t.a == t.b) w.fail(p, "a and b are the same condition " + quoted(t.a));
   for (const std::string* c : {&t.a, &t.b})
     if (!ix.have.count({t.item, *c}))
-      fail(D, p + (c == &t.a ? ".a" : ".b"), "item " + quoted(t.item) + " has no stimulus of condition " + quoted(*c));
-  const std::string answer = get_string(D, tv, p, "answer");
+      w.fail(p + (c == &t.a ? ".a" : ".b"), "item " + quoted(t.item) + " has no stimulus of condition " + quoted(*c));
+  const std::string answer = w.nonempty_string(tv, p, "answer");
   if (type == "abx") {
-    const std::string x = get_string(D, tv, p, "x");
-    if (x != "a" && x != "b") fail(D, p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
+    const std::string x = w.nonempty_string(tv, p, "x");
+    if (x != "a" && x != "b") w.fail(p + ".x", quoted(x) + " must be 'a' or 'b' (which stimulus X was)");
     if (answer != "a" && answer != "b")
-      fail(D, p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
+      w.fail(p + ".answer", quoted(answer) + " must be 'a' or 'b' (ABX is a forced choice)");
     t.x = x[0];
     t.answer = answer[0];
   } else {
     if (answer != "a" && answer != "b" && answer != "none")
-      fail(D, p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
+      w.fail(p + ".answer", quoted(answer) + " must be 'a', 'b' or 'none'");
     t.answer = answer == "none" ? 'n' : answer[0];
   }
 }
 
-void load_trials(const JsonDocument& D, const StimulusIndex& ix, Result& r) {
-  const rapidjson::Value& trials = get_array(D, D.doc, "", "trials");
-  if (trials.Empty()) fail(D, "trials", "holds no answers");
+void load_trials(const Where& w, const StimulusIndex& ix, Result& r) {
+  const rapidjson::Value& trials = w.array(w.doc->doc, "", "trials");
+  if (trials.Empty()) w.fail("trials", "holds no answers");
   std::set<std::string> rated_items;
   for (rapidjson::SizeType i = 0; i < trials.Size(); ++i) {
     const std::string p = "trials[" + std::to_string(i) + "]";
     const rapidjson::Value& tv = trials[i];
-    if (!tv.IsObject()) fail(D, p, "must be an object, not " + type_name(tv));
+    if (!tv.IsObject()) w.fail(p, std::string("must be an object, not ") + type_name(tv));
     Trial t;
-    t.item = get_string(D, tv, p, "item");
-    if (!ix.per_item.count(t.item)) fail(D, p + ".item", quoted(t.item) + " has no stimuli");
+    t.item = w.nonempty_string(tv, p, "item");
+    if (!ix.per_item.count(t.item)) w.fail(p + ".item", quoted(t.item) + " has no stimuli");
     if (r.type == "mushra") {
       if (!rated_items.insert(t.item).second)
-        fail(D, p + ".item", quoted(t.item) + " was already rated in an earlier trial");
-      load_ratings(D, tv, p, ix, r, t);
+        w.fail(p + ".item", quoted(t.item) + " was already rated in an earlier trial");
+      load_ratings(w, tv, p, ix, r, t);
     } else {
-      load_choice(D, tv, p, ix, r.type, t);
+      load_choice(w, tv, p, ix, r.type, t);
     }
     r.trials.push_back(t);
   }
@@ -392,15 +354,15 @@ Result load(const std::string& path) {
   auto parsed = std::make_shared<JsonDocument>();
   const std::string error = json_read(path, text.data(), text.size(), *parsed);
   if (!error.empty()) throw InputError(error);
-  const JsonDocument& D = *parsed;
-  if (!D.doc.IsObject()) fail(D, "(top level)", "must be a JSON object, not " + type_name(D.doc));
+  const Where w = where_of(path, parsed);
+  if (!parsed->doc.IsObject()) w.fail("(top level)", std::string("must be a JSON object, not ") + type_name(parsed->doc));
   Result r;
   r.file = path;
   r.doc = parsed;
-  load_header(D, r);
-  load_conditions(D, r);
-  const StimulusIndex ix = load_stimuli(D, r);
-  load_trials(D, ix, r);
+  load_header(w, r);
+  load_conditions(w, r);
+  const StimulusIndex ix = load_stimuli(w, r);
+  load_trials(w, ix, r);
   find_unanswered_items(r);
   return r;
 }
@@ -412,25 +374,25 @@ void check_consistent(const std::vector<Result>& rs) {
   for (const Result& r : rs) {
     auto it = participants.find(r.participant);
     if (it != participants.end())
-      fail(*r.doc, "participant.id", quoted(r.participant) + " also appears in " + it->second +
+      where_of(r.file, r.doc).fail("participant.id", quoted(r.participant) + " also appears in " + it->second +
                                          " (the same participant twice: remove one file)");
     participants[r.participant] = r.file;
     if (&r == &f) continue;
     if (r.test_id != f.test_id)
-      fail(*r.doc, "test.id", quoted(r.test_id) + " differs from " + quoted(f.test_id) + " in " + f.file +
+      where_of(r.file, r.doc).fail("test.id", quoted(r.test_id) + " differs from " + quoted(f.test_id) + " in " + f.file +
                                   " (results of different tests)");
     if (r.type != f.type)
-      fail(*r.doc, "test.type", quoted(r.type) + " differs from " + quoted(f.type) + " in " + f.file);
+      where_of(r.file, r.doc).fail("test.type", quoted(r.type) + " differs from " + quoted(f.type) + " in " + f.file);
     if (r.conditions.size() != f.conditions.size())
-      fail(*r.doc, "conditions", std::to_string(r.conditions.size()) + " conditions, but " + f.file + " has " +
+      where_of(r.file, r.doc).fail("conditions", std::to_string(r.conditions.size()) + " conditions, but " + f.file + " has " +
                                      std::to_string(f.conditions.size()));
     for (size_t i = 0; i < f.conditions.size(); ++i) {
       const std::string p = "conditions[" + std::to_string(i) + "]";
       if (r.conditions[i].id != f.conditions[i].id)
-        fail(*r.doc, p + ".id", quoted(r.conditions[i].id) + " differs from " + quoted(f.conditions[i].id) + " in " +
+        where_of(r.file, r.doc).fail(p + ".id", quoted(r.conditions[i].id) + " differs from " + quoted(f.conditions[i].id) + " in " +
                                     f.file);
       if (r.conditions[i].role != f.conditions[i].role)
-        fail(*r.doc, p + ".role", quoted(r.conditions[i].role) + " differs from " + quoted(f.conditions[i].role) +
+        where_of(r.file, r.doc).fail(p + ".role", quoted(r.conditions[i].role) + " differs from " + quoted(f.conditions[i].role) +
                                       " in " + f.file);
     }
     std::map<std::pair<std::string, std::string>, const Stimulus*> first;
@@ -441,16 +403,16 @@ void check_consistent(const std::vector<Result>& rs) {
       const std::string p = "stimuli[" + std::to_string(i) + "]";
       auto it2 = first.find({s.item, s.condition});
       if (it2 == first.end())
-        fail(*r.doc, p, "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " is not in " + f.file);
+        where_of(r.file, r.doc).fail(p, "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " is not in " + f.file);
       if (it2->second->hash != s.hash)
-        fail(*r.doc, p + ".hash", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " has hash " +
+        where_of(r.file, r.doc).fail(p + ".hash", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " has hash " +
                                       s.hash + " but " + f.file + " has " + it2->second->hash +
                                       " (the participants heard different audio)");
       seen.insert({s.item, s.condition});
     }
     for (const Stimulus& s : f.stimuli)
       if (!seen.count({s.item, s.condition}))
-        fail(*r.doc, "stimuli", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " of " + f.file +
+        where_of(r.file, r.doc).fail("stimuli", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " of " + f.file +
                                     " is missing");
   }
 }
@@ -715,7 +677,7 @@ std::vector<MushraRow> mushra_rows(const std::vector<Result>& rs, const std::vec
   for (const Stimulus& s : rs[0].stimuli)
     if (std::find(items.begin(), items.end(), s.item) == items.end()) items.push_back(s.item);
   // Ratings kept assessors lack, by (item, condition); item "" is the total.
-  // (Item ids are never empty: get_string refuses empty strings.)
+  // (Item ids are never empty: Where::nonempty_string refuses empty strings.)
   std::map<std::pair<std::string, std::string>, size_t> gaps;
   for (const Result* r : kept)
     for (const Missing& m : r->missing)
