@@ -129,18 +129,9 @@ function listNfx(dir, group) {
 
 // ------------------------------------------------------------ utilities
 
-// Mulberry32, a small seeded PRNG (common practice, no source): the tests
+// The page's seeded generator (mulberry32, web/js/listen-order.js): the tests
 // must be reproducible, so Math.random is never used.
-export function prng(seed) {
-  let a = seed >>> 0;
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0;
-    let t = a;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+export { rng as prng } from '../../web/js/listen-order.js';
 
 export function sha256(f32) {
   return createHash('sha256').update(new Uint8Array(f32.buffer, f32.byteOffset, f32.byteLength)).digest('hex');
