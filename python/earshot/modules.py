@@ -16,12 +16,6 @@ import torch
 import torch.nn as nn
 import torch.nn.functional as F
 
-# What `import earshot` exposes (earshot/__init__.py imports these): a new
-# layer type's twin is added here, beside its class.
-__all__ = ["ACTIVATIONS", "Activation", "CausalConv1d", "Effect", "FiLM", "GRU", "Gated", "LSTM", "Linear",
-           "TCNBlock", "WaveNet", "WaveNetLayer", "apply_activation", "control_spec", "ramp_steps",
-           "smooth_controls"]
-
 ACTIVATIONS = ("identity", "tanh", "sigmoid", "relu", "leaky_relu", "softsign", "hardtanh")
 
 
@@ -491,6 +485,8 @@ def _run(layer, x, ctl, st=None):
     return layer(x), None
 
 
+# What `import earshot` exposes (earshot/__init__.py imports these names): a
+# new layer type's twin is added here.
 __all__ = ["ACTIVATIONS", "apply_activation", "Linear", "CausalConv1d", "LSTM", "GRU", "Activation",
            "Gated", "FiLM", "WaveNet", "WaveNetLayer", "TCNBlock", "Effect", "control_spec",
            "ramp_steps", "smooth_controls"]
