@@ -73,6 +73,16 @@ def _as_effect(model, controls, input_skip, inputs):
         return model
     if not isinstance(model, nn.Module):
         raise ExportError(f"export needs a torch.nn.Module, got {type(model).__name__}")
+    if not isinstance(model, (nn.Sequential, nn.ModuleList)) and type_of_module(model) is None:
+        # A researcher's own module, as written: traced (trace.py).
+        from .trace import trace
+        effect, _ = trace(model, controls)
+        if input_skip is not None and bool(input_skip) != effect.input_skip:
+            raise ExportError(f"input_skip={input_skip} contradicts the traced forward "
+                              f"({'adds' if effect.input_skip else 'does not add'} the input to the output)")
+        if inputs is not None and list(inputs) != effect.inputs:
+            raise ExportError(f"inputs={list(inputs)} contradicts the traced forward's inputs {effect.inputs}")
+        return effect
     specs = [control_spec(c) for c in (controls or [])]
     if inputs is None:
         inputs = ["audio"] + [c["name"] for c in specs]
