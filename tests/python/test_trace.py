@@ -329,3 +329,53 @@ def test_a_model_that_cannot_be_called_says_what_was_tried(tmp_path):
 
     with pytest.raises(ExportError, match=r"calling convention tried:\n  audio \[B, T\]"):
         earshot.export(NeedsThree(), tmp_path / "fx.nfx", sample_rate=RATE)
+
+
+# ---- verify --model with the researcher's own forward -------------------------------------------
+
+def _verify(tmp_path, *args):
+    """python3 -m earshot verify ARGS --seconds 0.5, with this folder importable (the
+    pickled models' classes live in this file)."""
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join([HERE, str(tmp_path), os.path.join(ROOT, "python")]),
+               EARSHOT_LIB=native.library_path())
+    return subprocess.run([sys.executable, "-m", "earshot", "verify", *map(str, args), "--seconds", "0.5"],
+                          capture_output=True, text=True, env=env, timeout=300)
+
+
+def test_verify_takes_the_researchers_forward(core, tmp_path):
+    torch.manual_seed(1)
+    m = SeqFirstLSTM()
+    earshot.export(m, tmp_path / "fx.nfx", sample_rate=RATE)
+    torch.save(m, tmp_path / "m.pt")
+    r = _verify(tmp_path, tmp_path / "fx.nfx", "--model", tmp_path / "m.pt")  # unpickling needs HERE
+    print(r.stdout)
+    assert r.returncode == 0, r.stdout + r.stderr
+    assert "your model: audio [B, 1, T], controls none" in r.stdout
+    assert "core vs your model, float32" in r.stdout and "PASS" in r.stdout
+
+
+def test_verify_model_that_cannot_be_called_is_not_a_fail(core, tmp_path):
+    torch.manual_seed(1)
+    earshot.export(SeqFirstLSTM(), tmp_path / "fx.nfx", sample_rate=RATE)
+    torch.save(nn.Linear(3, 1), tmp_path / "bad.pt")
+    r = _verify(tmp_path, tmp_path / "fx.nfx", "--model", tmp_path / "bad.pt")
+    print(r.stderr)
+    assert r.returncode == 3, r.stdout + r.stderr
+    assert "calling convention tried" in r.stderr and "audio [B, 1, T]" in r.stderr
+    assert "PASS" not in r.stdout and "FAIL" not in r.stdout
+
+
+def test_verify_f16_file_row_of_the_model_is_informative(core, tmp_path):
+    torch.manual_seed(2)
+    m = GruResidual()
+    with torch.no_grad():
+        for p in m.parameters():
+            p.mul_(3.0)  # large weights: F16 storage costs more than the limits allow
+    earshot.export(m, tmp_path / "fx.nfx", sample_rate=RATE, dtype="f16",
+                   controls=[{"name": "drive", "default": 0.4}])
+    torch.save(m, tmp_path / "m.pt")
+    r = _verify(tmp_path, tmp_path / "fx.nfx", "--model", tmp_path / "m.pt")
+    print(r.stdout)
+    line = [l for l in r.stdout.splitlines() if "your model, float32" in l][0]
+    assert "informative" in line and "F16" in line
+    assert r.returncode == 0 and "PASS" in r.stdout, r.stdout + r.stderr
