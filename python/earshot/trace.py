@@ -107,20 +107,57 @@ class _Tracer(fx.Tracer):
 class _Chain:
     """The signal: the network's input channels (`names`) through `layers` so far."""
 
-    def __init__(self, names, layers=(), pad_left=0, excess_right=0):
+    def __init__(self, names, layers=(), pad_left=0, excess_right=0, stack=None):
         self.names, self.layers = list(names), list(layers)
         self.pad_left, self.excess_right = pad_left, excess_right
+        self.stack = stack  # a _Stack state the layers follow, or None (they follow the inputs)
 
     def then(self, name, module, **kw):
-        return _Chain(self.names, self.layers + [(name, module)], **kw)
+        return _Chain(self.names, self.layers + [(name, module)], stack=self.stack, **kw)
+
+    def padded(self, left):
+        return _Chain(self.names, self.layers, self.pad_left + left, self.excess_right, self.stack)
+
+    def trimmed(self):
+        return _Chain(self.names, self.layers, self.pad_left, 0, self.stack)
 
     @property
     def is_input(self):
-        return not self.layers
+        return not self.layers and self.stack is None
 
     @property
     def is_audio(self):
         return not self.layers and self.names == ["audio"]
+
+
+class _Stack:
+    """A gated residual stack's state h_l (van den Oord et al. 2016): h_0, the
+    1x1 input convolution's output (`first`), and each level so far,
+    h_{l+1} = h_l + res_l(tanh * sigmoid of conv_l(h_l))."""
+
+    def __init__(self, first, levels):
+        self.first, self.levels = first, list(levels)  # levels: (conv name, conv, res name, res)
+
+
+class _SkipSum:
+    """A sum of skip terms skip_l(g_l) of one stack: the stack's output."""
+
+    def __init__(self, terms):
+        self.terms = list(terms)  # (depth, conv name, conv, skip name, skip, state)
+
+
+class _CtlLinear:
+    """nn.Linear applied to the controls [B, n]: one FiLM coefficient vector (gamma or beta)."""
+
+    def __init__(self, names, name, linear):
+        self.names, self.name, self.linear = names, name, linear
+
+
+class _Scaled:
+    """chain * gamma, waiting for + beta."""
+
+    def __init__(self, chain, gamma):
+        self.chain, self.gamma = chain, gamma
 
 
 class _Controls:
@@ -291,8 +328,10 @@ def _trace(model, controls, modes):
     fed = [n for n in chain.names if n != "audio"]
     if "audio" not in chain.names:
         raise ExportError("the audio argument never reaches the first layer")
-    if specs and sorted(fed) != sorted(c["name"] for c in specs):
+    if specs and set(fed) - {c["name"] for c in specs}:
         raise ExportError(f"the forward feeds controls {fed}, the controls given are {[c['name'] for c in specs]}")
+    if not specs and {n for p in placeholders[1:] for n in _control_names(placeholders, specs, shapes)[p]}:
+        specs = [control_spec(n) for p in placeholders[1:] for n in _control_names(placeholders, specs, shapes)[p]]
     try:
         effect = Effect(dict(chain.layers), inputs=chain.names, controls=specs or None, input_skip=skip)
     except ValueError as e:
@@ -333,6 +372,7 @@ def _count_values(node, shapes):
 
 def _walk(gm, placeholders, specs, shapes, modes):
     ctl_names = _control_names(placeholders, specs, shapes)
+    all_controls = [c["name"] for c in specs] if specs else [n for p in placeholders[1:] for n in ctl_names[p]]
     vals = {}
 
     def roles_of(n):
@@ -342,6 +382,8 @@ def _walk(gm, placeholders, specs, shapes, modes):
         return _channels(shapes[0][n], roles_of(n))
 
     def val(a):
+        if isinstance(a, (int, float)) and not isinstance(a, bool):
+            return a
         return vals.get(a, _Opaque()) if isinstance(a, fx.Node) else _Opaque()
 
     def signal_args(node):
@@ -349,6 +391,8 @@ def _walk(gm, placeholders, specs, shapes, modes):
 
     def chain_in(node, what):
         v = val(node.args[0])
+        if isinstance(v, _SkipSum):
+            v = _wavenet_of(v)
         if not isinstance(v, _Chain):
             _refuse(f"{what} needs the signal as its input")
         if v.excess_right:
@@ -376,6 +420,8 @@ def _walk(gm, placeholders, specs, shapes, modes):
                 _refuse("a tensor attribute of the model used directly (not through a layer)")
             elif node.op == "output":
                 v = val(node.args[0])
+                if isinstance(v, _SkipSum):
+                    v = _wavenet_of(v)
                 if isinstance(v, _Chain):
                     v = _Final(v, False)
                 if not isinstance(v, _Final):
@@ -385,6 +431,8 @@ def _walk(gm, placeholders, specs, shapes, modes):
                     _refuse("the output still holds padding: trim a padded convolution's output on the right")
                 if c.is_input:
                     _refuse("the output does not pass through any layer")
+                if c.stack is not None:
+                    _refuse("the output is a residual stack's state; a stack's output is the sum of its skips")
                 w = width_of(node.args[0])
                 if w != 1:
                     _refuse(f"the output has {w} channels; an effect gives one")
@@ -393,7 +441,7 @@ def _walk(gm, placeholders, specs, shapes, modes):
                 m = gm.get_submodule(node.target)
                 vals[node] = _module(node, m, chain_in, roles_of, width_of, activation, val, modes.get(m, False))
             elif node.op == "call_function" or node.op == "call_method":
-                vals[node] = _function(node, chain_in, roles_of, width_of, activation, val, signal_args)
+                vals[node] = _function(node, chain_in, roles_of, width_of, activation, val, signal_args, all_controls)
         except _Refusal as r:
             src = _source(node)
             raise ExportError(f"{_op_text(node, gm)}{' at ' + src if src else ''}: {r}; {_SUPPORTED}") from None
@@ -414,7 +462,7 @@ def _module(node, m, chain_in, roles_of, width_of, activation, val, training):
             _refuse(f"padding with {m.value}, not zeros")
         if right:
             _refuse(f"{right} samples of padding on the right look ahead in time (a causal effect pads on the left)")
-        return _Chain(c.names, c.layers, c.pad_left + left)
+        return c.padded(left)
     if isinstance(m, nn.BatchNorm1d) or "BatchNorm" in type(m).__name__:
         _refuse("batch normalisation is not a layer of the format"
                 + (" (and the module is in training mode: its output depends on the batch)" if training
@@ -430,6 +478,8 @@ def _module(node, m, chain_in, roles_of, width_of, activation, val, training):
             _refuse(f"a bidirectional {type(m).__name__} is not causal")
         return _RecurrentOut(c.then(name, m))
     if isinstance(m, nn.Linear):
+        if isinstance(val(node.args[0]), _Controls):
+            return _CtlLinear(val(node.args[0]).names, name, m)
         c = chain_in(node, "Linear")
         if roles_of(node.args[0])[-1] != "C":
             _refuse(f"input layout {roles_of(node.args[0])}: Linear needs channels last")
@@ -454,7 +504,7 @@ def _module(node, m, chain_in, roles_of, width_of, activation, val, training):
                 _refuse(f"kernel {k}, dilation {d} needs {need} samples of zero padding on the left before it, "
                         f"the forward gives {c.pad_left}" + (" (without it the output is shorter than the input)"
                                                              if c.pad_left == 0 else ""))
-            return _Chain(c.names, c.layers + [(name, m)])
+            return c.then(name, m)
         if c.pad_left:
             _refuse("padding both before the convolution and in it")
         if pad != need:
@@ -465,7 +515,7 @@ def _module(node, m, chain_in, roles_of, width_of, activation, val, training):
         causal.weight = m.weight  # the researcher's own parameters, not a copy
         if m.bias is not None:
             causal.bias = m.bias
-        return _Chain(c.names, c.layers + [(name, causal)], excess_right=pad)
+        return c.then(name, causal, excess_right=pad)
     if isinstance(m, _MODULE_ACTS):
         return chain_in(node, type(m).__name__).then(name, m)
     if isinstance(m, _EARSHOT_LAYERS) or type_of_module(m) is not None:
@@ -476,13 +526,200 @@ def _module(node, m, chain_in, roles_of, width_of, activation, val, training):
     _refuse(f"module type {type(m).__module__}.{type(m).__qualname__} is not a layer of the format")
 
 
+# ---- FiLM and the TCN block, written out --------------------------------------------------------
+
+def _common_name(names, fallback):
+    common = names[0].split(".")
+    for n in names[1:]:
+        parts = n.split(".")
+        i = 0
+        while i < min(len(common), len(parts)) and common[i] == parts[i]:
+            i += 1
+        common = common[:i]
+    return ".".join(common) or fallback
+
+
+def _film_of(chain, gamma, beta, all_controls, width):
+    """chain.then(FiLM) with the MLP [gamma; beta] (Perez et al. 2018) from the two Linear layers."""
+    if gamma.names != all_controls or beta.names != all_controls:
+        _refuse(f"FiLM of controls {gamma.names}: the format feeds FiLM every control in order ({all_controls})")
+    g, b = gamma.linear, beta.linear
+    if g.out_features != width or b.out_features != width:
+        _refuse(f"gamma and beta give {g.out_features} and {b.out_features} values for {width} channels")
+    film = FiLM(width, len(all_controls), [])
+    with torch.no_grad():
+        film.mlp[0].weight = nn.Parameter(torch.cat([g.weight, b.weight]).detach().clone())
+        bias = [m.bias if m.bias is not None else torch.zeros(width) for m in (g, b)]
+        film.mlp[0].bias = nn.Parameter(torch.cat(bias).detach().clone())
+    return chain.then(_common_name([gamma.name, beta.name], "film") + (".film" if "." not in gamma.name else ""),
+                      film)
+
+
+def _tcn_add(a, b):
+    """x + act(FiLM(conv(pad(x)))) (identity residual) or res(x) + ... (1x1, no bias) -> the
+    chain with a TCNBlock (Steinmetz & Reiss 2022, causal); None when a + b is not that."""
+    from .layer_types import _activation_of
+    for main, other in ((a, b), (b, a)):
+        if not isinstance(main, _Chain) or not isinstance(other, _Chain) or len(main.layers) < 2:
+            continue
+        layers = main.layers
+        has_film = len(layers) >= 3 and isinstance(layers[-2][1], FiLM)
+        n_block = 3 if has_film else 2
+        (cn, conv) = layers[-n_block]
+        an, act = layers[-1]
+        fn = _activation_of(act)
+        if not isinstance(conv, nn.Conv1d) or fn is None:
+            continue
+        base = _Chain(main.names, layers[:-n_block], stack=main.stack)
+        if other.stack is not base.stack or other.names != base.names:
+            continue
+        res = None
+        if other.layers == base.layers:
+            if conv.in_channels != conv.out_channels:
+                continue
+        elif other.layers[:-1] == base.layers and _conv_1x1(other.layers[-1][1]):
+            res = other.layers[-1]
+            if res[1].bias is not None:
+                _refuse("a residual 1x1 convolution with a bias (the format's TCN residual has none)")
+            if conv.in_channels == conv.out_channels:
+                _refuse("a residual 1x1 convolution where in == out (the format's TCN adds x itself)")
+        else:
+            continue
+        if conv.padding not in ((0,), "valid"):
+            _refuse("pad the TCN block's convolution with F.pad on the left, not with padding=")
+        fname, extra = fn
+        film = layers[-2][1] if has_film else None
+        block = TCNBlock(conv.in_channels, conv.out_channels, conv.kernel_size[0], conv.dilation[0],
+                         bias=conv.bias is not None, activation=dict({"fn": fname}, **extra),
+                         film={"hidden": [], "activation": "relu"} if has_film else None,
+                         n_controls=film.n_controls if has_film else 0, residual=True)
+        block.conv.weight, block.conv.bias = conv.weight, conv.bias
+        if has_film:
+            block.film.mlp[0].weight, block.film.mlp[0].bias = film.mlp[0].weight, film.mlp[0].bias
+        if res is not None:
+            block.res.weight = res[1].weight
+        names = [cn, an] + ([res[0]] if res else [])
+        return base.then(_common_name(names, "tcn"), block)
+    return None
+
+
+# ---- the gated residual stack, written out ------------------------------------------------------
+
+def _conv_1x1(m):
+    return isinstance(m, nn.Conv1d) and m.kernel_size[0] == 1
+
+
+def _state_of(v):
+    """(stack, depth, first chain) when v is a stack state h_l, else None."""
+    if isinstance(v, _Chain) and v.stack is not None and not v.layers and not v.pad_left:
+        return v.stack, len(v.stack.levels), v.stack.first
+    if isinstance(v, _Chain) and v.stack is None and v.layers and _conv_1x1(v.layers[-1][1]) and not v.pad_left \
+            and not v.excess_right:
+        return None, 0, v
+    return None
+
+
+def _term(v):
+    """(base value, conv name, conv, last name, last module) when v is conv -> gate -> 1x1 conv of a
+    stack state, else None."""
+    if not isinstance(v, _Chain) or len(v.layers) < 3 or v.pad_left or v.excess_right:
+        return None
+    (cn, conv), (_, gate), (ln, last) = v.layers[-3:]
+    if not (isinstance(conv, nn.Conv1d) and isinstance(gate, Gated) and _conv_1x1(last)):
+        return None
+    base = _Chain(v.names, v.layers[:-3], stack=v.stack)
+    if _state_of(base) is None:
+        return None
+    return base, cn, conv, ln, last
+
+
+def _same_state(a, b):
+    sa, sb = _state_of(a), _state_of(b)
+    if sa is None or sb is None:
+        return False
+    if sa[0] is not None or sb[0] is not None:
+        return sa[0] is sb[0]
+    return sa[2].layers == sb[2].layers and sa[2].names == sb[2].names
+
+
+def _stack_add(a, b):
+    """The additions of a written-out stack: h + res(g) -> the next state; skip terms -> a
+    _SkipSum. None when a + b is neither."""
+    for state, term in ((a, b), (b, a)):
+        t = _term(term)
+        if t is not None and _same_state(state, t[0]):
+            st, depth, first = _state_of(state)
+            levels = (st.levels if st else []) + [(t[1], t[2], t[3], t[4])]
+            return _Chain(first.names, [], stack=_Stack(first, levels))
+    parts = []
+    for v in (a, b):
+        if isinstance(v, _SkipSum):
+            parts += v.terms
+        elif isinstance(v, (int, float)) and v == 0:
+            continue
+        else:
+            t = _term(v)
+            if t is None:
+                return None
+            st, depth, first = _state_of(t[0])
+            parts.append((depth, t[1], t[2], t[3], t[4], t[0]))
+    return _SkipSum(parts) if parts else None
+
+
+def _wavenet_of(total):
+    """The Chain whose last layer is an earshot.WaveNet holding the stack's own parameters."""
+    from .modules import WaveNet as EarshotWaveNet
+    terms = sorted(total.terms, key=lambda t: t[0])
+    if [t[0] for t in terms] != list(range(len(terms))):
+        _refuse(f"skip terms of levels {[t[0] for t in terms]}; a stack sums one skip per level, 0 .. L-1")
+    deepest = max((t[5] for t in terms), key=lambda v: _state_of(v)[1])
+    st, depth, first = _state_of(deepest)
+    levels = list(st.levels) if st else []
+    if len(terms) not in (len(levels), len(levels) + 1):
+        _refuse(f"{len(terms)} skip terms for {len(levels)} residual levels")
+    for i, t in enumerate(terms):
+        if i < len(levels) and levels[i][1] is not t[2]:
+            _refuse(f"the skip of level {i} comes from another convolution than its residual")
+    inp_name, inp = first.layers[-1]
+    convs = [t[2] for t in terms]
+    skips = [t[4] for t in terms]
+    res = [lv[3] for lv in levels] + [None] * (len(terms) - len(levels))
+    C, k = inp.out_channels, convs[0].kernel_size[0]
+    S = skips[0].out_channels
+    bias = inp.bias is not None
+    for i, (c, sk, r) in enumerate(zip(convs, skips, res)):
+        if c.kernel_size[0] != k or c.in_channels != C or c.out_channels != 2 * C or c.stride != (1,) or c.groups != 1:
+            _refuse(f"level {i}: the stack's convolutions must all be Conv1d({C}, {2 * C}, kernel {k})")
+        if sk.out_channels != S or sk.in_channels != C or (r is not None and (r.in_channels, r.out_channels) != (C, C)):
+            _refuse(f"level {i}: residual 1x1 must be {C} -> {C} and skip {C} -> {S}")
+        if any((m.bias is not None) != bias for m in (c, sk) + ((r,) if r is not None else ())):
+            _refuse("the stack's convolutions must all have a bias, or none")
+        if any(m.padding not in ((0,), "valid") for m in (c, sk) + ((r,) if r is not None else ())):
+            _refuse(f"level {i}: pad the stack's convolutions with F.pad on the left, not with padding=")
+    wn = EarshotWaveNet(inp.in_channels, C, S, k, [c.dilation[0] for c in convs], bias)
+    wn.input.weight, wn.input.bias = inp.weight, inp.bias
+    for i, (c, sk, r) in enumerate(zip(convs, skips, res)):
+        layer = wn.layers[i]
+        layer.conv.weight, layer.conv.bias = c.weight, c.bias
+        layer.skip.weight, layer.skip.bias = sk.weight, sk.bias
+        if r is not None:
+            layer.res.weight, layer.res.bias = r.weight, r.bias
+        else:  # the last level's residual is never used: zeros add nothing
+            with torch.no_grad():
+                layer.res.weight.zero_()
+                if bias:
+                    layer.res.bias.zero_()
+    names = [inp_name] + [t[1] for t in terms] + [t[3] for t in terms] + [lv[2] for lv in levels]
+    return _Chain(first.names, first.layers[:-1] + [(_common_name(names, "wavenet"), wn)])
+
+
 def _dim_arg(node, pos, default=None):
     if len(node.args) > pos:
         return node.args[pos]
     return node.kwargs.get("dim", default)
 
 
-def _function(node, chain_in, roles_of, width_of, activation, val, signal_args):
+def _function(node, chain_in, roles_of, width_of, activation, val, signal_args, all_controls):
     t = node.target
     is_method = node.op == "call_method"
     # sizes and shapes: arguments of layout changes
@@ -508,6 +745,8 @@ def _function(node, chain_in, roles_of, width_of, activation, val, signal_args):
         v = val(node.args[0])
         if isinstance(v, _Controls):
             return _Chain(v.names) if "T" in roles_of(node) else v
+        if isinstance(v, (_SkipSum, _CtlLinear)):
+            return v
         if isinstance(v, (_Chain, _Half)):
             if isinstance(v, _Chain) and sorted(r for r in roles_of(node) if r != "C") != sorted(
                     r for r in roles_of(node.args[0]) if r != "C"):
@@ -520,6 +759,8 @@ def _function(node, chain_in, roles_of, width_of, activation, val, signal_args):
         if roles_of(node)[dim] != "C":
             _refuse(f"concatenation on a {'batch' if roles_of(node)[dim] == 'B' else 'time'} axis; "
                     "audio and controls are concatenated on the channel axis")
+        if all(isinstance(p, _Controls) for p in parts):
+            return _Controls([n for p in parts for n in p.names])
         names = []
         for p in parts:
             if isinstance(p, _Controls):
@@ -561,9 +802,18 @@ def _function(node, chain_in, roles_of, width_of, activation, val, signal_args):
             _refuse("padding other than zeros")
         if pad[1]:
             _refuse(f"{pad[1]} samples of padding on the right look ahead in time (a causal effect pads on the left)")
-        return _Chain(c.names, c.layers, c.pad_left + pad[0])
+        return c.padded(pad[0])
     if (not is_method and t in (operator.add, torch.add)) or (is_method and t == "add"):
         a, b = val(node.args[0]), val(node.args[1])
+        stacked = _stack_add(a, b)
+        if stacked is not None:
+            return stacked
+        for sc, beta in ((a, b), (b, a)):
+            if isinstance(sc, _Scaled) and isinstance(beta, _CtlLinear):
+                return _film_of(sc.chain, sc.gamma, beta, all_controls, width_of(node))
+        block = _tcn_add(a, b)
+        if block is not None:
+            return block
         for out, inp in ((a, b), (b, a)):
             if isinstance(out, _Chain) and isinstance(inp, _Chain) and inp.is_audio and not out.is_input:
                 if out.pad_left or out.excess_right:
@@ -574,6 +824,11 @@ def _function(node, chain_in, roles_of, width_of, activation, val, signal_args):
         _refuse("an addition other than the residual add of the input to the one-channel output")
     if (not is_method and t in (operator.mul, torch.mul)) or (is_method and t == "mul"):
         a, b = val(node.args[0]), val(node.args[1])
+        for g, c in ((a, b), (b, a)):
+            if isinstance(g, _CtlLinear) and isinstance(c, _Chain) and not c.is_input:
+                if c.pad_left or c.excess_right:
+                    _refuse("FiLM of padded output")
+                return _Scaled(c, g)
         if isinstance(a, _Half) and isinstance(b, _Half) and a.chain is b.chain:
             by_fn = {a.fn: a.index, b.fn: b.index}
             if by_fn.get("tanh") == 0 and by_fn.get("sigmoid") == 1:
@@ -595,7 +850,7 @@ def _slice(node, chain, idx, roles_of):
             continue
         if r == "T" and isinstance(p, slice) and p.start in (None, 0) and p.step in (None, 1) and \
                 isinstance(p.stop, int) and p.stop < 0 and chain.excess_right == -p.stop:
-            return _Chain(chain.names, chain.layers)
+            return chain.trimmed()
         _refuse(f"slicing {parts} of a {roles} signal (only trimming a padded convolution's "
                 f"{chain.excess_right} samples of look-ahead on the right is expressible)")
     return chain

@@ -379,3 +379,75 @@ def test_verify_f16_file_row_of_the_model_is_informative(core, tmp_path):
     line = [l for l in r.stdout.splitlines() if "your model, float32" in l][0]
     assert "informative" in line and "F16" in line
     assert r.returncode == 0 and "PASS" in r.stdout, r.stdout + r.stderr
+
+
+class HandWaveNet(nn.Module):
+    """(3) a WaveNet-style stack written with nn.ModuleList, F.pad and gated units by chunk:
+    h0 = 1x1 conv; per level z = conv(pad(h)), g = tanh * sigmoid of its halves,
+    h = h + res(g), skips summed; a 1x1 head after a ReLU."""
+
+    def __init__(self, channels=6, skip=5, kernel=3, dilations=(1, 2, 4, 8)):
+        super().__init__()
+        self.kernel, self.dilations = kernel, list(dilations)
+        self.inp = nn.Conv1d(1, channels, 1)
+        self.convs = nn.ModuleList(nn.Conv1d(channels, 2 * channels, kernel, dilation=d) for d in dilations)
+        self.res = nn.ModuleList(nn.Conv1d(channels, channels, 1) for _ in dilations[:-1])
+        self.skips = nn.ModuleList(nn.Conv1d(channels, skip, 1) for _ in dilations)
+        self.head = nn.Conv1d(skip, 1, 1)
+
+    def forward(self, x):
+        h = self.inp(x.unsqueeze(1))
+        out = 0
+        for i, d in enumerate(self.dilations):
+            a, b = self.convs[i](F.pad(h, ((self.kernel - 1) * d, 0))).chunk(2, dim=1)
+            g = torch.tanh(a) * torch.sigmoid(b)
+            out = out + self.skips[i](g)
+            if i < len(self.res):
+                h = h + self.res[i](g)
+        return self.head(torch.relu(out)).squeeze(1)
+
+
+def test_style_3_wavenet_written_out(core, tmp_path):
+    torch.manual_seed(3)
+    fx = compare(tmp_path, HandWaveNet(), lambda m, x, c: m(x), name="(3) WaveNet stack, ModuleList + chunk gates")
+    assert [type(l).__name__ for l in fx.layers] == ["WaveNet", "Activation", "CausalConv1d"]
+    assert fx.layers[0].dilations == [1, 2, 4, 8]
+
+
+class FilmBlock(nn.Module):
+    def __init__(self, cin, cout, kernel, dilation, n_params):
+        super().__init__()
+        self.pad = (kernel - 1) * dilation
+        self.conv = nn.Conv1d(cin, cout, kernel, dilation=dilation)
+        self.gamma = nn.Linear(n_params, cout)
+        self.beta = nn.Linear(n_params, cout)
+        self.act = nn.LeakyReLU(0.2)
+        self.res = nn.Conv1d(cin, cout, 1, bias=False) if cin != cout else None
+
+    def forward(self, x, p):
+        y = self.conv(F.pad(x, (self.pad, 0)))
+        y = self.act(self.gamma(p).unsqueeze(-1) * y + self.beta(p).unsqueeze(-1))
+        return y + (x if self.res is None else self.res(x))
+
+
+class FilmTCN(nn.Module):
+    """(4) a TCN whose blocks take FiLM written as separate nn.Linear layers producing gamma and beta."""
+
+    def __init__(self):
+        super().__init__()
+        self.blocks = nn.ModuleList([FilmBlock(1, 6, 5, 1, 2), FilmBlock(6, 6, 3, 4, 2), FilmBlock(6, 6, 3, 16, 2)])
+        self.out = nn.Conv1d(6, 1, 1)
+
+    def forward(self, x, params):
+        h = x.unsqueeze(1)
+        for b in self.blocks:
+            h = b(h, params)
+        return self.out(h).squeeze(1)
+
+
+def test_style_4_tcn_with_film_written_out(core, tmp_path):
+    torch.manual_seed(4)
+    ctl = [{"name": "attack", "default": 0.3}, {"name": "ratio", "min": 1, "max": 10, "default": 4}]
+    fx = compare(tmp_path, FilmTCN(), lambda m, x, c: m(x, c[:, 0, :]), ctl, name="(4) TCN, FiLM by nn.Linear")
+    assert [type(l).__name__ for l in fx.layers] == ["TCNBlock", "TCNBlock", "TCNBlock", "CausalConv1d"]
+    assert fx.layer_names[:3] == ["blocks.0", "blocks.1", "blocks.2"]
