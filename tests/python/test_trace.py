@@ -23,6 +23,7 @@ from earshot import native
 from earshot.layer_types import ExportError
 from earshot.modules import smooth_controls
 from earshot.signals import programme
+from conftest import add_report_row
 
 torch.set_num_threads(1)
 RATE = 48000
@@ -33,6 +34,14 @@ ROOT = os.path.dirname(os.path.dirname(HERE))
 def esr_db(ref, out):
     num, den = np.sum((ref - out) ** 2), np.sum(ref ** 2)
     return -np.inf if num == 0 else float(10 * np.log10(num / den))
+
+
+def report(case, n, e, m):
+    """A row of the parity report printed at the end of the session (conftest.py): core vs the
+    researcher's own forward in float32."""
+    add_report_row({"case": case[:58], "variant": "-", "file": "F32",
+                    "n": n, "esr32": e, "max32": m, "esr64": np.nan, "esr_ref": np.nan, "max_ref": np.nan,
+                    "target": "ESR<=-100,max<=1e-05", "ok": e <= -100 and m <= 1e-5})
 
 
 def compare(tmp_path, model, call, controls=(), events=(), name="style"):
@@ -52,6 +61,7 @@ def compare(tmp_path, model, call, controls=(), events=(), name="style"):
     y_ref = y_ref.reshape(-1).double().numpy()
     e, m = esr_db(y_ref, y_core), float(np.max(np.abs(y_ref - y_core)))
     print(f"\n{name}: ESR {e:.1f} dB, max abs {m:.2e} ({n} samples, {len(events)} control changes)")
+    report(f"own module {name}", n, e, m)
     assert np.sum(y_ref ** 2) > 1e-6 * n, "the model's output is nearly silent"
     assert e <= -100 and m <= 1e-5, f"{name}: ESR {e:.1f} dB, max abs {m:.2e}"
     return earshot.load(path)
@@ -239,6 +249,7 @@ def test_style_8_saved_model_through_the_cli(core, tmp_path):
                       torch.tensor([[0.6]])).reshape(-1).double().numpy()
         e, mx = esr_db(y_ref, y_core), float(np.max(np.abs(y_ref - y_core)))
         print(f"\n(8) torch.save + python3 -m earshot export: ESR {e:.1f} dB, max abs {mx:.2e}")
+        report("own module (8) torch.save + python3 -m earshot export", len(x), e, mx)
         assert e <= -100 and mx <= 1e-5
     finally:
         sys.path.remove(str(tmp_path))
