@@ -210,6 +210,54 @@ test('a bundled clip renders and plays with lockstep A/B switching and loudness 
   assert.deepEqual(problems, []);
 });
 
+test('a result goes out of date when a setting changes, says what changed, and renders again', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  await selectEffect(page, 'tcn'); // it has controls (page defaults drive 0.7, tone -3)
+  await page.click('#clip-use');
+  await page.waitForSelector('#offline-source:not([hidden])');
+  await page.click('#render');
+  await page.waitForSelector('#offline-status[data-kind=ok]', { timeout: 60000 });
+  const name = await page.getAttribute('#control-0', 'data-control');
+  const before = await page.inputValue('#control-0-value');
+  const facts = await page.textContent('#result-facts');
+  assert.match(facts, new RegExp(`Settings${name} ${before}, .*; mix 100 % wet; input gain \\+?0\\.0 dB; output gain \\+?0\\.0 dB`));
+  assert.equal(await page.isHidden('#result-stale'), true);
+
+  // A control moves: the result says it is out of date and names the change.
+  const other = String(Number(before) === 0.2 ? 0.3 : 0.2);
+  await page.fill('#control-0-value', other);
+  await page.press('#control-0-value', 'Tab');
+  await page.waitForSelector('#result-stale:not([hidden])');
+  assert.equal(await page.textContent('#result-stale-text'),
+    `Out of date: changed since this render: ${name} ${before} → ${other}.`);
+  // The mix too; both are listed.
+  await page.$eval('#mix', (e) => { e.value = '50'; e.dispatchEvent(new Event('input')); });
+  assert.match(await page.textContent('#result-stale-text'), /; mix 100 % wet → 50 % wet\.$/);
+  // On a phone the notice and the result fit the screen: no sideways scroll.
+  await page.setViewportSize({ width: 390, height: 844 });
+  const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+  assert.ok(overflow <= 0, `with a result out of date the page is ${overflow} px wider than a 390 px screen`);
+  // Back to what was rendered: current again.
+  await page.$eval('#mix', (e) => { e.value = '100'; e.dispatchEvent(new Event('input')); });
+  await page.fill('#control-0-value', before);
+  await page.press('#control-0-value', 'Tab');
+  await page.waitForSelector('#result-stale', { state: 'hidden' });
+  assert.equal(await page.getAttribute('#result', 'data-stale'), 'false');
+
+  // Changed again, then "Render again": the new result lists the new value and is current.
+  await page.fill('#control-0-value', other);
+  await page.press('#control-0-value', 'Tab');
+  await page.waitForSelector('#result-stale:not([hidden])');
+  await page.evaluate(() => { document.getElementById('offline-status').dataset.kind = 'busy'; });
+  await page.click('#rerender');
+  await page.waitForSelector('#offline-status[data-kind=ok]', { timeout: 60000 });
+  await page.waitForSelector('#result-stale', { state: 'hidden' });
+  assert.match(await page.textContent('#result-facts'), new RegExp(`Settings${name} ${other}, `));
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
 test('a corrupt effect file and a non-audio upload each give a clear error and leave the page working', async () => {
   const { page, problems } = await openPage(browser.context, server.url);
   await waitForCheck(page);

@@ -12,6 +12,21 @@ import { drawWave } from './waveform.js';
 import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
 
+function showValue(v) {
+  return v === undefined ? '–' : Number.isInteger(v) ? String(v) : String(Number(v.toPrecision(6)));
+}
+
+function mixText(m) {
+  return `${fixed(100 * m, 0)} % wet`;
+}
+
+// The settings a render used, as the result details list them.
+export function settingsText(s) {
+  const ctl = Object.entries(s.controls).map(([k, v]) => `${k} ${showValue(v)}`);
+  return [ctl.length ? ctl.join(', ') : 'no controls', `mix ${mixText(s.mix)}`, `input gain ${db(s.inputDb)}`,
+    `output gain ${db(s.outputDb)}`].concat(s.bypass ? ['bypass on'] : []).join('; ');
+}
+
 export class OfflinePanel {
   constructor(engine, controls, site) {
     this.engine = engine;
@@ -35,6 +50,8 @@ export class OfflinePanel {
       $('clip-use').addEventListener('click', () => this.useClip($('clip-select').value));
     }
     $('render').addEventListener('click', () => this.render());
+    $('rerender').addEventListener('click', () => this.render());
+    controls.onChange(() => this.markStale());
     $('render-cancel').addEventListener('click', () => this.cancel('Cancelled.'));
     $('play').addEventListener('click', () => this.togglePlay());
     $('position').addEventListener('input', (e) => this.player.seek((Number(e.target.value) / 1000) * this.player.duration));
@@ -62,6 +79,34 @@ export class OfflinePanel {
   setEffect(fx) {
     this.effect = fx;
     this.updateButtons();
+    this.markStale();
+  }
+
+  // What changed between the shown result and what a render would use now:
+  // the effect, a control, the mix, a gain or bypass. An out-of-date result
+  // says so and offers to render again; it is never shown as current.
+  markStale() {
+    const r = this.result;
+    const box = $('result-stale');
+    if (!r) {
+      box.hidden = true;
+      return;
+    }
+    const now = this.controls.settings();
+    const was = r.settings;
+    const changes = [];
+    if (this.effect && this.effect.id !== r.effectId) changes.push(`effect ${r.effectName} → ${this.effect.name}`);
+    else {
+      for (const [name, v] of Object.entries(was.controls))
+        if (now.controls[name] !== v) changes.push(`${name} ${showValue(v)} → ${showValue(now.controls[name])}`);
+    }
+    if (now.mix !== was.mix) changes.push(`mix ${mixText(was.mix)} → ${mixText(now.mix)}`);
+    if (now.inputDb !== was.inputDb) changes.push(`input gain ${db(was.inputDb)} → ${db(now.inputDb)}`);
+    if (now.outputDb !== was.outputDb) changes.push(`output gain ${db(was.outputDb)} → ${db(now.outputDb)}`);
+    if (now.bypass !== was.bypass) changes.push(now.bypass ? 'bypass on' : 'bypass off');
+    box.hidden = changes.length === 0;
+    $('result').dataset.stale = changes.length ? 'true' : 'false';
+    setText($('result-stale-text'), `Out of date: changed since this render: ${changes.join('; ')}.`);
   }
 
   setSource(blob, name, kind) {
@@ -212,6 +257,8 @@ export class OfflinePanel {
     add('Render time', `${fmtSeconds(r.processMs / 1000)} of processing, ${fixed(audioSeconds * r.channels / Math.max(1e-3, r.processMs / 1000), 1)}× real time per channel`);
     add('Peak', `original ${fixed(dbfs(r.inputPeak), 1)} dBFS, processed ${fixed(dbfs(r.outputPeak), 1)} dBFS${r.outputPeak > 1 ? ' (above full scale: the WAV keeps it, playback clips)' : ''}`);
     if (r.nonfinite) add('Non-finite blocks', `${r.nonfinite} (each silenced and the state reset)`);
+    add('Settings', settingsText(settings));
+    this.markStale();
     this.applyMatch();
     status(this.status, 'ok', `Rendered ${r.name} through ${fx.name}.`);
     this.updatePlay();
