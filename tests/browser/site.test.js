@@ -258,6 +258,56 @@ test('a result goes out of date when a setting changes, says what changed, and r
   assert.deepEqual(problems, []);
 });
 
+test('the address keeps the settings: opened elsewhere it restores them and renders the same samples', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  await selectEffect(page, 'tcn');
+  await page.fill('#control-0-value', '0.25');
+  await page.press('#control-0-value', 'Tab');
+  await page.$eval('#mix', (e) => { e.value = '40'; e.dispatchEvent(new Event('input')); });
+  await page.$eval('#input-gain', (e) => { e.value = '-6'; e.dispatchEvent(new Event('input')); });
+  await page.click('#clip-use');
+  await page.waitForSelector('#offline-source:not([hidden])');
+  await page.click('#render');
+  await page.waitForSelector('#offline-status[data-kind=ok]', { timeout: 60000 });
+  await page.check('#ab-original');
+  const first = await page.getAttribute('#result', 'data-hash');
+  assert.match(first, /^[0-9a-f]{16}$/);
+  const address = page.url();
+  const name = await page.getAttribute('#control-0', 'data-control');
+  assert.match(address, new RegExp(`#fx=tcn&clip=[^&]+&c\\.${name}=0\\.25&.*mix=0\\.4&in=-6&out=0&ab=original$`));
+  await page.close();
+
+  const again = await openPage(browser.context, address);
+  const p2 = again.page;
+  await waitForCheck(p2, 'site:tcn');
+  await p2.waitForFunction(() => document.body.dataset.ready === 'true');
+  assert.equal(await p2.inputValue('#effect-select'), 'site:tcn');
+  assert.equal(await p2.inputValue('#control-0-value'), '0.25');
+  assert.equal(await p2.inputValue('#mix'), '40');
+  assert.equal(await p2.inputValue('#input-gain'), '-6');
+  assert.equal(await p2.isChecked('#ab-original'), true);
+  await p2.waitForSelector('#offline-source:not([hidden])');
+  await p2.click('#render');
+  await p2.waitForSelector('#offline-status[data-kind=ok]', { timeout: 60000 });
+  assert.equal(await p2.getAttribute('#result', 'data-hash'), first);
+  assert.equal(p2.url(), address);
+  await p2.close();
+  assert.deepEqual(problems, []);
+  assert.deepEqual(again.problems, []);
+
+  // An address from anyone: unknown ids, out-of-range and non-numbers are ignored, markup stays text.
+  const hostile = await openPage(browser.context,
+    `${server.url.replace(/\/$/, '')}/#fx=%3Cimg%20src%3Dx%20onerror%3Dalert(1)%3E&clip=nope&c.drive=1e999&c.tone=abc&mix=7&in=-999&bypass=0`);
+  await waitForCheck(hostile.page);
+  await hostile.page.waitForFunction(() => document.body.dataset.ready === 'true');
+  assert.equal(await hostile.page.inputValue('#mix'), '100');
+  assert.equal(await hostile.page.inputValue('#input-gain'), '0');
+  assert.equal(await hostile.page.$$eval('img', (l) => l.length), 0);
+  await hostile.page.close();
+  assert.deepEqual(hostile.problems, []);
+});
+
 test('a corrupt effect file and a non-audio upload each give a clear error and leave the page working', async () => {
   const { page, problems } = await openPage(browser.context, server.url);
   await waitForCheck(page);

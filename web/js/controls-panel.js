@@ -68,6 +68,28 @@ export class ControlsPanel {
     this.changed();
   }
 
+  // Settings from a shared address (share.js): each value goes through the
+  // same checks as a typed one; one out of range is left at its default.
+  restore(s) {
+    if (!this.effect) return;
+    this.effect.controls.forEach((c, i) => {
+      const v = s.controls[c.name];
+      if (v === undefined) return;
+      const number = $(`control-${i}-value`);
+      number.value = String(v);
+      number.dispatchEvent(new Event('change'));
+    });
+    const slider = (id, v, lo, hi) => {
+      if (v === undefined || v < lo || v > hi) return;
+      $(id).value = String(v);
+      $(id).dispatchEvent(new Event('input'));
+    };
+    slider('input-gain', s.inputDb, Number($('input-gain').min), Number($('input-gain').max));
+    slider('output-gain', s.outputDb, Number($('output-gain').min), Number($('output-gain').max));
+    if (s.mix !== undefined) slider('mix', 100 * s.mix, 0, 100);
+    if (s.bypass !== undefined && s.bypass !== this.bypass) $('bypass').click();
+  }
+
   controlRow(c, i, value) {
     const id = `control-${i}`;
     this.values[c.name] = value;

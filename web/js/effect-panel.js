@@ -27,8 +27,9 @@ export class EffectPanel {
     return item;
   }
 
-  initialKey() {
-    const wanted = new URLSearchParams(location.search).get('effect');
+  // The effect a shared address (#fx=) or ?effect= names, else the first.
+  initialKey(shared) {
+    const wanted = shared || new URLSearchParams(location.search).get('effect');
     const hit = wanted && this.entries.find((e) => e.entry && e.entry.id === wanted);
     return (hit || this.entries[0]).key;
   }

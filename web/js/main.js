@@ -10,6 +10,7 @@ import { ControlsPanel } from './controls-panel.js';
 import { SelfCheck } from './selfcheck.js';
 import { OfflinePanel } from './offline-panel.js';
 import { LivePanel } from './live-panel.js';
+import { readState, writeState } from './share.js';
 
 function showSite(site) {
   document.title = site.title;
@@ -63,7 +64,31 @@ async function main() {
     offline.setEffect(fx);
     live.setEffect(fx);
   });
-  await effects.choose(effects.initialKey());
+  // The address fragment keeps the state, so the address can be shared (share.js).
+  const shared = readState(location.hash);
+  let restoring = true;
+  const save = () => {
+    if (restoring) return;
+    const fx = effects.current;
+    const s = controls.settings();
+    const ab = $('ab-original').checked ? 'original' : undefined;
+    history.replaceState(null, '', writeState({
+      fx: fx && fx.key.startsWith('site:') ? fx.id : undefined, clip: offline.clipId, controls: s.controls,
+      mix: s.mix, inputDb: s.inputDb, outputDb: s.outputDb, bypass: s.bypass, ab,
+    }));
+  };
+  controls.onChange(save);
+  $('clip-use').addEventListener('click', () => setTimeout(save, 0));
+  for (const id of ['ab-original', 'ab-processed']) $(id).addEventListener('change', save);
+  await effects.choose(effects.initialKey(shared.fx));
+  controls.restore(shared);
+  if (shared.clip && site.clips.some((c) => c.id === shared.clip)) await offline.useClip(shared.clip);
+  if (shared.ab) {
+    $(`ab-${shared.ab}`).checked = true;
+    $(`ab-${shared.ab}`).dispatchEvent(new Event('change'));
+  }
+  restoring = false;
+  save();
   document.body.dataset.ready = 'true';
 }
 

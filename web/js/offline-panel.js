@@ -11,6 +11,15 @@ import { fetchBytes, siteUrl } from './site.js';
 import { drawWave } from './waveform.js';
 import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
+import { fnv1a64 } from './test-signal.js';
+
+// One hash of every processed channel, in order (a render can be compared with another).
+function outputHash(buf) {
+  const n = buf.length;
+  const all = new Float32Array(n * buf.numberOfChannels);
+  for (let c = 0; c < buf.numberOfChannels; c++) all.set(buf.getChannelData(c), c * n);
+  return fnv1a64(all);
+}
 
 function showValue(v) {
   return v === undefined ? '–' : Number.isInteger(v) ? String(v) : String(Number(v.toPrecision(6)));
@@ -110,6 +119,7 @@ export class OfflinePanel {
   }
 
   setSource(blob, name, kind) {
+    if (kind !== 'bundled clip') this.clipId = undefined;
     this.source = { blob, name };
     const src = $('offline-source');
     setText(src, `Ready: ${name} (${kind}, ${(blob.size / 1048576).toFixed(1)} MB).`);
@@ -121,6 +131,8 @@ export class OfflinePanel {
   async useClip(id) {
     const clip = this.site.clips.find((c) => c.id === id);
     if (!clip) return;
+    $('clip-select').value = id;
+    this.clipId = id;
     try {
       const bytes = await fetchBytes(siteUrl(this.site, clip.file), `clip '${clip.name}'`);
       this.setSource(new Blob([bytes]), clip.name, 'bundled clip');
@@ -258,6 +270,9 @@ export class OfflinePanel {
     add('Peak', `original ${fixed(dbfs(r.inputPeak), 1)} dBFS, processed ${fixed(dbfs(r.outputPeak), 1)} dBFS${r.outputPeak > 1 ? ' (above full scale: the WAV keeps it, playback clips)' : ''}`);
     if (r.nonfinite) add('Non-finite blocks', `${r.nonfinite} (each silenced and the state reset)`);
     add('Settings', settingsText(settings));
+    const hash = outputHash(this.player.processed);
+    $('result').dataset.hash = hash;
+    add('Output hash', `${hash} (FNV-1a 64 of the processed float32 samples, channel after channel)`);
     this.markStale();
     this.applyMatch();
     status(this.status, 'ok', `Rendered ${r.name} through ${fx.name}.`);
