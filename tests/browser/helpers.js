@@ -187,7 +187,11 @@ print(json.dumps(res))
   return JSON.parse(r.stdout);
 }
 
+// A scratch path, empty: a file an earlier run left there is removed, so a
+// tool that refuses to overwrite (earshot render without --force) still runs.
 export function tmpFile(name) {
   mkdirSync(join(WORK, 'tmp'), { recursive: true });
-  return join(WORK, 'tmp', name);
+  const path = join(WORK, 'tmp', name);
+  rmSync(path, { force: true });
+  return path;
 }
