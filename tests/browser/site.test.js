@@ -308,6 +308,56 @@ test('the address keeps the settings: opened elsewhere it restores them and rend
   assert.deepEqual(hostile.problems, []);
 });
 
+// WCAG 2.1 (W3C Recommendation, 2018), definitions "relative luminance" and
+// "contrast ratio": sRGB channels linearised, L = 0.2126 R + 0.7152 G + 0.0722 B,
+// ratio (L1 + 0.05) / (L2 + 0.05).
+function contrast(a, b) {
+  const lum = (hex) => {
+    const [r, g, bl] = [1, 3, 5].map((i) => parseInt(hex.slice(i, i + 2), 16) / 255)
+      .map((c) => (c <= 0.03928 ? c / 12.92 : ((c + 0.055) / 1.055) ** 2.4));
+    return 0.2126 * r + 0.7152 * g + 0.0722 * bl;
+  };
+  const [hi, lo] = [lum(a), lum(b)].sort((x, y) => y - x);
+  return (hi + 0.05) / (lo + 0.05);
+}
+
+test('light and dark themes follow prefers-color-scheme and hold WCAG contrast; screenshots of both', async () => {
+  for (const scheme of ['light', 'dark']) {
+    const { page, problems } = await openPage(browser.context, server.url);
+    await page.emulateMedia({ colorScheme: scheme });
+    await waitForCheck(page);
+    await page.click('#clip-use');
+    await page.waitForSelector('#offline-source:not([hidden])');
+    await page.click('#render');
+    await page.waitForSelector('#offline-status[data-kind=ok]', { timeout: 60000 });
+    const c = await page.evaluate(() => {
+      const s = getComputedStyle(document.documentElement);
+      const names = ['--paper', '--panel', '--ink', '--muted', '--ok', '--ok-bg', '--bad', '--bad-bg', '--processed',
+        '--original', '--wave-bg', '--accent', '--accent-ink'];
+      return { ...Object.fromEntries(names.map((k) => [k, s.getPropertyValue(k).trim()])),
+        body: getComputedStyle(document.body).backgroundColor, scheme: s.colorScheme };
+    });
+    assert.equal(c.scheme, scheme);
+    const [r, g, b] = c.body.match(/\d+/g).map(Number);
+    assert.ok(scheme === 'dark' ? r + g + b < 150 : r + g + b > 600, `${scheme}: body background ${c.body}`);
+    // SC 1.4.6 (enhanced, 7:1) for body text; SC 1.4.3 (4.5:1) for the rest of the text;
+    // SC 1.4.11 (3:1) for the waveforms.
+    const need = [['--ink', '--paper', 7], ['--ink', '--panel', 7], ['--muted', '--panel', 4.5], ['--ok', '--ok-bg', 4.5],
+      ['--bad', '--bad-bg', 4.5], ['--accent-ink', '--accent', 4.5], ['--processed', '--wave-bg', 3], ['--original', '--wave-bg', 3]];
+    for (const [fg, bg, min] of need) {
+      const ratio = contrast(c[fg], c[bg]);
+      assert.ok(ratio >= min, `${scheme}: ${fg} on ${bg} is ${ratio.toFixed(2)}:1, needs ${min}:1`);
+    }
+    await page.screenshot({ path: join(ARTIFACTS, `page-${scheme}-desktop.png`), fullPage: true });
+    await page.setViewportSize({ width: 390, height: 844 });
+    const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+    assert.ok(overflow <= 0, `${scheme}: after a render the page is ${overflow} px wider than a 390 px screen`);
+    await page.screenshot({ path: join(ARTIFACTS, `page-${scheme}-phone.png`), fullPage: true });
+    await page.close();
+    assert.deepEqual(problems, []);
+  }
+});
+
 test('a corrupt effect file and a non-audio upload each give a clear error and leave the page working', async () => {
   const { page, problems } = await openPage(browser.context, server.url);
   await waitForCheck(page);

@@ -8,7 +8,7 @@
 import { $, el, clear, setText, status } from './dom.js';
 import { looksLikeWav, floatWavHeader, MAX_RENDER_FRAMES } from './wav.js';
 import { fetchBytes, siteUrl } from './site.js';
-import { drawWave } from './waveform.js';
+import { drawWave, themeColour } from './waveform.js';
 import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
 import { fnv1a64 } from './test-signal.js';
@@ -323,8 +323,8 @@ export class OfflinePanel {
     if (!r || $('result').hidden) return;
     const d = this.player.duration;
     const pos = d ? this.player.position() / d : null;
-    drawWave($('wave-in'), r.inputPeaks, '#6b7a90', pos);
-    drawWave($('wave-out'), r.outputPeaks, '#1f7a74', pos);
+    drawWave($('wave-in'), r.inputPeaks, themeColour('--original'), pos);
+    drawWave($('wave-out'), r.outputPeaks, themeColour('--processed'), pos);
   }
 
   // A float32 WAV of the processed result, built a slice at a time.

@@ -1,6 +1,11 @@
 // Draws a waveform from min/max peaks (computed in the Worker) on a canvas,
 // with an optional play-position line.
 
+// A colour of the page's theme (style.css custom properties; the dark theme changes them).
+export function themeColour(name) {
+  return getComputedStyle(document.documentElement).getPropertyValue(name).trim();
+}
+
 export function drawWave(canvas, peaks, colour, position = null) {
   const dpr = Math.max(1, Math.min(3, window.devicePixelRatio || 1));
   const w = Math.max(50, Math.round(canvas.clientWidth * dpr));
@@ -9,7 +14,7 @@ export function drawWave(canvas, peaks, colour, position = null) {
   if (canvas.height !== h) canvas.height = h;
   const g = canvas.getContext('2d');
   g.clearRect(0, 0, w, h);
-  g.fillStyle = '#e6e1d6';
+  g.fillStyle = themeColour('--wave-axis');
   g.fillRect(0, Math.floor(h / 2), w, Math.max(1, Math.round(dpr)));
   const { lo, hi } = peaks;
   const n = lo.length;
@@ -30,7 +35,7 @@ export function drawWave(canvas, peaks, colour, position = null) {
     g.fillRect(x, Math.floor(y0), 1, Math.max(1, Math.ceil(y1 - y0)));
   }
   if (position !== null && Number.isFinite(position)) {
-    g.fillStyle = '#1c2533';
+    g.fillStyle = themeColour('--ink');
     g.fillRect(Math.round(position * (w - 1)), 0, Math.max(1, Math.round(dpr)), h);
   }
 }
