@@ -39,7 +39,7 @@ import torch.nn.functional as F
 from torch.fx.passes.shape_prop import ShapeProp
 
 from .layer_types import ExportError, type_of_module
-from .modules import ACTIVATIONS, CausalConv1d, Effect, FiLM, Gated, TCNBlock, WaveNet, control_spec
+from .modules import CausalConv1d, Effect, FiLM, Gated, TCNBlock, WaveNet, control_spec
 
 # (batch, time) of the two shape propagations: the axes that change between
 # them are batch and time; both are primes no layer width is likely to equal,
@@ -386,9 +386,6 @@ def _walk(gm, placeholders, specs, shapes, modes):
             return a
         return vals.get(a, _Opaque()) if isinstance(a, fx.Node) else _Opaque()
 
-    def signal_args(node):
-        return [val(a) for a in node.args if isinstance(val(a), (_Chain, _Controls))]
-
     def chain_in(node, what):
         v = val(node.args[0])
         if isinstance(v, _SkipSum):
@@ -441,7 +438,7 @@ def _walk(gm, placeholders, specs, shapes, modes):
                 m = gm.get_submodule(node.target)
                 vals[node] = _module(node, m, chain_in, roles_of, width_of, activation, val, modes.get(m, False))
             elif node.op == "call_function" or node.op == "call_method":
-                vals[node] = _function(node, chain_in, roles_of, width_of, activation, val, signal_args, all_controls)
+                vals[node] = _function(node, chain_in, roles_of, width_of, activation, val, all_controls)
         except _Refusal as r:
             src = _source(node)
             raise ExportError(f"{_op_text(node, gm)}{' at ' + src if src else ''}: {r}; {_SUPPORTED}") from None
@@ -719,7 +716,7 @@ def _dim_arg(node, pos, default=None):
     return node.kwargs.get("dim", default)
 
 
-def _function(node, chain_in, roles_of, width_of, activation, val, signal_args, all_controls):
+def _function(node, chain_in, roles_of, width_of, activation, val, all_controls):
     t = node.target
     is_method = node.op == "call_method"
     # sizes and shapes: arguments of layout changes
