@@ -13,12 +13,10 @@ import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
 import { fnv1a64 } from './test-signal.js';
 
-// One hash of every processed channel, in order (a render can be compared with another).
+// One hash of every processed channel, in order (a render can be compared with
+// another), without copying the channels into one array.
 function outputHash(buf) {
-  const n = buf.length;
-  const all = new Float32Array(n * buf.numberOfChannels);
-  for (let c = 0; c < buf.numberOfChannels; c++) all.set(buf.getChannelData(c), c * n);
-  return fnv1a64(all);
+  return fnv1a64(...Array.from({ length: buf.numberOfChannels }, (_, c) => buf.getChannelData(c)));
 }
 
 function showValue(v) {

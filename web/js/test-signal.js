@@ -117,23 +117,26 @@ export function testSignal(rate, seconds) {
   return out;
 }
 
-// FNV-1a 64 over the little-endian bytes of each float32 sample, as a
+// FNV-1a 64 over the little-endian bytes of each float32 sample of the arrays
+// given, in order (the hash of their concatenation, without copying), as a
 // 16-digit hex string. 64-bit arithmetic in two 32-bit halves: the prime is
 // 2^40 + 0x1b3, so h · prime = h · 0x1b3 + (h << 40) mod 2^64. The bytes are
 // read through a Uint8Array view, in the platform's order: little-endian on
 // every platform browsers and Node run on, as WebAssembly memory is. The one
 // hash of the page: self-check, stimuli of listening tests, results files.
-export function fnv1a64(samples) {
-  const bytes = new Uint8Array(samples.buffer, samples.byteOffset, samples.byteLength);
+export function fnv1a64(...parts) {
   let hi = 0xcbf29ce4; // offset basis 14695981039346656037 = 0xcbf29ce484222325
   let lo = 0x84222325;
-  for (let i = 0; i < bytes.length; i++) {
-    lo = (lo ^ bytes[i]) >>> 0;
-    const l = lo * 0x1b3; // < 2^41, exact
-    const carry = Math.floor(l / 4294967296);
-    const h = hi * 0x1b3 + carry + ((lo << 8) >>> 0); // < 2^42, exact
-    lo = l % 4294967296;
-    hi = h % 4294967296;
+  for (const samples of parts) {
+    const bytes = new Uint8Array(samples.buffer, samples.byteOffset, samples.byteLength);
+    for (let i = 0; i < bytes.length; i++) {
+      lo = (lo ^ bytes[i]) >>> 0;
+      const l = lo * 0x1b3; // < 2^41, exact
+      const carry = Math.floor(l / 4294967296);
+      const h = hi * 0x1b3 + carry + ((lo << 8) >>> 0); // < 2^42, exact
+      lo = l % 4294967296;
+      hi = h % 4294967296;
+    }
   }
   return hi.toString(16).padStart(8, '0') + lo.toString(16).padStart(8, '0');
 }
