@@ -320,7 +320,8 @@ def _trace(model, controls, modes):
         ShapeProp(gm).propagate(*args)
         shapes.append({n: tuple(n.meta["tensor_meta"].shape) for n in gm.graph.nodes
                        if isinstance(n.meta.get("tensor_meta"), torch.fx.passes.shape_prop.TensorMetadata)})
-    effect_inputs = _walk(gm, placeholders, specs, shapes, modes)
+    ctl_names = _control_names(placeholders, specs, shapes)
+    effect_inputs = _walk(gm, placeholders, specs, shapes, modes, ctl_names)
     chain, skip = effect_inputs
     names = [n for n, _ in chain.layers]
     if len(set(names)) != len(names):
@@ -330,8 +331,8 @@ def _trace(model, controls, modes):
         raise ExportError("the audio argument never reaches the first layer")
     if specs and set(fed) - {c["name"] for c in specs}:
         raise ExportError(f"the forward feeds controls {fed}, the controls given are {[c['name'] for c in specs]}")
-    if not specs and {n for p in placeholders[1:] for n in _control_names(placeholders, specs, shapes)[p]}:
-        specs = [control_spec(n) for p in placeholders[1:] for n in _control_names(placeholders, specs, shapes)[p]]
+    if not specs:  # the controls are named after the forward's arguments
+        specs = [control_spec(n) for p in placeholders[1:] for n in ctl_names[p]]
     try:
         effect = Effect(dict(chain.layers), inputs=chain.names, controls=specs or None, input_skip=skip)
     except ValueError as e:
@@ -370,8 +371,7 @@ def _count_values(node, shapes):
     return _channels(s1, roles)
 
 
-def _walk(gm, placeholders, specs, shapes, modes):
-    ctl_names = _control_names(placeholders, specs, shapes)
+def _walk(gm, placeholders, specs, shapes, modes, ctl_names):
     all_controls = [c["name"] for c in specs] if specs else [n for p in placeholders[1:] for n in ctl_names[p]]
     vals = {}
 
@@ -548,8 +548,8 @@ def _film_of(chain, gamma, beta, all_controls, width):
         film.mlp[0].weight = nn.Parameter(torch.cat([g.weight, b.weight]).detach().clone())
         bias = [m.bias if m.bias is not None else torch.zeros(width) for m in (g, b)]
         film.mlp[0].bias = nn.Parameter(torch.cat(bias).detach().clone())
-    return chain.then(_common_name([gamma.name, beta.name], "film") + (".film" if "." not in gamma.name else ""),
-                      film)
+    # named after the module holding gamma and beta; at the top level after gamma
+    return chain.then(_common_name([gamma.name, beta.name], f"film.{gamma.name}"), film)
 
 
 def _tcn_add(a, b):
