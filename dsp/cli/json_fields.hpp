@@ -4,6 +4,7 @@
 // "demos/site.json: line 12, column 17: effects[1].controls.drive: must be a number, got a string".
 #pragma once
 #include <algorithm>
+#include <cctype>
 #include <cerrno>
 #include <cstring>
 #include <fstream>
@@ -108,6 +109,32 @@ inline size_t utf8_length(const std::string& s) {
   for (unsigned char c : s)
     if ((c & 0xc0) != 0x80) ++n;
   return n;
+}
+
+// A string field of at most max_chars characters (and at least min_chars);
+// "" when absent and not required. Refuses another type, a NUL, a wrong length.
+inline std::string text_field(const Where& w, const std::string& field, const rapidjson::Value* v, bool required,
+                       size_t max_chars, size_t min_chars = 0) {
+  if (!v) {
+    if (required) w.fail(field, "missing (a string is required)");
+    return "";
+  }
+  if (!v->IsString()) w.fail(field, std::string("must be a string, got ") + type_name(*v));
+  const std::string s(v->GetString(), v->GetStringLength());
+  if (s.find('\0') != std::string::npos) w.fail(field, "contains a NUL character");
+  const size_t n = utf8_length(s);
+  if (n < min_chars) w.fail(field, min_chars == 1 ? "is empty" : "is shorter than " + std::to_string(min_chars));
+  if (n > max_chars)
+    w.fail(field, "is " + std::to_string(n) + " characters long, over the limit of " + std::to_string(max_chars));
+  return s;
+}
+
+// An id: 1 .. 64 of [A-Za-z0-9_-] (it names files in a site and page addresses).
+inline bool id_ok(const std::string& id) {
+  if (id.empty() || id.size() > 64) return false;
+  for (unsigned char c : id)
+    if (!(std::isalnum(c) || c == '-' || c == '_')) return false;
+  return true;
 }
 
 // A whole text file; InputError naming `what`, the path and the OS reason.

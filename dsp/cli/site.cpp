@@ -37,6 +37,7 @@
 #include "json_fields.hpp"
 #include "json_reader.hpp"
 #include "output_file.hpp"
+#include "site_grid.hpp"
 #include "site_listening.hpp"
 #include "test_signal.hpp"
 
@@ -90,22 +91,6 @@ constexpr const char* kWorkletFiles[] = {"loader.js", "capabilities.js", "proces
 constexpr int kExcerpt = 64;            // samples of the reference shown in a failing self-check
 constexpr const char* kMarker = ".earshot-site";
 
-std::string text_field(const Where& w, const std::string& field, const rapidjson::Value* v, bool required,
-                       size_t max_chars, size_t min_chars = 0) {
-  if (!v) {
-    if (required) w.fail(field, "missing (a string is required)");
-    return "";
-  }
-  if (!v->IsString()) w.fail(field, std::string("must be a string, got ") + type_name(*v));
-  const std::string s(v->GetString(), v->GetStringLength());
-  if (s.find('\0') != std::string::npos) w.fail(field, "contains a NUL character");
-  const size_t n = utf8_length(s);
-  if (n < min_chars) w.fail(field, min_chars == 1 ? "is empty" : "is shorter than " + std::to_string(min_chars));
-  if (n > max_chars)
-    w.fail(field, "is " + std::to_string(n) + " characters long, over the limit of " + std::to_string(max_chars));
-  return s;
-}
-
 // Links become <a href>: only absolute http and https addresses.
 std::string url_field(const Where& w, const std::string& field, const rapidjson::Value* v) {
   const std::string s = text_field(w, field, v, false, 2000);
@@ -115,13 +100,6 @@ std::string url_field(const Where& w, const std::string& field, const rapidjson:
   for (unsigned char c : s)
     if (c <= 0x20 || c == 0x7f) w.fail(field, "'" + s + "' contains a space or control character");
   return s;
-}
-
-bool id_ok(const std::string& id) {
-  if (id.empty() || id.size() > 64) return false;
-  for (unsigned char c : id)
-    if (!(std::isalnum(c) || c == '-' || c == '_')) return false;
-  return true;
 }
 
 // An id from a file name: its stem, lower-cased, anything else → '-'.
@@ -144,6 +122,7 @@ struct EffectEntry {
 struct ClipEntry {
   std::string field;
   std::string id, file, name, description;
+  std::string reference;  // the clip's reference (e.g. the circuit's output), relative; "" for none
 };
 
 struct Config {
@@ -154,6 +133,7 @@ struct Config {
   rapidjson::Document doc;
   std::shared_ptr<const JsonDocument> source;  // as read, for the positions in refusals
   std::string listening;  // the listening test definition, relative to the config's folder
+  GridSpec grid;          // the comparison grid (site_grid.hpp), when the config has one
 };
 
 // One entry of "effects": file, id (unique, from the file name by default),
@@ -198,13 +178,21 @@ std::vector<ClipEntry> parse_clips(const Where& w, const rapidjson::Value& clips
     ClipEntry cl;
     cl.field = "clips[" + std::to_string(i) + "]";
     if (!e.IsObject()) w.fail(cl.field, std::string("must be an object, got ") + type_name(e));
-    only_fields(w, cl.field, e, {"file", "name", "description"});
+    only_fields(w, cl.field, e, {"file", "id", "name", "description", "reference"});
     cl.file = text_field(w, cl.field + ".file", member(e, "file"), true, 1000, 1);
     cl.name = text_field(w, cl.field + ".name", member(e, "name"), false, 200);
     cl.description = text_field(w, cl.field + ".description", member(e, "description"), false, 4000);
+    cl.reference = text_field(w, cl.field + ".reference", member(e, "reference"), false, 1000, 1);
     if (cl.name.empty()) cl.name = fs::path(cl.file).filename().string();
-    cl.id = id_from(cl.file);
-    for (int k = 2; !clip_ids.insert(cl.id).second; ++k) cl.id = id_from(cl.file) + "-" + std::to_string(k);
+    if (const rapidjson::Value* v = member(e, "id")) {
+      cl.id = text_field(w, cl.field + ".id", v, true, 64, 1);
+      if (!id_ok(cl.id)) w.fail(cl.field + ".id", "'" + cl.id + "' may hold only letters, digits, '-' and '_'");
+      if (!clip_ids.insert(cl.id).second)
+        w.fail(cl.field + ".id", "'" + cl.id + "' is used by an earlier clip; give each clip its own \"id\"");
+    } else {
+      cl.id = id_from(cl.file);
+      for (int k = 2; !clip_ids.insert(cl.id).second; ++k) cl.id = id_from(cl.file) + "-" + std::to_string(k);
+    }
     out.push_back(std::move(cl));
   }
   return out;
@@ -226,7 +214,7 @@ Config parse_config(const std::string& path) {
   if (!c.doc.IsObject()) w.fail("", std::string("the config must be a JSON object, got ") + type_name(c.doc));
   const rapidjson::Value& root = c.doc;
   only_fields(w, "", root,
-              {"version", "title", "description", "paper", "code", "credits", "effects", "clips", "listening"});
+              {"version", "title", "description", "paper", "code", "credits", "effects", "clips", "listening", "grid"});
 
   if (const rapidjson::Value* v = member(root, "version")) {
     if (!v->IsNumber() || v->GetDouble() != 1)
@@ -263,6 +251,9 @@ Config parse_config(const std::string& path) {
   // The listening test definition is checked once the effects and clips are
   // known (plan_listening).
   c.listening = text_field(w, "listening", member(root, "listening"), false, 1000, 1);
+  // The grid's structure here; what it names is checked once the effects and
+  // clips are loaded (plan_site_grid).
+  if (const rapidjson::Value* g = member(root, "grid")) c.grid = parse_grid(w, *g);
   return c;
 }
 
@@ -400,7 +391,7 @@ class SiteFolder {
     const mode_t mask = ::umask(0);  // mkdtemp makes 0700; the site gets what mkdir(0777) would give
     ::umask(mask);
     ::chmod(build_.c_str(), 0777 & ~mask);
-    for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference"}) {
+    for (const char* sub : {"js", "worklet", "wasm", "effects", "clips", "reference", "references"}) {
       fs::create_directories(build_ / sub, ec);
       if (ec) throw InputError("cannot create '" + (build_ / sub).string() + "': " + ec.message());
     }
@@ -583,7 +574,10 @@ std::vector<fs::path> confine_config(const Args& a, const SiteOptions& o, const 
     roots.push_back(p);
   }
   for (const EffectEntry& fx : cfg.effects) confine(o.config_path, fx.field + ".file", roots, o.config_dir, fx.file);
-  for (const ClipEntry& cl : cfg.clips) confine(o.config_path, cl.field + ".file", roots, o.config_dir, cl.file);
+  for (const ClipEntry& cl : cfg.clips) {
+    confine(o.config_path, cl.field + ".file", roots, o.config_dir, cl.file);
+    if (!cl.reference.empty()) confine(o.config_path, cl.field + ".reference", roots, o.config_dir, cl.reference);
+  }
   if (!cfg.listening.empty()) confine(o.config_path, "listening", roots, o.config_dir, cfg.listening);
   return roots;
 }
@@ -683,36 +677,89 @@ struct ClipInfo {
   int rate = 0, channels = 0;
   int64_t frames = 0;
   std::string ext;
+  std::string reference_ext;  // "" when the clip has no reference
 };
 
-// Clips: readable, mono or stereo, WAV or FLAC (both the page and browsers read them).
+// One bundled audio file (a clip or its reference): readable, mono or stereo,
+// WAV or FLAC (both the page and browsers read them).
+ClipInfo check_audio(const fs::path& file, const std::string& shown, const std::string& field, const Where& where) {
+  std::string ext = file.extension().string();
+  for (char& ch : ext) ch = char(std::tolower((unsigned char)ch));
+  if (ext != ".wav" && ext != ".flac")
+    where.fail(field, "'" + shown + "': a bundled clip must be a .wav or .flac file");
+  SF_INFO info{};
+  SNDFILE* f = sf_open(file.string().c_str(), SFM_READ, &info);
+  if (!f) where.fail(field, "cannot read audio file '" + file.string() + "': " + sf_strerror(nullptr));
+  sf_close(f);
+  try {
+    check_declared_length(file.string(), info.format, info.channels, int64_t(info.frames));
+  } catch (const InputError& e) {
+    where.fail(field, e.what());
+  }
+  if (info.channels < 1 || info.channels > 2)
+    where.fail(field, "'" + shown + "' has " + std::to_string(info.channels) + " channels; the page renders mono or stereo only");
+  if (!stream_rate_ok(info.samplerate))
+    where.fail(field, "'" + shown + "' has sample rate " + std::to_string(info.samplerate) + " Hz; " + stream_rates_text());
+  ClipInfo ci;
+  ci.rate = info.samplerate;
+  ci.channels = info.channels;
+  ci.frames = int64_t(info.frames);
+  ci.ext = ext;
+  return ci;
+}
+
+// Clips, and each clip's reference: same rate and channel count as the clip
+// (the page switches between them sample-aligned).
 std::vector<ClipInfo> check_clips(const Config& cfg, const fs::path& config_dir, const Where& where) {
   std::vector<ClipInfo> clip_info(cfg.clips.size());
   for (size_t i = 0; i < cfg.clips.size(); ++i) {
     const ClipEntry& cl = cfg.clips[i];
-    const fs::path file = (config_dir / cl.file).lexically_normal();
-    std::string ext = file.extension().string();
-    for (char& ch : ext) ch = char(std::tolower((unsigned char)ch));
-    if (ext != ".wav" && ext != ".flac")
-      where.fail(cl.field + ".file", "'" + cl.file + "': a bundled clip must be a .wav or .flac file");
-    SF_INFO info{};
-    SNDFILE* f = sf_open(file.string().c_str(), SFM_READ, &info);
-    if (!f) where.fail(cl.field + ".file", "cannot read audio file '" + file.string() + "': " + sf_strerror(nullptr));
-    sf_close(f);
-    try {
-      check_declared_length(file.string(), info.format, info.channels, int64_t(info.frames));
-    } catch (const InputError& e) {
-      where.fail(cl.field + ".file", e.what());
-    }
-    if (info.channels < 1 || info.channels > 2)
-      where.fail(cl.field + ".file", "'" + cl.file + "' has " + std::to_string(info.channels) +
-                                         " channels; the page renders mono or stereo only");
-    if (!stream_rate_ok(info.samplerate))
-      where.fail(cl.field + ".file", "'" + cl.file + "' has sample rate " + std::to_string(info.samplerate) +
-                                         " Hz; " + stream_rates_text());
-    clip_info[i] = {info.samplerate, info.channels, int64_t(info.frames), ext};
+    clip_info[i] = check_audio((config_dir / cl.file).lexically_normal(), cl.file, cl.field + ".file", where);
+    if (cl.reference.empty()) continue;
+    const ClipInfo ref =
+        check_audio((config_dir / cl.reference).lexically_normal(), cl.reference, cl.field + ".reference", where);
+    if (ref.rate != clip_info[i].rate || ref.channels != clip_info[i].channels)
+      where.fail(cl.field + ".reference", "'" + cl.reference + "' is " + std::to_string(ref.channels) + " channel(s) at " +
+                                              std::to_string(ref.rate) + " Hz; the clip '" + cl.file + "' is " +
+                                              std::to_string(clip_info[i].channels) + " at " +
+                                              std::to_string(clip_info[i].rate) + " Hz (a reference must match its clip)");
+    clip_info[i].reference_ext = ref.ext;
   }
   return clip_info;
+}
+
+// The comparison grid: checked against the effects and clips, every cell
+// rendered natively for its hash (site_grid.hpp).
+GridPlan plan_site_grid(const Config& cfg, const std::vector<LoadedEffect>& loaded,
+                        const std::vector<ClipInfo>& clip_info, const fs::path& config_dir, const Where& where,
+                        std::vector<GridEffect>& effects, std::vector<GridClip>& clips) {
+  if (!cfg.grid.present) return GridPlan{};
+  for (size_t i = 0; i < cfg.effects.size(); ++i) {
+    const EffectEntry& fx = cfg.effects[i];
+    GridEffect g;
+    g.id = fx.id;
+    g.field = fx.field;
+    g.path = (config_dir / fx.file).lexically_normal().string();
+    g.bytes = &loaded[i].bytes;
+    for (const auto& d : loaded[i].info["effect"]["controls"].GetArray()) {
+      GridEffect::Control c{json_string(d, "name"), json_number(d, "min"), json_number(d, "max"), json_number(d, "default")};
+      for (const auto& p : fx.controls)
+        if (p.first == c.name) c.value = p.second;
+      g.controls.push_back(c);
+    }
+    effects.push_back(std::move(g));
+  }
+  for (size_t i = 0; i < cfg.clips.size(); ++i) {
+    const ClipEntry& cl = cfg.clips[i];
+    GridClip g;
+    g.id = cl.id;
+    g.field = cl.field;
+    g.file = (config_dir / cl.file).lexically_normal();
+    if (!cl.reference.empty()) g.reference = (config_dir / cl.reference).lexically_normal();
+    g.seconds = double(clip_info[i].frames) / clip_info[i].rate;
+    clips.push_back(std::move(g));
+  }
+  return plan_grid(cfg.grid, effects, clips, where);
 }
 
 // The listening tests: checked against the effects and clips above, every
@@ -836,6 +883,11 @@ void write_clip(Writer& w, SiteFiles& files, const ClipEntry& cl, const ClipInfo
   w.Int(ci.channels);
   w.Key("seconds");
   w.Double(double(ci.frames) / ci.rate);
+  if (!cl.reference.empty()) {
+    const std::string ref_file = "references/" + cl.id + ci.reference_ext;
+    files.copy((config_dir / cl.reference).lexically_normal(), ref_file, "clip reference");
+    write_string(w, "reference", ref_file);
+  }
   w.EndObject();
 }
 
@@ -865,14 +917,18 @@ void write_listening(Writer& w, SiteFiles& files, const ListeningPlan& listening
 // swapped in at the end (SiteFolder). Returns the number of page files.
 size_t write_site(const fs::path& out, const SiteOptions& o, const Config& cfg, const PageSources& src,
                   const std::vector<fs::path>& roots, const std::vector<LoadedEffect>& loaded,
-                  const std::vector<ClipInfo>& clip_info, const ListeningPlan& listening) {
+                  const std::vector<ClipInfo>& clip_info, const ListeningPlan& listening, const GridPlan& grid,
+                  const std::vector<GridEffect>& grid_effects, const std::vector<GridClip>& grid_clips) {
   std::vector<std::pair<std::string, fs::path>> inputs = {{"config file", o.config_path}, {"config folder", roots[0]},
                                                           {"page source", src.assets / "web"},
                                                           {"worklet source", src.assets / "worklet"}};
   inputs.emplace_back("WebAssembly build", src.wasm_simd_path);
   inputs.emplace_back("WebAssembly build", src.wasm_scalar_path);
   for (const EffectEntry& fx : cfg.effects) inputs.emplace_back("effect", o.config_dir / fx.file);
-  for (const ClipEntry& cl : cfg.clips) inputs.emplace_back("clip", o.config_dir / cl.file);
+  for (const ClipEntry& cl : cfg.clips) {
+    inputs.emplace_back("clip", o.config_dir / cl.file);
+    if (!cl.reference.empty()) inputs.emplace_back("clip reference", o.config_dir / cl.reference);
+  }
   for (const auto& c : listening.copies) inputs.emplace_back("listening test file", c.first);
   for (size_t i = 1; i < roots.size(); ++i) inputs.emplace_back("--allow-root folder", roots[i]);
   SiteFolder folder(out, o.force, inputs);
@@ -896,6 +952,7 @@ size_t write_site(const fs::path& out, const SiteOptions& o, const Config& cfg, 
   for (size_t i = 0; i < cfg.clips.size(); ++i) write_clip(w, files, cfg.clips[i], clip_info[i], o.config_dir);
   w.EndArray();
   if (!cfg.listening.empty()) write_listening(w, files, listening);
+  if (cfg.grid.present) write_grid(w, grid, grid_effects, grid_clips);
   w.EndObject();
 
   std::string json = sb.GetString();
@@ -909,7 +966,7 @@ size_t write_site(const fs::path& out, const SiteOptions& o, const Config& cfg, 
 }
 
 void print_site(const fs::path& out, const Config& cfg, size_t page_files, const std::vector<LoadedEffect>& loaded,
-                const ListeningPlan& listening) {
+                const ListeningPlan& listening, const GridPlan& grid) {
   std::error_code ec;
   uintmax_t total = 0;
   for (auto it = fs::recursive_directory_iterator(out, ec); !ec && it != fs::recursive_directory_iterator();
@@ -920,6 +977,9 @@ void print_site(const fs::path& out, const Config& cfg, size_t page_files, const
   if (!cfg.listening.empty())
     std::printf("  listening tests: %zu in listening.json (%zu file(s) copied to listening/), page listen.html\n",
                 listening.tests.size(), listening.copies.size());
+  if (cfg.grid.present)
+    std::printf("  comparison grid: %zu clip(s) x %zu column(s), %.0f s of audio rendered for the cell hashes\n",
+                grid.rows.size(), grid.spec.columns.size(), grid.rendered_seconds);
   for (size_t i = 0; i < cfg.effects.size(); ++i)
     std::printf("  %-20s %6.0f Hz  reference %s (test signal %s)\n", terminal_text(cfg.effects[i].id).c_str(),
                 loaded[i].ref.rate, hex64(loaded[i].ref.output_hash).c_str(), hex64(loaded[i].ref.signal_hash).c_str());
@@ -949,11 +1009,15 @@ int cmd_site(const std::vector<std::string>& argv) {
   const std::vector<LoadedEffect> loaded = load_effects(cfg, o.config_dir, where);
   const std::vector<ClipInfo> clip_info = check_clips(cfg, o.config_dir, where);
   const ListeningPlan listening = plan_site_listening(cfg, loaded, clip_info, o.config_dir, roots, where);
+  std::vector<GridEffect> grid_effects;
+  std::vector<GridClip> grid_clips;
+  const GridPlan grid = plan_site_grid(cfg, loaded, clip_info, o.config_dir, where, grid_effects, grid_clips);
 
   fs::path out = fs::path(o.out).lexically_normal();
   if (!out.has_filename() && out.has_relative_path()) out = out.parent_path();  // "dir/" names "dir"
-  const size_t page_files = write_site(out, o, cfg, src, roots, loaded, clip_info, listening);
-  if (!o.quiet) print_site(out, cfg, page_files, loaded, listening);
+  const size_t page_files =
+      write_site(out, o, cfg, src, roots, loaded, clip_info, listening, grid, grid_effects, grid_clips);
+  if (!o.quiet) print_site(out, cfg, page_files, loaded, listening, grid);
   return kExitOk;
 }
 
