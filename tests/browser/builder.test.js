@@ -59,6 +59,7 @@ function tryConfig(name, config, extra = []) {
 
 const FX = '../fixtures/lstm-12.nfx';
 const TCN = '../fixtures/tcn-film.nfx';
+const MONO = '../fixtures/mono-48k-i16.wav';
 
 const BAD = [
   ['not-json', '{"title": "x",\n "effects": [}', /not-json\.json: line 2, column 14/],
@@ -84,6 +85,33 @@ const BAD = [
   ['clip-channels', { title: 't', effects: [{ file: FX }], clips: [{ file: '../fixtures/three-channels.wav' }] }, /clips\[0\]\.file: '.*' has 3 channels/],
   ['listening-type', { title: 't', effects: [{ file: FX }], listening: {} }, /listening: must be a string, got an object/],
   ['long-title', { title: 'x'.repeat(201), effects: [{ file: FX }] }, /title: is 201 characters long, over the limit of 200/],
+  // The comparison grid (docs/site.md, "The comparison grid").
+  ['grid-no-columns', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO }], grid: {} }, /grid\.columns: missing/],
+  ['grid-two-kinds', { title: 't', effects: [{ file: FX, id: 'a' }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', input: true, effect: 'a' }] } },
+    /grid\.columns\[0\]: names more than one of "input", "reference" and "effect"/],
+  ['grid-no-kind', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x' }] } }, /grid\.columns\[0\]: says what the column plays/],
+  ['grid-input-false', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', input: false }] } }, /grid\.columns\[0\]\.input: must be true/],
+  ['grid-unknown-effect', { title: 't', effects: [{ file: FX, id: 'a' }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', effect: 'b' }] } },
+    /grid\.columns\[0\]\.effect: no effect has the id 'b' \(the effects: a\)/],
+  ['grid-unknown-control', { title: 't', effects: [{ file: TCN, id: 't' }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', effect: 't', controls: { driv: 1 } }] } },
+    /grid\.columns\[0\]\.controls\.driv: the effect 't' has no control named 'driv' \(its controls: drive, tone\)/],
+  ['grid-control-range', { title: 't', effects: [{ file: TCN, id: 't' }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', effect: 't', controls: { drive: 7 } }] } },
+    /grid\.columns\[0\]\.controls\.drive: 7 is outside the range of drive/],
+  ['grid-controls-on-input', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', input: true, controls: {} }] } },
+    /grid\.columns\[0\]\.controls: only an "effect" column has controls/],
+  ['grid-unknown-row', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO, id: 'm' }], grid: { rows: ['z'], columns: [{ name: 'x', input: true }] } },
+    /grid\.rows\[0\]: no clip has the id 'z' \(the clips: m\)/],
+  ['grid-no-clips', { title: 't', effects: [{ file: FX }], grid: { columns: [{ name: 'x', input: true }] } }, /grid: the site has no clips/],
+  ['grid-reference-none', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO }], grid: { columns: [{ name: 'x', reference: true }] } },
+    /grid\.columns: has a "reference" column but no clip of the grid has a "reference" file/],
+  ['grid-flac', { title: 't', effects: [{ file: FX }], clips: [{ file: '../fixtures/stereo-44k.flac', id: 'f' }], grid: { columns: [{ name: 'x', input: true }] } },
+    /grid: the clip 'f' uses 'stereo-44k\.flac'; a grid plays WAV files only/],
+  ['grid-columns-limit', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO }], grid: { columns: Array.from({ length: 17 }, () => ({ name: 'x', input: true })) } },
+    /grid\.columns: has 17 entries, over the limit of 16/],
+  ['clip-reference-rate', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO, reference: '../fixtures/live-44k-i16.wav' }] },
+    /clips\[0\]\.reference: '.*live-44k-i16\.wav' is 1 channel\(s\) at 44100 Hz; the clip '.*' is 1 at 48000 Hz/],
+  ['clip-dup-id', { title: 't', effects: [{ file: FX }], clips: [{ file: MONO, id: 'a' }, { file: '../fixtures/live-44k-i16.wav', id: 'a' }] },
+    /clips\[1\]\.id: 'a' is used by an earlier clip/],
 ];
 
 for (const [name, config, message] of BAD) {

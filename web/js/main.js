@@ -10,6 +10,7 @@ import { ControlsPanel } from './controls-panel.js';
 import { SelfCheck } from './selfcheck.js';
 import { OfflinePanel } from './offline-panel.js';
 import { LivePanel } from './live-panel.js';
+import { GridPanel } from './grid-panel.js';
 import { readState, writeState } from './share.js';
 
 function showSite(site) {
@@ -58,6 +59,7 @@ async function main() {
   const check = new SelfCheck(engine);
   const offline = new OfflinePanel(engine, controls, site);
   const live = new LivePanel(engine, controls, caps);
+  const grid = new GridPanel(engine, site);
   const effects = new EffectPanel(engine, site, (fx) => {
     controls.setEffect(fx);
     check.run(fx);
@@ -74,10 +76,11 @@ async function main() {
     const ab = $('ab-original').checked ? 'original' : undefined;
     history.replaceState(null, '', writeState({
       fx: fx && fx.key.startsWith('site:') ? fx.id : undefined, clip: offline.clipId, controls: s.controls,
-      mix: s.mix, inputDb: s.inputDb, outputDb: s.outputDb, bypass: s.bypass, ab,
+      mix: s.mix, inputDb: s.inputDb, outputDb: s.outputDb, bypass: s.bypass, ab, cell: grid.selected,
     }));
   };
   controls.onChange(save);
+  grid.onChange(save);
   $('clip-use').addEventListener('click', () => setTimeout(save, 0));
   for (const id of ['ab-original', 'ab-processed']) $(id).addEventListener('change', save);
   await effects.choose(effects.initialKey(shared.fx));
@@ -87,6 +90,7 @@ async function main() {
     $(`ab-${shared.ab}`).checked = true;
     $(`ab-${shared.ab}`).dispatchEvent(new Event('change'));
   }
+  if (shared.cell) grid.select(shared.cell.clip, shared.cell.column);
   restoring = false;
   save();
   document.body.dataset.ready = 'true';

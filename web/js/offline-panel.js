@@ -11,13 +11,6 @@ import { fetchBytes, siteUrl } from './site.js';
 import { drawWave, themeColour } from './waveform.js';
 import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
-import { fnv1a64 } from './test-signal.js';
-
-// One hash of every processed channel, in order (a render can be compared with
-// another), without copying the channels into one array.
-function outputHash(buf) {
-  return fnv1a64(...Array.from({ length: buf.numberOfChannels }, (_, c) => buf.getChannelData(c)));
-}
 
 function showValue(v) {
   return v === undefined ? '–' : Number.isInteger(v) ? String(v) : String(Number(v.toPrecision(6)));
@@ -268,7 +261,7 @@ export class OfflinePanel {
     add('Peak', `original ${fixed(dbfs(r.inputPeak), 1)} dBFS, processed ${fixed(dbfs(r.outputPeak), 1)} dBFS${r.outputPeak > 1 ? ' (above full scale: the WAV keeps it, playback clips)' : ''}`);
     if (r.nonfinite) add('Non-finite blocks', `${r.nonfinite} (each silenced and the state reset)`);
     add('Settings', settingsText(settings));
-    const hash = outputHash(this.player.processed);
+    const hash = r.outputHash; // computed by the Worker (offline-worker.js)
     $('result').dataset.hash = hash;
     add('Output hash', `${hash} (FNV-1a 64 of the processed float32 samples, channel after channel)`);
     this.markStale();

@@ -12,6 +12,9 @@
 //       { kind: 'pcm', rate, channels: [Float32Array], name } (already decoded)
 //       → { type: 'progress', id, done, total } ... { type: 'rendered', id, ... }
 //       or { type: 'fallback', id, reason } when a WAV needs the browser's decoder
+//   { type: 'decode', source: { kind: 'wav', file: Blob, name } }
+//       the WAV's samples at its own rate, their loudness and hash, no effect
+//       (the comparison grid's dry and reference cells) → { type: 'decoded', id, result }
 // Failures → { type: 'failed', id, message }.
 import { AlignedRender, loadVariant, MAX_RATE, MIN_RATE } from '../worklet/loader.js';
 import { readWavHeader, decodeFrames, WavError, MAX_RENDER_FRAMES } from './wav.js';
@@ -287,12 +290,40 @@ async function render(msg) {
       outputPeak: peakOf(output),
       inputLkfs: loudIn.lkfs,
       outputLkfs: loudOut.lkfs,
+      // FNV-1a 64 of the float32 samples, channel after channel (as `earshot
+      // site` hashes a grid cell), computed here, off the page's thread.
+      inputHash: fnv1a64(...input),
+      outputHash: fnv1a64(...output),
       loudnessBy: loudIn.by === 'core' && loudOut.by === 'core' ? 'core' : 'javascript',
     };
     return { result };
   } finally {
     for (const fx of effects) fx.destroy();
   }
+}
+
+// ---------------------------------------------------------------- decode
+
+// A WAV read by the page's own reader (wav.js): the samples libsndfile gives.
+async function decode(msg) {
+  const { source } = msg;
+  const file = source.file;
+  const read = (o, n) => file.slice(o, o + n).arrayBuffer();
+  const header = await readWavHeader(read, file.size, `'${source.name}'`);
+  const { rate, frames, channels: n } = header;
+  if (n < 1 || n > 2) throw new Error(`'${source.name}' has ${n} channels; the page plays mono or stereo files only`);
+  if (rate < MIN_RATE || rate > MAX_RATE) throw new Error(`'${source.name}' has sample rate ${rate} Hz; the page plays ${MIN_RATE} .. ${MAX_RATE} Hz`);
+  if (frames > MAX_RENDER_FRAMES) throw new Error(`'${source.name}' is ${frames} frames long; the page reads at most ${MAX_RENDER_FRAMES}`);
+  const channels = Array.from({ length: n }, () => new Float32Array(frames));
+  for (let off = 0; off < frames; off += SLICE) {
+    const k = Math.min(SLICE, frames - off);
+    const raw = await read(header.dataOffset + off * header.blockAlign, k * header.blockAlign);
+    if (raw.byteLength < k * header.blockAlign) throw new Error(`'${source.name}' ended early while reading`);
+    decodeFrames(header, raw, k, channels, off);
+  }
+  const variant = await variantFor(msg.wasmUrl, msg.variant);
+  const loud = loudness(variant, channels, rate);
+  return { name: source.name, rate, frames, channels, lkfs: loud.lkfs, hash: fnv1a64(...channels) };
 }
 
 // ---------------------------------------------------------------- messages
@@ -312,6 +343,9 @@ self.onmessage = async (event) => {
       const res = r.result;
       const transfer = [...res.input, ...res.output].map((a) => a.buffer);
       postMessage({ type: 'rendered', id: msg.id, result: res }, transfer);
+    } else if (msg.type === 'decode') {
+      const result = await decode(msg);
+      postMessage({ type: 'decoded', id: msg.id, result }, result.channels.map((a) => a.buffer));
     } else {
       postMessage({ type: 'failed', id: msg.id, message: `unknown job type '${msg.type}'` });
     }

@@ -1,0 +1,381 @@
+// "Compare": the site's comparison grid (docs/site.md). Rows are clips, columns
+// are conditions: the dry input, the clip's reference file, or an effect at
+// the column's control settings. A cell is computed in the browser when it is
+// first played (a Worker and the detected build; the rest of its row follows
+// in the background) and kept; the Worker's hash of its samples is compared
+// with the hash `earshot site` computed natively for that cell, so every cell
+// says whether this browser produced the same samples. Within a row, switching
+// columns while playing keeps the position sample-aligned (grid-player.js).
+//
+// Keyboard (the ARIA grid pattern, one tab stop): arrow keys move between
+// cells, Home/End to the row's ends, Space or Enter plays the cell or stops it.
+import { $, el, clear, setText } from './dom.js';
+import { fetchBytes, siteUrl } from './site.js';
+import { GridPlayer } from './grid-player.js';
+import { clock, db } from './format.js';
+
+const MARK = { pass: '✓', fail: '✗' };
+
+export class GridPanel {
+  constructor(engine, site) {
+    this.engine = engine;
+    this.site = site;
+    this.grid = site.grid && Array.isArray(site.grid.rows) && Array.isArray(site.grid.columns) ? site.grid : null;
+    this.player = new GridPlayer(() => this.refreshAll());
+    this.cells = []; // [row][column] → state
+    this.queue = []; // cells waiting for the Worker, first = next
+    this.busy = null; // the cell the Worker is on
+    this.worker = null;
+    this.bytes = new Map(); // url → Promise<ArrayBuffer>
+    this.focus = { row: 0, column: 0 };
+    this.pending = null; // the cell to start or switch to once it is ready
+    this.clicked = null; // { cell, at } of the last activation, for the time to first sound
+    this.changeListeners = [];
+    if (!this.grid) return;
+    $('panel-grid').hidden = false;
+    setText($('grid-title'), this.grid.title || 'Compare');
+    const d = $('grid-description');
+    setText(d, this.grid.description || '');
+    d.hidden = !this.grid.description;
+    this.build();
+    // Read-only view for tests/browser/grid.test.js (the row's timeline and its sources).
+    Object.defineProperty($('grid'), 'gridPlayer', { value: this.player });
+    $('grid-match').addEventListener('change', () => this.applyMatch());
+    const tick = () => {
+      if (this.player.playing) setText($('grid-position'), clock(this.player.position()));
+      requestAnimationFrame(tick);
+    };
+    requestAnimationFrame(tick);
+  }
+
+  onChange(fn) {
+    this.changeListeners.push(fn);
+  }
+
+  // The cell last chosen, for the shareable address: { clip, column }.
+  get selected() {
+    if (!this.grid || !this.chosen) return undefined;
+    return { clip: this.grid.rows[this.chosen.row].clip, column: this.chosen.column };
+  }
+
+  clipOf(row) {
+    return this.site.clips.find((c) => c.id === this.grid.rows[row].clip) || { id: this.grid.rows[row].clip, name: this.grid.rows[row].clip };
+  }
+
+  build() {
+    const table = clear($('grid'));
+    const head = el('tr', {}, el('th', { scope: 'col' }, el('span', { class: 'sr-only' }, 'Clip')));
+    for (const col of this.grid.columns)
+      head.appendChild(el('th', { scope: 'col', title: col.description || undefined }, col.name));
+    table.appendChild(el('thead', {}, head));
+    const body = el('tbody');
+    this.grid.rows.forEach((row, r) => {
+      const clip = this.clipOf(r);
+      const tr = el('tr', {}, el('th', { scope: 'row', title: clip.description || undefined }, clip.name));
+      this.cells.push([]);
+      this.grid.columns.forEach((col, k) => {
+        const native = row.cells[k];
+        const button = el('button', { type: 'button', tabindex: r === 0 && k === 0 ? '0' : '-1', class: 'cell' },
+          el('span', { class: 'cell-state' }), el('span', { class: 'cell-mark' }));
+        const td = el('td', { role: 'gridcell' }, button);
+        const cell = { row: r, column: k, td, button, native, state: native ? 'idle' : 'none', buffer: null, lkfs: NaN, hash: null, message: '' };
+        this.cells[r].push(cell);
+        button.addEventListener('click', () => this.activate(cell));
+        button.addEventListener('keydown', (e) => this.key(e, cell));
+        button.addEventListener('focus', () => { this.focus = { row: r, column: k }; });
+        tr.appendChild(td);
+        this.refresh(cell);
+      });
+      body.appendChild(tr);
+    });
+    table.appendChild(body);
+  }
+
+  key(e, cell) {
+    const rows = this.cells.length;
+    const cols = this.grid.columns.length;
+    let { row, column } = cell;
+    switch (e.key) {
+      case 'ArrowRight': column = Math.min(cols - 1, column + 1); break;
+      case 'ArrowLeft': column = Math.max(0, column - 1); break;
+      case 'ArrowDown': row = Math.min(rows - 1, row + 1); break;
+      case 'ArrowUp': row = Math.max(0, row - 1); break;
+      case 'Home': column = 0; break;
+      case 'End': column = cols - 1; break;
+      case ' ':
+      case 'Enter':
+        e.preventDefault();
+        this.activate(cell);
+        return;
+      default: return;
+    }
+    e.preventDefault();
+    this.moveFocus(row, column);
+  }
+
+  moveFocus(row, column) {
+    for (const line of this.cells) for (const c of line) c.button.tabIndex = -1;
+    const c = this.cells[row][column];
+    c.button.tabIndex = 0;
+    c.button.focus();
+  }
+
+  // Chooses a cell without playing it (a shared address): it gets the focus stop.
+  select(clipId, column) {
+    const row = this.grid ? this.grid.rows.findIndex((r) => r.clip === clipId) : -1;
+    if (row < 0 || !Number.isInteger(column) || column < 0 || column >= this.grid.columns.length) return false;
+    for (const line of this.cells) for (const c of line) c.button.tabIndex = -1;
+    this.cells[row][column].button.tabIndex = 0;
+    this.chosen = { row, column };
+    this.refreshAll();
+    return true;
+  }
+
+  changed() {
+    for (const fn of this.changeListeners) fn();
+  }
+
+  // A click, Space or Enter on a cell.
+  activate(cell) {
+    this.chosen = { row: cell.row, column: cell.column };
+    this.changed();
+    const p = this.player;
+    if (cell.state === 'none') {
+      this.say(`${this.clipOf(cell.row).name} has no reference file.`);
+      this.refreshAll();
+      return;
+    }
+    if (p.playing && p.row === cell.row && p.column === cell.column) {
+      p.stop();
+      this.pending = null;
+      this.refreshAll();
+      return;
+    }
+    this.clicked = { cell, at: performance.now() };
+    if (cell.state === 'ready') this.start(cell);
+    else {
+      this.pending = cell;
+      this.want(cell, true);
+    }
+    this.refreshAll();
+  }
+
+  // Plays `cell`: switches within the playing row, else starts its row.
+  start(cell) {
+    const p = this.player;
+    this.pending = null;
+    if (p.playing && p.row === cell.row) {
+      p.switchTo(cell.column);
+    } else {
+      const from = p.row === cell.row ? p.offset : 0;
+      const ready = new Map();
+      for (const c of this.cells[cell.row]) if (c.state === 'ready') ready.set(c.column, c.buffer);
+      p.play(cell.row, cell.column, ready, from).then(() => this.refreshAll());
+      this.applyMatch();
+    }
+    if (this.clicked && this.clicked.cell === cell) {
+      // The cell is heard LEAD_S after its start is scheduled.
+      const ms = performance.now() - this.clicked.at + 30;
+      $('grid').dataset.firstSoundMs = ms.toFixed(1);
+      this.clicked = null;
+    }
+    this.say(`Playing ${this.clipOf(cell.row).name}: ${this.grid.columns[cell.column].name}.`);
+    this.refreshAll();
+  }
+
+  // Queues a cell (first when the listener asked for it), then the rest of its row.
+  want(cell, first) {
+    const add = (c, front) => {
+      if (c.state !== 'idle' && c.state !== 'queued') return;
+      const i = this.queue.indexOf(c);
+      if (i >= 0) this.queue.splice(i, 1);
+      if (front) this.queue.unshift(c);
+      else this.queue.push(c);
+      c.state = 'queued';
+      this.refresh(c);
+    };
+    add(cell, first);
+    for (const c of this.cells[cell.row]) if (c !== cell) add(c, false);
+    this.next();
+  }
+
+  fetchOnce(path, what) {
+    const url = siteUrl(this.site, path);
+    if (!this.bytes.has(url)) {
+      const p = fetchBytes(url, what);
+      p.catch(() => this.bytes.delete(url)); // tried again next time
+      this.bytes.set(url, p);
+    }
+    return this.bytes.get(url);
+  }
+
+  // One job at a time in one Worker (the machine's other core plays audio).
+  async next() {
+    if (this.busy || !this.queue.length) return;
+    const cell = this.queue.shift();
+    this.busy = cell;
+    cell.state = 'working';
+    cell.progress = 0;
+    this.refresh(cell);
+    try {
+      const result = await this.compute(cell);
+      this.finish(cell, result);
+    } catch (e) {
+      cell.state = 'failed';
+      cell.message = e && e.message ? e.message : String(e);
+      if (this.pending === cell) {
+        this.pending = null;
+        this.say(`${this.clipOf(cell.row).name}, ${this.grid.columns[cell.column].name}: ${cell.message}`);
+      }
+    }
+    this.busy = null;
+    this.refresh(cell);
+    this.next();
+  }
+
+  compute(cell) {
+    const col = this.grid.columns[cell.column];
+    const clip = this.clipOf(cell.row);
+    const job = async () => {
+      if (col.kind === 'effect') {
+        const fx = this.site.effects.find((f) => f.id === col.effect);
+        if (!fx) throw new Error(`the site has no effect '${col.effect}'`);
+        const [effect, audio] = await Promise.all([
+          this.fetchOnce(fx.file, `effect '${fx.name}'`), this.fetchOnce(clip.file, `clip '${clip.name}'`)]);
+        const settings = { controls: col.controls || {}, mix: 1, inputDb: 0, outputDb: 0, bypass: false };
+        return this.ask({ type: 'render', effect: effect.slice(0), settings, source: { kind: 'wav', file: new Blob([audio]), name: clip.name } }, cell);
+      }
+      const path = col.kind === 'reference' ? clip.reference : clip.file;
+      if (!path) throw new Error(`${clip.name} has no reference file`);
+      const audio = await this.fetchOnce(path, `${col.kind === 'reference' ? 'reference of' : 'clip'} '${clip.name}'`);
+      return this.ask({ type: 'decode', source: { kind: 'wav', file: new Blob([audio]), name: clip.name } }, cell);
+    };
+    return job();
+  }
+
+  ask(msg, cell) {
+    if (!this.worker) this.worker = this.engine.worker();
+    const w = this.worker;
+    const id = (this.jobId = (this.jobId || 0) + 1);
+    return new Promise((resolve, reject) => {
+      w.onmessage = (e) => {
+        const m = e.data;
+        if (m.id !== id) return;
+        if (m.type === 'progress') {
+          cell.progress = m.total ? m.done / m.total : 0;
+          this.refresh(cell);
+        } else if (m.type === 'rendered') {
+          const r = m.result;
+          resolve({ rate: r.rate, channels: r.output, hash: r.outputHash, lkfs: r.outputLkfs,
+            dry: { rate: r.rate, channels: r.input, hash: r.inputHash, lkfs: r.inputLkfs } });
+        } else if (m.type === 'decoded') {
+          resolve(m.result);
+        } else if (m.type === 'fallback') {
+          reject(new Error(`${m.reason}: the grid plays WAV files this page reads itself`));
+        } else if (m.type === 'failed') {
+          reject(new Error(m.message));
+        }
+      };
+      w.onerror = (e) => {
+        this.worker = null;
+        w.terminate();
+        reject(new Error(e.message || 'the rendering worker stopped'));
+      };
+      w.postMessage(this.engine.job({ ...msg, id }));
+    });
+  }
+
+  // A computed cell: into an AudioBuffer, checked against the native hash.
+  finish(cell, r) {
+    const put = (c, res) => {
+      const b = new AudioBuffer({ length: res.channels[0].length, numberOfChannels: res.channels.length, sampleRate: res.rate });
+      res.channels.forEach((x, i) => b.copyToChannel(x, i));
+      c.buffer = b;
+      c.hash = res.hash;
+      c.lkfs = res.lkfs;
+      c.state = 'ready';
+      c.verdict = c.native ? (res.hash === c.native.hash && res.channels[0].length === c.native.frames ? 'pass' : 'fail') : undefined;
+      const i = this.queue.indexOf(c);
+      if (i >= 0) this.queue.splice(i, 1);
+      this.refresh(c);
+      this.arrived(c);
+    };
+    put(cell, r);
+    // The render read the dry clip too: the row's input cells need no job of their own.
+    if (r.dry) {
+      this.grid.columns.forEach((col, k) => {
+        const c = this.cells[cell.row][k];
+        if (col.kind === 'input' && c.state !== 'ready') put(c, r.dry);
+      });
+    }
+  }
+
+  // A cell became ready: it joins its playing row, or starts when it was asked for.
+  arrived(cell) {
+    const p = this.player;
+    if (p.playing && p.row === cell.row) {
+      p.join(cell.column, cell.buffer);
+      this.applyMatch();
+    }
+    if (this.pending === cell) this.start(cell);
+  }
+
+  applyMatch() {
+    const p = this.player;
+    const on = $('grid-match').checked;
+    const dbs = new Map();
+    if (p.row >= 0) {
+      const line = this.cells[p.row];
+      const dry = line.find((c) => this.grid.columns[c.column].kind === 'input' && c.state === 'ready');
+      const target = dry ? dry.lkfs : NaN;
+      for (const c of line) if (c.state === 'ready' && Number.isFinite(c.lkfs) && Number.isFinite(target)) dbs.set(c.column, target - c.lkfs);
+    }
+    p.setMatch(on, dbs);
+    this.refreshAll();
+  }
+
+  say(text) {
+    setText($('grid-now'), text);
+  }
+
+  refreshAll() {
+    for (const line of this.cells) for (const c of line) this.refresh(c);
+    if (!this.player.playing) setText($('grid-position'), clock(this.player.offset));
+  }
+
+  refresh(cell) {
+    const p = this.player;
+    const playing = p.playing && p.row === cell.row && p.column === cell.column;
+    const col = this.grid.columns[cell.column];
+    const clip = this.clipOf(cell.row);
+    let state;
+    let long;
+    switch (cell.state) {
+      case 'none': state = '—'; long = 'no reference file for this clip'; break;
+      case 'idle': state = 'play'; long = 'not computed yet; play to compute it'; break;
+      case 'queued': state = 'waiting'; long = 'waiting to be computed'; break;
+      case 'working': state = `${Math.round(100 * (cell.progress || 0))} %`; long = 'being computed'; break;
+      case 'failed': state = 'failed'; long = `failed: ${cell.message}`; break;
+      default: state = playing ? 'playing' : 'play'; long = playing ? 'playing' : 'ready';
+    }
+    setText(cell.button.querySelector('.cell-state'), state);
+    const mark = cell.verdict ? MARK[cell.verdict] : '';
+    setText(cell.button.querySelector('.cell-mark'), mark);
+    let verdict = '';
+    if (cell.verdict === 'pass') verdict = `; same samples as native (hash ${cell.hash})`;
+    else if (cell.verdict === 'fail') verdict = `; differs from native: hash ${cell.hash}, native ${cell.native.hash}`;
+    let match = '';
+    if (playing && p.match && Number.isFinite(p.matchDb.get(cell.column))) match = `; loudness matched by ${db(p.matchDb.get(cell.column))}`;
+    const label = `${clip.name}, ${col.name}: ${long}${verdict}${match}`;
+    cell.button.setAttribute('aria-label', label);
+    cell.button.title = label;
+    cell.button.setAttribute('aria-pressed', playing ? 'true' : 'false');
+    const td = cell.td;
+    td.dataset.state = cell.state;
+    if (cell.verdict) td.dataset.verdict = cell.verdict;
+    else delete td.dataset.verdict;
+    if (cell.hash) td.dataset.hash = cell.hash;
+    td.dataset.playing = playing ? 'true' : 'false';
+    td.dataset.chosen = this.chosen && this.chosen.row === cell.row && this.chosen.column === cell.column ? 'true' : 'false';
+  }
+}
