@@ -85,9 +85,9 @@ input, select { display: none !important; }
 p, div { margin: 30px !important; padding: 20px !important; border: 4px dotted red !important; }
 `;
 
-function hostPage(elements) {
+function hostPage(elements, head = '') {
   return `<!doctype html>
-<html lang="en"><head><meta charset="utf-8">
+<html lang="en"><head><meta charset="utf-8">${head}
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>A paper's page</title>
 <link rel="icon" href="data:,">
@@ -131,6 +131,10 @@ before(async () => {
 <earshot-effect id="badclip" effect="${f}open/lstm-12.nfx" clips="${f}closed/nothing.wav" reference="${refs.lstm}"></earshot-effect>
 <earshot-effect id="badname" effect="${f}open/tcn-film.nfx" clips="${f}open/mono-48k-i16.wav" controls="drive, fuzz"></earshot-effect>
 <earshot-effect id="good" effect="${f}open/lstm-12.nfx" clips="${f}open/mono-48k-i16.wav" reference="${refs.lstm}"></earshot-effect>`));
+  // A host page with a strict Content-Security-Policy (docs/embed.md lists what it must allow).
+  writeFileSync(join(HOST, 'strict.html'), hostPage(`
+<earshot-effect id="strict" effect="${f}open/lstm-12.nfx" clips="${f}open/mono-48k-i16.wav" reference="${refs.lstm}"></earshot-effect>`,
+  `\n<meta http-equiv="Content-Security-Policy" content="default-src 'none'; script-src 'self' 'wasm-unsafe-eval'; worker-src 'self'; connect-src 'self' ${f}; style-src 'self'; img-src data:">`));
   browser = await launch();
 });
 
@@ -347,6 +351,20 @@ test('playback passes the output guard: it starts quiet and its limiter holds -1
   assert.ok(Math.abs(quiet - 2 * Math.pow(10, -30 / 20)) < 1e-3, `at the default level the output peaks at ${quiet}`);
   assert.ok(loud <= ceiling * (1 + 1e-6), `at 0 dB the output peaks at ${loud} > ${ceiling}`);
   assert.ok(loud > 0.95 * ceiling, `the limiter should let a loud signal through near its ceiling, got ${loud}`);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('under a strict Content-Security-Policy (no inline style or script) the element is styled and works', async () => {
+  const { page, problems } = await openPage(browser.context, `${host.url}strict.html`);
+  await settled(page, ['strict']);
+  assert.equal(await prop(page, 'strict', 'state'), 'ready', await prop(page, 'strict', 'errorText'));
+  assert.equal((await prop(page, 'strict', 'checkResult')).pass, true);
+  // The shadow root's constructed style sheet applies (the CSP allows no inline <style>).
+  assert.equal(await page.evaluate(() => getComputedStyle(document.getElementById('strict').shadowRoot.querySelector('.box')).borderTopLeftRadius), '10px');
+  await page.locator('#strict button').click();
+  await page.waitForFunction(() => document.getElementById('strict').playing);
+  await page.locator('#strict button').click();
   await page.close();
   assert.deepEqual(problems, []);
 });

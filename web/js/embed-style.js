@@ -3,6 +3,8 @@
 // never em/rem, and every element inside sets its own font and colour: the
 // host page's rules reach the element itself only (its box: margins,
 // display, width stay the host's to set), never what is inside.
+// The colour roles are the site page's (web/style.css), which site.test.js
+// holds to WCAG contrast ratios; keep the two in step.
 export const EMBED_CSS = `
 :host {
   all: initial;
