@@ -25,7 +25,7 @@ const refs = {};
 
 // A static server for the second origin; Access-Control-Allow-Origin only under /open/.
 function filesServer(dir) {
-  const types = { '.nfx': 'application/octet-stream', '.wav': 'audio/wav', '.txt': 'text/plain' };
+  const types = { '.nfx': 'application/octet-stream', '.wav': 'audio/wav', '.txt': 'text/plain', '.js': 'text/javascript', '.wasm': 'application/wasm' };
   const server = createServer((req, res) => {
     const path = normalize(decodeURIComponent(new URL(req.url, 'http://x').pathname)).replace(/^(\.\.[/\\])+/, '');
     const headers = { 'Content-Type': types[extname(path)] || 'application/octet-stream' };
@@ -85,14 +85,14 @@ input, select { display: none !important; }
 p, div { margin: 30px !important; padding: 20px !important; border: 4px dotted red !important; }
 `;
 
-function hostPage(elements, head = '') {
+function hostPage(elements, head = '', kit = 'kit/embed.js') {
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8">${head}
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>A paper's page</title>
 <link rel="icon" href="data:,">
 <link rel="stylesheet" href="paper.css">
-<script type="module" src="kit/embed.js"></script>
+<script type="module" src="${kit}"></script>
 </head><body>
 <h1>Paper</h1>
 <p id="host-text">Our results.</p>
@@ -112,6 +112,7 @@ before(async () => {
   mkdirSync(join(FILES, 'closed'), { recursive: true });
   for (const f of ['lstm-12.nfx', 'tcn-film.nfx', 'mono-48k-i16.wav', 'stereo-44k-f32.wav']) copyFileSync(fixture(f), join(FILES, 'open', f));
   copyFileSync(fixture('notes.txt'), join(FILES, 'open', 'notes.nfx'));
+  cpSync(join(HOST, 'kit'), join(FILES, 'open', 'kit'), { recursive: true }); // the copied folder on the second origin
   copyFileSync(fixture('tcn-film.nfx'), join(FILES, 'closed', 'tcn-film.nfx'));
   writeFileSync(join(HOST, 'paper.css'), AGGRESSIVE_CSS);
   refs.lstm = verifyHash(fixture('lstm-12.nfx'));
@@ -135,6 +136,10 @@ before(async () => {
   writeFileSync(join(HOST, 'strict.html'), hostPage(`
 <earshot-effect id="strict" effect="${f}open/lstm-12.nfx" clips="${f}open/mono-48k-i16.wav" reference="${refs.lstm}"></earshot-effect>`,
   `\n<meta http-equiv="Content-Security-Policy" content="default-src 'none'; script-src 'self' 'wasm-unsafe-eval'; worker-src 'self'; connect-src 'self' ${f}; style-src 'self'; img-src data:">`));
+  // The copied folder itself on the second origin.
+  writeFileSync(join(HOST, 'remote-kit.html'), hostPage(`
+<earshot-effect id="remote" effect="${f}open/tcn-film.nfx" clips="${f}open/mono-48k-i16.wav" values="drive=0.35, tone=4.5" reference="${refs.tcn}"></earshot-effect>`,
+  '', `${f}open/kit/embed.js`));
   browser = await launch();
 });
 
@@ -165,6 +170,8 @@ test('two elements on a foreign page: shared AudioContext, self-checks pass, ren
     assert.equal(await page.locator(`#${id} .badge`).getAttribute('data-state'), 'pass');
   }
   assert.equal((await prop(page, 'fx-a', 'checkResult')).outputHash, refs.lstm);
+  // One Worker renders and checks for both elements.
+  assert.deepEqual(page.workers().map((w) => new URL(w.url()).pathname), ['/kit/js/offline-worker.js']);
 
   // Only the named control is shown; the other keeps its value from `values`.
   assert.equal(await page.locator('#fx-b input[type=range][data-control]').count(), 1);
@@ -365,6 +372,22 @@ test('under a strict Content-Security-Policy (no inline style or script) the ele
   await page.locator('#strict button').click();
   await page.waitForFunction(() => document.getElementById('strict').playing);
   await page.locator('#strict button').click();
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('the copied folder on another origin (sent with Access-Control-Allow-Origin) works: Worker, worklet and builds', async () => {
+  const { page, problems } = await openPage(browser.context, `${host.url}remote-kit.html`);
+  await settled(page, ['remote']);
+  assert.equal(await prop(page, 'remote', 'state'), 'ready', await prop(page, 'remote', 'errorText'));
+  assert.equal((await prop(page, 'remote', 'checkResult')).pass, true);
+  assert.equal(await prop(page, 'remote', 'outputHash'),
+    nativeRenderHash(fixture('tcn-film.nfx'), fixture('mono-48k-i16.wav'), { drive: 0.35, tone: 4.5 }, 'r1'));
+  // A Worker script must be same-origin: the element starts it from a blob: module.
+  assert.deepEqual(page.workers().map((w) => w.url().slice(0, 5)), ['blob:']);
+  await page.locator('#remote button').click();
+  await page.waitForFunction(() => document.getElementById('remote').playing);
+  await page.locator('#remote button').click();
   await page.close();
   assert.deepEqual(problems, []);
 });
