@@ -1,13 +1,16 @@
-// The live AudioWorkletProcessor ('earshot-live'): one mono effect stream at
-// the device rate (the core resamples to the model rate and back), then the
-// listening level and an always-on output limiter, the same signal on every
-// output channel.
+// The AudioWorkletProcessors of the page and the embed:
+// 'earshot-live', one mono effect stream at the device rate (the core
+// resamples to the model rate and back), then the output guard; and
+// 'earshot-guard', the output guard alone, for playback of rendered audio
+// (web/embed.js). The output guard is the listening level and an always-on
+// limiter at -1 dBFS: every path these modules give to the speakers passes it.
 //
-// processorOptions: { wasm: ArrayBuffer (the build's bytes), variant: 'simd' |
-// 'scalar', effect: ArrayBuffer (the effect file), settings, levelDb }
+// 'earshot-live' processorOptions: { wasm: ArrayBuffer (the build's bytes),
+// variant: 'simd' | 'scalar', effect: ArrayBuffer (the effect file), settings, levelDb }
 //   settings: { controls: { name: value }, mix: 0..1, inputDb, outputDb, bypass }
 // The module compiles synchronously here (the page passes bytes: this scope
-// has no fetch); everything is allocated before audio starts.
+// has no fetch); everything is allocated before audio starts. The same signal
+// goes to every output channel.
 //
 // Port messages in:  { type: 'settings', settings } · { type: 'level', db }
 //                    { type: 'record', seconds } (restarts the stream's state,
@@ -18,6 +21,10 @@
 //                      in Chromium, and its instance is never collected)
 // Port messages out: { type: 'ready', ... } · { type: 'error', message, fatal }
 //                    { type: 'meters', ... } every ~50 ms · { type: 'recorded', ... }
+//
+// 'earshot-guard' processorOptions: { levelDb }. Input channels go to the
+// same output channels (one shared limiter gain, so the stereo image holds).
+// Port messages in: { type: 'level', db } · { type: 'stop' }.
 import { loadVariant } from './loader.js';
 
 const LIMIT_CEILING = 0.8912509381337456; // −1 dBFS = 10^(−1/20)
@@ -26,12 +33,63 @@ const LEVEL_GLIDE_S = 0.02; // time constant of listening-level changes
 const METER_S = 0.05; // meter message interval
 const LOAD_S = 1.0; // window of the time-budget figure and of the late-render check
 const LATE_MS = 5; // growth, from one window to the next, of the audio clock's lag behind the wall clock that counts as a late render
+const LEVEL_START_DB = -30; // the listening level when none is given: output starts quiet
 
 // This scope lacks performance.now() in Chromium; Date.now() has 1 ms steps,
 // which over many render quanta still averages to the true busy time.
 const now = globalThis.performance && typeof globalThis.performance.now === 'function'
   ? () => globalThis.performance.now()
   : () => Date.now();
+
+// Listening level, then the limiter: the level glides to its target, the
+// limiter attacks instantly to the ceiling and recovers exponentially. All
+// channels share the gain. limMin and outPeak are kept for the meters.
+class OutputGuard {
+  constructor(levelDb) {
+    this.levelTarget = Math.pow(10, (Number.isFinite(levelDb) ? levelDb : LEVEL_START_DB) / 20);
+    this.level = this.levelTarget;
+    this.levelGlide = 1 - Math.exp(-1 / (LEVEL_GLIDE_S * sampleRate));
+    this.limGain = 1;
+    this.limRelease = 1 - Math.exp(-1 / (LIMIT_RELEASE_S * sampleRate));
+    this.outPeak = 0;
+    this.limMin = 1;
+  }
+
+  setLevel(db) {
+    if (Number.isFinite(db)) this.levelTarget = Math.pow(10, db / 20);
+  }
+
+  // ins: Float32Arrays (n samples each); outs: as many, written.
+  run(ins, outs, n) {
+    const C = ins.length;
+    let level = this.level;
+    let g = this.limGain;
+    let outPeak = this.outPeak;
+    let limMin = this.limMin;
+    for (let i = 0; i < n; i++) {
+      level += (this.levelTarget - level) * this.levelGlide;
+      let a = 0;
+      for (let c = 0; c < C; c++) {
+        const v = ins[c][i] * level;
+        const m = v < 0 ? -v : v;
+        if (m > a) a = m;
+      }
+      if (a * g > LIMIT_CEILING) g = LIMIT_CEILING / a;
+      if (g < limMin) limMin = g;
+      for (let c = 0; c < C; c++) {
+        const w = ins[c][i] * level * g;
+        outs[c][i] = w;
+        const aw = w < 0 ? -w : w;
+        if (aw > outPeak) outPeak = aw;
+      }
+      g += (1 - g) * this.limRelease;
+    }
+    this.level = level;
+    this.limGain = g;
+    this.outPeak = outPeak;
+    this.limMin = limMin;
+  }
+}
 
 class EarshotLive extends AudioWorkletProcessor {
   constructor(options) {
@@ -41,12 +99,7 @@ class EarshotLive extends AudioWorkletProcessor {
     this.size = 0;
     this.inBuf = null;
     this.outBuf = null;
-    this.level = 0;
-    this.levelTarget = Math.pow(10, (Number.isFinite(o.levelDb) ? o.levelDb : -30) / 20);
-    this.level = this.levelTarget;
-    this.levelGlide = 1 - Math.exp(-1 / (LEVEL_GLIDE_S * sampleRate));
-    this.limGain = 1;
-    this.limRelease = 1 - Math.exp(-1 / (LIMIT_RELEASE_S * sampleRate));
+    this.guard = new OutputGuard(o.levelDb);
     this.meterFrames = Math.round(METER_S * sampleRate);
     this.loadFrames = Math.round(LOAD_S * sampleRate);
     this.resetMeters();
@@ -84,8 +137,8 @@ class EarshotLive extends AudioWorkletProcessor {
   resetMeters() {
     this.meterCount = 0;
     this.inPeak = 0;
-    this.outPeak = 0;
-    this.limMin = 1;
+    this.guard.outPeak = 0;
+    this.guard.limMin = 1;
   }
 
   // Applies settings; a refused value is reported and the stream keeps its old one.
@@ -115,7 +168,7 @@ class EarshotLive extends AudioWorkletProcessor {
     }
     if (!m || !this.fx) return;
     if (m.type === 'settings') this.apply(m.settings, false);
-    else if (m.type === 'level') this.levelTarget = Math.pow(10, m.db / 20);
+    else if (m.type === 'level') this.guard.setLevel(m.db);
     else if (m.type === 'record') {
       const n = Math.max(1, Math.round(m.seconds * sampleRate));
       this.record = { input: new Float32Array(n), output: new Float32Array(n), at: 0, pending: true };
@@ -164,33 +217,15 @@ class EarshotLive extends AudioWorkletProcessor {
       }
     }
 
-    // Level, then the limiter: instant attack to the ceiling, exponential recovery.
-    const y = out[0];
-    let level = this.level;
-    let g = this.limGain;
     let inPeak = this.inPeak;
-    let outPeak = this.outPeak;
-    let limMin = this.limMin;
     for (let i = 0; i < n; i++) {
       const xi = this.inBuf[i];
       if (xi > inPeak) inPeak = xi;
       else if (-xi > inPeak) inPeak = -xi;
-      level += (this.levelTarget - level) * this.levelGlide;
-      const v = this.outBuf[i] * level;
-      const a = v < 0 ? -v : v;
-      if (a * g > LIMIT_CEILING) g = LIMIT_CEILING / a;
-      const w = v * g;
-      if (g < limMin) limMin = g;
-      g += (1 - g) * this.limRelease;
-      y[i] = w;
-      const aw = w < 0 ? -w : w;
-      if (aw > outPeak) outPeak = aw;
     }
-    this.level = level;
-    this.limGain = g;
     this.inPeak = inPeak;
-    this.outPeak = outPeak;
-    this.limMin = limMin;
+    const y = out[0];
+    this.guard.run([this.outBuf], [y], n);
     for (let c = 1; c < out.length; c++) out[c].set(y);
 
     this.track(n);
@@ -222,8 +257,8 @@ class EarshotLive extends AudioWorkletProcessor {
       this.port.postMessage({
         type: 'meters',
         inPeak: this.inPeak,
-        outPeak: this.outPeak,
-        limiterDb: 20 * Math.log10(this.limMin),
+        outPeak: this.guard.outPeak,
+        limiterDb: 20 * Math.log10(this.guard.limMin),
         load: this.load,
         loadPeak: this.loadPeak,
         late: this.late,
@@ -237,3 +272,35 @@ class EarshotLive extends AudioWorkletProcessor {
 }
 
 registerProcessor('earshot-live', EarshotLive);
+
+class EarshotGuard extends AudioWorkletProcessor {
+  constructor(options) {
+    super();
+    const o = (options && options.processorOptions) || {};
+    this.guard = new OutputGuard(o.levelDb);
+    this.stopped = false;
+    this.port.onmessage = (e) => {
+      const m = e.data;
+      if (m && m.type === 'level') this.guard.setLevel(m.db);
+      else if (m && m.type === 'stop') this.stopped = true;
+    };
+  }
+
+  process(inputs, outputs) {
+    if (this.stopped) return false;
+    const out = outputs[0];
+    if (!out || out.length === 0) return true;
+    const n = out[0].length;
+    const x = inputs[0] || [];
+    if (x.length === 0) {
+      for (const ch of out) ch.fill(0);
+      return true;
+    }
+    // A mono input feeds every output channel; extra input channels are dropped.
+    const ins = out.map((_, c) => x[Math.min(c, x.length - 1)]);
+    this.guard.run(ins, out, n);
+    return true;
+  }
+}
+
+registerProcessor('earshot-guard', EarshotGuard);

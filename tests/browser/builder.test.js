@@ -9,7 +9,7 @@ import { FIXTURES, WORK, buildSite, earshotBin, ensureFixtures, mustRun, run } f
 
 test('the site holds the page, both builds, effects, clips and a reference equal to earshot verify', () => {
   const { out, site, config } = buildSite('builder-test');
-  for (const f of ['index.html', 'style.css', 'js/main.js', 'js/offline-worker.js', 'worklet/processor.js',
+  for (const f of ['index.html', 'style.css', 'js/main.js', 'js/offline-worker.js', 'embed.js', 'js/embed-style.js', 'worklet/processor.js',
     'worklet/loader.js', 'worklet/capabilities.js', 'wasm/earshot-simd.wasm', 'wasm/earshot-scalar.wasm'])
     assert.ok(existsSync(join(out, f)), `missing ${f}`);
   assert.equal(site.title, config.title);

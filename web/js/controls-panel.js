@@ -6,14 +6,14 @@ import { $, el, clear, setText } from './dom.js';
 import { db } from './format.js';
 
 // A step of 1, 2 or 5 × 10^k giving about 200 positions over the range.
-function niceStep(span) {
+export function niceStep(span) {
   const raw = span / 200;
   const p = Math.pow(10, Math.floor(Math.log10(raw)));
   const m = raw / p;
   return (m <= 1 ? 1 : m <= 2 ? 2 : m <= 5 ? 5 : 10) * p;
 }
 
-function show(v) {
+export function show(v) {
   return Number.isInteger(v) ? String(v) : String(Number(v.toPrecision(6)));
 }
 

@@ -8,10 +8,17 @@
 const SWITCH_S = 0.005;
 const COPY_SLICE = 1 << 20; // samples copied per task while loading
 
+// output(): where playback goes, { ctx, node }; by default a context of the
+// player's own, made on the first play() (inside the user's gesture), and its
+// destination. The embed (web/embed.js) passes its shared context and output guard.
 export class Player {
-  constructor(onEnd) {
+  constructor(onEnd, output = null) {
     this.ctx = null;
     this.onEnd = onEnd;
+    this.output = output || (async () => {
+      if (!this.ctx) this.ctx = new AudioContext({ latencyHint: 'playback' });
+      return { ctx: this.ctx, node: this.ctx.destination };
+    });
     this.original = null;
     this.processed = null;
     this.which = 'processed';
@@ -70,17 +77,17 @@ export class Player {
 
   async play() {
     if (!this.original) return;
-    if (!this.ctx) this.ctx = new AudioContext({ latencyHint: 'playback' });
-    await this.ctx.resume();
+    const { ctx, node } = await this.output();
+    this.ctx = ctx;
+    await ctx.resume();
     this.stopNodes();
-    const ctx = this.ctx;
     const [ga, gb] = this.gains();
     const a = new AudioBufferSourceNode(ctx, { buffer: this.original });
     const b = new AudioBufferSourceNode(ctx, { buffer: this.processed });
     const gA = new GainNode(ctx, { gain: ga });
     const gB = new GainNode(ctx, { gain: gb });
-    a.connect(gA).connect(ctx.destination);
-    b.connect(gB).connect(ctx.destination);
+    a.connect(gA).connect(node);
+    b.connect(gB).connect(node);
     const t = ctx.currentTime + 0.03;
     const off = this.offset >= this.duration ? 0 : this.offset;
     a.start(t, off);
@@ -113,13 +120,15 @@ export class Player {
 
   stopNodes() {
     if (!this.nodes) return;
-    const { a, b } = this.nodes;
+    const { a, b, gA, gB } = this.nodes;
     this.nodes = null;
     for (const s of [a, b]) {
       s.onended = null;
       try { s.stop(); } catch { /* not started */ }
       s.disconnect();
     }
+    gA.disconnect();
+    gB.disconnect();
   }
 
   seek(seconds) {

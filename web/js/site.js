@@ -7,9 +7,13 @@ export async function fetchBytes(url, what) {
   try {
     res = await fetch(url);
   } catch (e) {
-    throw new Error(`cannot load ${what} (${url}): ${e.message}`);
+    // The browser does not say why (a network failure and a refused
+    // cross-origin read look the same); another origin gets the likely reason.
+    const foreign = new URL(url, document.baseURI).origin !== location.origin;
+    const hint = foreign ? '; a file on another origin can be read only when its server sends Access-Control-Allow-Origin' : '';
+    throw new Error(`cannot load ${what} (${url}): ${e.message}${hint}`);
   }
-  if (!res.ok) throw new Error(`cannot load ${what} (${url}): HTTP ${res.status} ${res.statusText}`);
+  if (!res.ok) throw new Error(`cannot load ${what} (${url}): HTTP ${res.status}${res.statusText ? ' ' + res.statusText : ''}`);
   return res.arrayBuffer();
 }
 
