@@ -2,6 +2,7 @@
 #include "site_grid.hpp"
 
 #include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <cstdio>
 #include <set>
@@ -202,6 +203,21 @@ GridPlan plan_grid(const GridSpec& spec, const std::vector<GridEffect>& effects,
     w.fail("grid", buf);
   }
 
+  // The page reads WAV itself, sample for sample as libsndfile does
+  // (web/js/wav.js); other containers go through the browser's decoder, whose
+  // samples a cell's hash could not vouch for.
+  for (size_t r = 0; r < plan.rows.size(); ++r) {
+    const GridClip& clip = clips[plan.rows[r]];
+    for (const std::filesystem::path& f : {clip.file, clip.reference}) {
+      std::string ext = f.extension().string();
+      for (char& ch : ext) ch = char(std::tolower(static_cast<unsigned char>(ch)));
+      if (!f.empty() && ext != ".wav")
+        w.fail(spec.rows.empty() ? "grid" : "grid.rows[" + std::to_string(r) + "]",
+               "the clip '" + clip.id + "' uses '" + f.filename().string() +
+                   "'; a grid plays WAV files only (the page reads them sample-exactly, so every cell can be "
+                   "checked against native): convert it to WAV");
+    }
+  }
   plan.cells.resize(plan.rows.size(), std::vector<GridCell>(spec.columns.size()));
   for (size_t r = 0; r < plan.rows.size(); ++r) {
     const GridClip& clip = clips[plan.rows[r]];
