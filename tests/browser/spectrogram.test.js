@@ -112,8 +112,8 @@ test('pictures: a full-scale sine at 0 dB on its row, noise against its half at 
     const d = make();
     const info = await m.drawSpectrogram(a, x, rate);
     const dinfo = await m.drawSpectrogram(d, noise, rate, { reference: half });
-    // The plot's place on the canvas (dpr 1): 46 px of axis on the left, 58 px of legend on the right, 7 px above and below.
-    const x0 = 46, y0 = 7, pw = a.width - 46 - 58, ph = a.height - 14;
+    // The plot's place on the canvas, in device pixels.
+    const { x: x0, y: y0, width: pw, height: ph } = info.plot;
     const col = x0 + Math.round(pw / 2);
     // Read through a copy made for reading (no readback warning on the page's canvases).
     const read = (c, px, py, w, h) => {
@@ -133,11 +133,21 @@ test('pictures: a full-scale sine at 0 dB on its row, noise against its half at 
     const ink = getComputedStyle(document.documentElement).getPropertyValue('--ink').trim();
     const corner = read(a, 1, 1, 1, 1);
     const bg = getComputedStyle(document.documentElement).getPropertyValue('--wave-bg').trim();
-    return { info, dinfo, level, diff, f, ph, cursor, ink, corner, bg };
+    // Ten minutes at 8 kHz: 75 001 frames, bounded to PER_COLUMN per column.
+    const long = new Float32Array(8000 * 600);
+    for (let i = 0; i < long.length; i++) long[i] = 0.5 * Math.sin(i * 0.3);
+    const linfo = await m.drawSpectrogram(make(), long, 8000);
+    return { info, dinfo, linfo, level, diff, f, ph, cursor, ink, corner, bg, bound: [m.PER_COLUMN, m.MAX_COLUMNS] };
   });
   assert.equal(r.info.mode, 'level');
   assert.equal(r.dinfo.mode, 'difference');
   assert.equal(r.info.rows, r.ph);
+  const [perColumn, maxColumns] = r.bound;
+  assert.equal(r.linfo.frames, Math.ceil((8000 * 600) / r.linfo.hop) + 1);
+  assert.ok(r.linfo.columns <= Math.min(maxColumns, r.linfo.plot.width), `${r.linfo.columns} columns`);
+  assert.equal(r.linfo.perColumn, perColumn);
+  assert.ok(r.linfo.framesComputed <= perColumn * r.linfo.columns,
+    `a 10-minute clip took ${r.linfo.framesComputed} FFTs for ${r.linfo.columns} columns`);
   // Rows from the top: row y is at fMax · (fMin/fMax)^(y/(rows−1)).
   const rows = r.ph;
   const expectRow = (rows - 1) * (1 - Math.log(r.f / 20) / Math.log(24000 / 20));
@@ -182,6 +192,7 @@ test('offline panel: spectrograms and the difference view draw, switch by keyboa
     });
     const hex = (s) => [1, 3, 5].map((i) => parseInt(s.slice(i, i + 2), 16));
     assert.deepEqual(px.corner.slice(0, 3), hex(px.bg), `${scheme}: spectrogram background`);
+    await page.screenshot({ path: join(ARTIFACTS, `spectrogram-${scheme}-desktop.png`), fullPage: true });
     // Keyboard: focus the checked radio, arrow to the next one (the difference view).
     await page.focus('#view-spectrograms');
     await page.keyboard.press('ArrowRight');
@@ -191,7 +202,7 @@ test('offline panel: spectrograms and the difference view draw, switch by keyboa
     assert.match(await page.textContent('#spec-caption'), /20·log10\|processed\| − 20·log10\|original\|.*cool-warm/);
     const outline = await page.evaluate(() => getComputedStyle(document.activeElement).outlineStyle);
     assert.equal(outline, 'solid', 'the focused view switch shows its focus');
-    await page.screenshot({ path: join(ARTIFACTS, `spectrogram-${scheme}-desktop.png`), fullPage: true });
+    await page.screenshot({ path: join(ARTIFACTS, `difference-${scheme}-desktop.png`), fullPage: true });
     for (const view of ['difference', 'spectrograms']) {
       await page.check(`#view-${view}`);
       await page.setViewportSize({ width: 390, height: 844 });
@@ -200,7 +211,11 @@ test('offline panel: spectrograms and the difference view draw, switch by keyboa
       await page.setViewportSize({ width: 1280, height: 900 });
     }
     await page.setViewportSize({ width: 390, height: 844 });
-    await page.waitForSelector('#spec-in[data-state=drawn]');
+    // Drawn anew at the new width (the page waits 250 ms after a resize).
+    await page.waitForFunction(() => ['spec-in', 'spec-out'].every((id) => {
+      const c = document.getElementById(id);
+      return c.dataset.state === 'drawn' && c.width === Math.round(c.clientWidth * Math.max(1, window.devicePixelRatio));
+    }));
     await page.screenshot({ path: join(ARTIFACTS, `spectrogram-${scheme}-phone.png`), fullPage: true });
     // Played and paused, the cursor stands where the player is.
     await page.click('#play');
@@ -211,8 +226,8 @@ test('offline panel: spectrograms and the difference view draw, switch by keyboa
     const cur = await page.evaluate(() => {
       const c = document.getElementById('spec-out');
       const p = Number(document.getElementById('position').value) / 1000;
-      const pw = c.width - 46 - 58;
-      const x = Math.round(46 + p * (pw - 1));
+      const [x0, , pw] = c.dataset.plot.split(' ').map(Number);
+      const x = Math.round(x0 + p * (pw - 1));
       return { p, row: Array.from(c.getContext('2d').getImageData(x - 1, 30, 3, 1).data),
         ink: getComputedStyle(document.documentElement).getPropertyValue('--ink').trim() };
     });

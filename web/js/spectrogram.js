@@ -92,7 +92,7 @@ function layout(canvas, axes, legend) {
   const w = Math.max(60, Math.round(canvas.clientWidth * dpr));
   const h = Math.max(40, Math.round(canvas.clientHeight * dpr));
   const left = axes ? Math.round(46 * dpr) : 0;
-  const right = legend ? Math.round(58 * dpr) : 0;
+  const right = legend ? Math.round(68 * dpr) : 0;
   const pad = axes || legend ? Math.round(7 * dpr) : 0;
   return { dpr, w, h, x0: left, y0: pad, pw: Math.max(8, w - left - right), ph: Math.max(8, h - 2 * pad) };
 }
@@ -115,7 +115,9 @@ export async function drawSpectrogram(canvas, samples, sampleRate, options = {})
   const opts = { ...SPECTROGRAM_DEFAULTS, axes: true, legend: true, ...options };
   const sig = channelsOf(samples, 'the samples');
   const ref = opts.reference ? channelsOf(opts.reference, 'the reference') : null;
+  if (!(Number.isFinite(sampleRate) && sampleRate > 0)) throw new RangeError(`spectrogram: sample rate ${sampleRate} is not a positive number`);
   const mode = opts.mode || (ref ? 'difference' : 'level');
+  if (mode !== 'level' && mode !== 'difference') throw new RangeError(`spectrogram: mode '${mode}' is neither 'level' nor 'difference'`);
   if (mode === 'difference' && !ref) throw new TypeError('spectrogram: the difference view needs a reference');
   const { n, hop, window: windowName } = stftSettings(sampleRate);
   const fMax = sampleRate / 2;
@@ -137,7 +139,8 @@ export async function drawSpectrogram(canvas, samples, sampleRate, options = {})
   const token = {};
   const prev = states.get(canvas);
   const info = { mode, n, hop, window: windowName, sampleRate, frames, columns: cols, rows, perColumn,
-    framesComputed: picks.reduce((s, p) => s + p.length, 0), fMin, fMax, range, seconds: length / sampleRate };
+    framesComputed: picks.reduce((s, p) => s + p.length, 0), fMin, fMax, range, seconds: length / sampleRate,
+    plot: { x: L.x0, y: L.y0, width: L.pw, height: L.ph } };
   const st = { token, image, L, opts, mode, fMin, fMax, range, info, cursor: prev ? prev.cursor : null, ready: false };
   states.set(canvas, st);
   if (canvas.width !== L.w) canvas.width = L.w;
@@ -168,7 +171,8 @@ export async function drawSpectrogram(canvas, samples, sampleRate, options = {})
   }
   st.ready = true;
   paint(canvas, st);
-  Object.assign(canvas.dataset, { state: 'drawn', mode, columns: String(cols), rows: String(rows) });
+  Object.assign(canvas.dataset, { state: 'drawn', mode, columns: String(cols), rows: String(rows),
+    plot: `${L.x0} ${L.y0} ${L.pw} ${L.ph}` });
   return info;
 }
 
