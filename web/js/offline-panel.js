@@ -10,7 +10,7 @@ import { $, el, clear, setText, status } from './dom.js';
 import { looksLikeWav, floatWavHeader, MAX_RENDER_FRAMES } from './wav.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { drawWave, themeColour } from './waveform.js';
-import { drawSpectrogram, setSpectrogramCursor, spectrogramStale, stftSettings, SPECTROGRAM_DEFAULTS } from './spectrogram.js';
+import { drawSpectrogram, setSpectrogramCursor, spectrogramStale, stftSettings, SPECTROGRAM_DEFAULTS, PER_COLUMN } from './spectrogram.js';
 import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
 import { fnv1a64 } from './test-signal.js';
@@ -266,7 +266,7 @@ export class OfflinePanel {
     this.updateButtons();
     this.result = { ...r, effectName: fx.name, effectId: fx.id, settings, input: null, output: null };
     $('result').hidden = false;
-    this.spectra = { result: this.result, drawn: new Map() };
+    this.spectra = { result: this.result, drawn: new Set() };
     this.showSpectra();
     this.redraw();
     const facts = clear($('result-facts'));
@@ -335,8 +335,9 @@ export class OfflinePanel {
     const pos = d ? this.player.position() / d : null;
     drawWave($('wave-in'), r.inputPeaks, themeColour('--original'), pos);
     drawWave($('wave-out'), r.outputPeaks, themeColour('--processed'), pos);
-    // Also repaints them in the theme's current colours.
-    for (const id of ['spec-in', 'spec-out', 'spec-diff']) setSpectrogramCursor($(id), pos);
+    // The pictures on show, repainted in the theme's current colours.
+    const shown = $('spec-diff-figure').hidden ? ['spec-in', 'spec-out'] : ['spec-diff'];
+    for (const id of shown) if (!$(id).hidden) setSpectrogramCursor($(id), pos);
   }
 
   // The view chosen under the waveforms: the two spectrograms, the level
@@ -354,6 +355,7 @@ export class OfflinePanel {
     const orig = this.player.original;
     const proc = this.player.processed;
     if (view === 'none' || !orig || !proc) return;
+    this.redraw(); // a picture shown again gets the current position
     const chans = (b) => Array.from({ length: b.numberOfChannels }, (_, c) => b.getChannelData(c));
     const rate = orig.sampleRate;
     const { n, hop } = stftSettings(rate);
@@ -365,14 +367,14 @@ export class OfflinePanel {
       (view === 'spectrograms'
         ? `Level in dB relative to a full-scale sine, ${db(D.levelRange[0], 0)} to ${fixed(D.levelRange[1], 0)} dB, colour map cividis (Nuñez, Anderton & Renslow 2018).`
         : `Difference per frequency bin: 20·log10|processed| − 20·log10|original| (each floored at ${db(D.levelRange[0], 0)}), ±${D.diffRange} dB, colour map cool-warm (Moreland 2009).`) +
-      ' A clip longer than the picture is wide keeps up to 4 frames per pixel column and the loudest value per bin.');
+      ` A clip longer than the picture is wide keeps up to ${PER_COLUMN} frames per pixel column and the loudest value per bin.`);
     const jobs = view === 'spectrograms'
       ? [['spec-in', chans(orig), {}], ['spec-out', chans(proc), {}]]
       : [['spec-diff', chans(proc), { reference: chans(orig) }]];
     for (const [id, samples, opts] of jobs) {
       const canvas = $(id);
-      if (s.drawn.get(id) === canvas && !spectrogramStale(canvas)) continue;
-      s.drawn.set(id, canvas);
+      if (s.drawn.has(id) && !spectrogramStale(canvas)) continue;
+      s.drawn.add(id);
       drawSpectrogram(canvas, samples, rate, opts).then(() => this.redraw(), (e) => {
         s.drawn.delete(id);
         status(this.status, 'error', `The ${id === 'spec-diff' ? 'difference' : 'spectrogram'} could not be drawn: ${e.message}`);
