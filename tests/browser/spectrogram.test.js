@@ -3,7 +3,8 @@
 // full-scale sine at 0 dB on its row of the log axis, the difference view
 // shows 20·log10(2) for a signal against its half, the cursor follows the
 // position; on the offline panel both views draw, switch by keyboard, fit a
-// 390 px screen and paint in the dark theme's colours, with no console error.
+// 390 px screen and paint in the dark theme's colours, with no console error;
+// bad input is refused with a message naming the fault.
 //
 // Tolerances against SciPy (SciPy 1.10 documentation of scipy.signal.stft;
 // reference computed in double precision from the same float32 samples):
@@ -137,11 +138,29 @@ test('pictures: a full-scale sine at 0 dB on its row, noise against its half at 
     const long = new Float32Array(8000 * 600);
     for (let i = 0; i < long.length; i++) long[i] = 0.5 * Math.sin(i * 0.3);
     const linfo = await m.drawSpectrogram(make(), long, 8000);
-    return { info, dinfo, linfo, level, diff, f, ph, cursor, ink, corner, bg, bound: [m.PER_COLUMN, m.MAX_COLUMNS] };
+    // A grid cell: no axis, no legend, the picture fills the canvas.
+    const bare = make();
+    const cell = (await m.drawSpectrogram(bare, x, rate, { axes: false, legend: false })).plot;
+    cell.canvas = [bare.width, bare.height];
+    // Bad input: each refused with a message naming what is wrong.
+    const errors = [];
+    for (const [samples, r, opts] of [[new Float32Array(0), rate, {}], [[x, x.subarray(1)], rate, {}],
+      [x, rate, { mode: 'difference' }], [x, 0, {}], [[1, 2, 3], rate, {}], [x, rate, { fMin: 30000 }]])
+      errors.push(await m.drawSpectrogram(make(), samples, r, opts).then(() => 'drawn', (e) => e.message));
+    return { info, dinfo, linfo, level, diff, f, ph, cursor, ink, corner, bg, cell, errors, bound: [m.PER_COLUMN, m.MAX_COLUMNS] };
   });
   assert.equal(r.info.mode, 'level');
   assert.equal(r.dinfo.mode, 'difference');
   assert.equal(r.info.rows, r.ph);
+  assert.deepEqual(r.cell, { x: 0, y: 0, width: r.cell.canvas[0], height: r.cell.canvas[1], canvas: r.cell.canvas });
+  assert.deepEqual(r.errors, [
+    'spectrogram: the samples are empty',
+    'spectrogram: the channels of the samples differ in length',
+    'spectrogram: the difference view needs a reference',
+    'spectrogram: sample rate 0 is not a positive number',
+    'spectrogram: the samples must be a Float32Array or an array of Float32Arrays',
+    'spectrogram: fMin 30000 Hz must lie between 0 and 24000 Hz',
+  ]);
   const [perColumn, maxColumns] = r.bound;
   assert.equal(r.linfo.frames, Math.ceil((8000 * 600) / r.linfo.hop) + 1);
   assert.ok(r.linfo.columns <= Math.min(maxColumns, r.linfo.plot.width), `${r.linfo.columns} columns`);

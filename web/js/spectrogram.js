@@ -78,7 +78,7 @@ function channelsOf(x, what) {
     throw new TypeError(`spectrogram: ${what} must be a Float32Array or an array of Float32Arrays`);
   const length = chs[0].length;
   if (!chs.every((c) => c.length === length)) throw new RangeError(`spectrogram: the channels of ${what} differ in length`);
-  if (!length) throw new RangeError(`spectrogram: ${what} holds no samples`);
+  if (!length) throw new RangeError(`spectrogram: ${what} are empty`);
   return { chs, length };
 }
 
