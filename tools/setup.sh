@@ -7,6 +7,7 @@ what=${1:-test}
 build_pkgs=(g++ cmake make pkg-config git ca-certificates emscripten libeigen3-dev libxsimd-dev catch2
             rapidjson-dev libsndfile1-dev python3)
 test_pkgs=(python3-torch python3-numpy python3-scipy python3-pytest sox chromium libebur128-1
+           python3-matplotlib  # the page's colour maps: tools/make_colormaps.py and their test
            clang libclang-rt-14-dev)  # clang + libFuzzer runtime: tools/fuzz.sh
 [ "$what" = test ] && pkgs=("${build_pkgs[@]}" "${test_pkgs[@]}") || pkgs=("${build_pkgs[@]}")
 command -v node >/dev/null 2>&1 || pkgs+=(nodejs)

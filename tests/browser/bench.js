@@ -9,7 +9,9 @@
 //   2. the offline Worker's render speed, per effect and build: a 60 s mono
 //      48 kHz file through the page's own upload-and-render path;
 //   3. a 10-minute stereo 48 kHz file through the page with the first effect:
-//      total time and the longest stall of the page's main thread meanwhile.
+//      total time and the longest stall of the page's main thread meanwhile,
+//      then the time to draw both spectrograms and the difference view
+//      (web/js/spectrogram.js) and the longest stall while they are drawn.
 //
 //   node tests/browser/bench.js [--config demos/site.json] [--seconds 20] [--no-long | --long-only]
 //   node tests/browser/bench.js --bench-models     (the synthetic set of tools/make_bench_models.py)
@@ -162,7 +164,25 @@ async function renderThroughPage(url, file, effectId) {
     return window.__stall.max;
   });
   const speed = /([\d.]+)× real time per channel/.exec(facts);
-  return { total, speed: speed ? Number(speed[1]) : NaN, stall };
+  // The spectrograms (drawn after the result) and then the difference view.
+  await page.evaluate(() => { window.__stall = { last: performance.now(), max: 0 }; window.__stallTimer = setInterval(() => {
+    const now = performance.now();
+    window.__stall.max = Math.max(window.__stall.max, now - window.__stall.last);
+    window.__stall.last = now;
+  }, 20); });
+  const s0 = Date.now();
+  await page.waitForSelector('#spec-in[data-state=drawn]', { timeout: 600000 });
+  await page.waitForSelector('#spec-out[data-state=drawn]', { timeout: 600000 });
+  const spectra = (Date.now() - s0) / 1000;
+  const d0 = Date.now();
+  await page.check('#view-difference');
+  await page.waitForSelector('#spec-diff[data-state=drawn]', { timeout: 600000 });
+  const difference = (Date.now() - d0) / 1000;
+  const specStall = await page.evaluate(() => {
+    clearInterval(window.__stallTimer);
+    return window.__stall.max;
+  });
+  return { total, speed: speed ? Number(speed[1]) : NaN, stall, spectra, difference, specStall };
 }
 say('## Offline Worker render speed (60 s mono 48 kHz float WAV, through the page)');
 say('');
@@ -182,6 +202,7 @@ if (long) {
   say(`## A 10-minute stereo 48 kHz file (16-bit WAV, 110 MB) through ${fx.name}, simd`);
   say('');
   say(`upload to result on screen ${r.total.toFixed(1)} s; processing ${r.speed.toFixed(1)}× real time per channel; longest main-thread stall ${r.stall.toFixed(0)} ms (timer every 20 ms)`);
+  say(`then both spectrograms drawn in ${r.spectra.toFixed(2)} s and the difference view in ${r.difference.toFixed(2)} s; longest main-thread stall meanwhile ${r.specStall.toFixed(0)} ms`);
   say('');
 }
 

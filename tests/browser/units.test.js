@@ -1,7 +1,7 @@
 // The page's pure modules in Node, against outside references: the test
 // signal against the native one, K-weighting and integrated loudness against
 // ITU-R BS.1770-4, EBU Tech 3341 and libebur128, the WAV reader and writer
-// against SciPy.
+// against SciPy, the spectrogram colour maps against matplotlib and CIELAB.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { readFileSync, writeFileSync } from 'node:fs';
@@ -186,4 +186,43 @@ w.write(sys.argv[1], 48000, (np.arange(1000) % 200 - 100).astype(np.int16))`, pa
     const h = await readWavHeader(read(streamed), streamed.length, "'streamed.wav'");
     assert.equal(h.frames, 400, `data length ${marker}`);
   }
+});
+
+// CIELAB L* of an sRGB colour: IEC 61966-2-1 (sRGB transfer function and
+// D65 luminance weights) and CIE 15:2004 (L* = 116·f(Y) − 16).
+function lightness(r, g, b) {
+  const lin = (c) => (c /= 255) <= 0.04045 ? c / 12.92 : ((c + 0.055) / 1.055) ** 2.4;
+  const Y = 0.2126 * lin(r) + 0.7152 * lin(g) + 0.0722 * lin(b);
+  return Y > (6 / 29) ** 3 ? 116 * Math.cbrt(Y) - 16 : (116 * Y) / (3 * (6 / 29) ** 2);
+}
+
+test('the spectrogram colour maps equal matplotlib\'s cividis and coolwarm, and their lightness runs as published', async () => {
+  const { CIVIDIS, COOL_WARM } = await import('../../web/js/colormaps.js');
+  // matplotlib (Debian's python3-matplotlib) ships cividis as the table of Nuñez,
+  // Anderton & Renslow 2018 (PLOS ONE 13(7): e0199239) and coolwarm after
+  // Moreland 2009 ("Diverging Color Maps for Scientific Visualization").
+  const code = `
+import json
+from matplotlib import cm
+print(json.dumps({n: [[round(255 * c) for c in rgba[:3]] for rgba in cm.get_cmap(n)([i / 255 for i in range(256)])]
+                  for n in ("cividis", "coolwarm")}))
+`;
+  const ref = JSON.parse(mustRun(PYTHON, ['-c', code]).stdout);
+  for (const [name, lut] of [['cividis', CIVIDIS], ['coolwarm', COOL_WARM]]) {
+    assert.equal(lut.length, 256 * 3, name);
+    let worst = 0;
+    for (let i = 0; i < 256; i++)
+      for (let j = 0; j < 3; j++) worst = Math.max(worst, Math.abs(lut[3 * i + j] - ref[name][i][j]));
+    assert.ok(worst <= 1, `${name}: an entry differs from matplotlib's by ${worst}/255`);
+  }
+  // Cividis: lightness rises steadily end to end (its paper's design goal; no
+  // step back by more than 0.5 L*, from below 20 to above 85).
+  const L = Array.from({ length: 256 }, (_, i) => lightness(CIVIDIS[3 * i], CIVIDIS[3 * i + 1], CIVIDIS[3 * i + 2]));
+  for (let i = 1; i < 256; i++) assert.ok(L[i] > L[i - 1] - 0.5, `cividis: L* falls at ${i}: ${L[i - 1]} → ${L[i]}`);
+  assert.ok(L[0] < 20 && L[255] > 85, `cividis: L* ${L[0]} … ${L[255]}`);
+  // Cool-warm: lightest in the middle, the ends of about equal lightness (Moreland 2009's design, recalled from memory).
+  const M = Array.from({ length: 256 }, (_, i) => lightness(COOL_WARM[3 * i], COOL_WARM[3 * i + 1], COOL_WARM[3 * i + 2]));
+  const top = M.indexOf(Math.max(...M));
+  assert.ok(Math.abs(top - 127.5) <= 8, `cool-warm: lightest at ${top}`);
+  assert.ok(Math.abs(M[0] - M[255]) < 5, `cool-warm ends: L* ${M[0]} and ${M[255]}`);
 });

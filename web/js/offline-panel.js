@@ -1,6 +1,7 @@
 // "Render a file": an uploaded file or a bundled clip through the effect, in
-// a Worker (progress, cancel), then waveforms, lockstep A/B playback with an
-// optional loudness-matched switch, and a float32 WAV download.
+// a Worker (progress, cancel), then waveforms, spectrograms (or the level
+// difference, processed − original) with a play-position cursor, lockstep A/B
+// playback with an optional loudness-matched switch, and a float32 WAV download.
 //
 // WAV files are read by the Worker at their own rate, a slice at a time (the
 // core resamples to the model rate and back, exactly as `earshot render`
@@ -9,6 +10,7 @@ import { $, el, clear, setText, status } from './dom.js';
 import { looksLikeWav, floatWavHeader, MAX_RENDER_FRAMES } from './wav.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { drawWave, themeColour } from './waveform.js';
+import { drawSpectrogram, setSpectrogramCursor, spectrogramStale, stftSettings, SPECTROGRAM_DEFAULTS, PER_COLUMN } from './spectrogram.js';
 import { Player } from './player.js';
 import { hz, seconds as fmtSeconds, clock, db, dbfs, fixed } from './format.js';
 
@@ -68,7 +70,15 @@ export class OfflinePanel {
       $(next).checked = true;
       this.player.setWhich($(next).value);
     });
-    window.addEventListener('resize', () => this.redraw());
+    for (const id of ['view-spectrograms', 'view-difference', 'view-none'])
+      $(id).addEventListener('change', (e) => e.target.checked && this.showSpectra());
+    window.addEventListener('resize', () => {
+      this.redraw();
+      clearTimeout(this.resizeTimer);
+      this.resizeTimer = setTimeout(() => this.showSpectra(), 250);
+    });
+    // A theme change repaints the canvases in the new theme's colours.
+    if (window.matchMedia) window.matchMedia('(prefers-color-scheme: dark)').addEventListener('change', () => this.redraw());
     const tick = () => {
       if (this.player.playing) this.updatePosition();
       requestAnimationFrame(tick);
@@ -249,6 +259,8 @@ export class OfflinePanel {
     this.updateButtons();
     this.result = { ...r, effectName: fx.name, effectId: fx.id, settings, input: null, output: null };
     $('result').hidden = false;
+    this.spectra = { result: this.result, drawn: new Set() };
+    this.showSpectra();
     this.redraw();
     const facts = clear($('result-facts'));
     const add = (k, v) => facts.append(el('dt', {}, k), el('dd', {}, v));
@@ -316,6 +328,51 @@ export class OfflinePanel {
     const pos = d ? this.player.position() / d : null;
     drawWave($('wave-in'), r.inputPeaks, themeColour('--original'), pos);
     drawWave($('wave-out'), r.outputPeaks, themeColour('--processed'), pos);
+    // The pictures on show, repainted in the theme's current colours.
+    const shown = $('spec-diff-figure').hidden ? ['spec-in', 'spec-out'] : ['spec-diff'];
+    for (const id of shown) if (!$(id).hidden) setSpectrogramCursor($(id), pos);
+  }
+
+  // The view chosen under the waveforms: the two spectrograms, the level
+  // difference, or nothing. Each picture is computed once per result and
+  // size, in the spectrogram Worker.
+  showSpectra() {
+    const s = this.spectra;
+    if (!s || s.result !== this.result || $('result').hidden) return;
+    const view = ['spectrograms', 'difference', 'none'].find((v) => $(`view-${v}`).checked);
+    $('spec-in').hidden = view !== 'spectrograms';
+    $('spec-out').hidden = view !== 'spectrograms';
+    $('spec-diff-figure').hidden = view !== 'difference';
+    const caption = $('spec-caption');
+    caption.hidden = view === 'none';
+    const orig = this.player.original;
+    const proc = this.player.processed;
+    if (view === 'none' || !orig || !proc) return;
+    this.redraw(); // a picture shown again gets the current position
+    const chans = (b) => Array.from({ length: b.numberOfChannels }, (_, c) => b.getChannelData(c));
+    const rate = orig.sampleRate;
+    const { n, hop } = stftSettings(rate);
+    const ms = (k) => `${fixed((1000 * k) / rate, 1)} ms`;
+    const D = SPECTROGRAM_DEFAULTS;
+    caption.dataset.n = String(n);
+    caption.dataset.hop = String(hop);
+    setText(caption, `Short-time Fourier transform of the channels' average: periodic Hann window of ${n} samples (${ms(n)}) at ${hz(rate)}, hop ${hop} samples (${ms(hop)}); frequency on a log axis from ${hz(D.fMin)} to ${hz(rate / 2)}. ` +
+      (view === 'spectrograms'
+        ? `Level in dB relative to a full-scale sine, ${db(D.levelRange[0], 0)} to ${fixed(D.levelRange[1], 0)} dB, colour map cividis (Nuñez, Anderton & Renslow 2018).`
+        : `Difference per frequency bin: 20·log10|processed| − 20·log10|original| (each floored at ${db(D.levelRange[0], 0)}), ±${D.diffRange} dB, colour map cool-warm (Moreland 2009).`) +
+      ` A clip longer than the picture is wide keeps up to ${PER_COLUMN} frames per pixel column and the loudest value per bin.`);
+    const jobs = view === 'spectrograms'
+      ? [['spec-in', chans(orig), {}], ['spec-out', chans(proc), {}]]
+      : [['spec-diff', chans(proc), { reference: chans(orig) }]];
+    for (const [id, samples, opts] of jobs) {
+      const canvas = $(id);
+      if (s.drawn.has(id) && !spectrogramStale(canvas)) continue;
+      s.drawn.add(id);
+      drawSpectrogram(canvas, samples, rate, opts).then(() => this.redraw(), (e) => {
+        s.drawn.delete(id);
+        status(this.status, 'error', `The ${id === 'spec-diff' ? 'difference' : 'spectrogram'} could not be drawn: ${e.message}`);
+      });
+    }
   }
 
   // A float32 WAV of the processed result, built a slice at a time.
