@@ -119,26 +119,36 @@ export function testSignal(rate, seconds) {
 
 // FNV-1a 64 over the little-endian bytes of each float32 sample of the arrays
 // given, in order (the hash of their concatenation, without copying), as a
-// 16-digit hex string. 64-bit arithmetic in two 32-bit halves: the prime is
-// 2^40 + 0x1b3, so h · prime = h · 0x1b3 + (h << 40) mod 2^64. The bytes are
-// read through a Uint8Array view, in the platform's order: little-endian on
-// every platform browsers and Node run on, as WebAssembly memory is. The one
-// hash of the page: self-check, stimuli of listening tests, results files.
+// 16-digit hex string. The 64-bit state is four 16-bit limbs, so every step
+// stays in exact int32 arithmetic (about 20× faster than doubles with
+// modulo: a 10-minute stereo render hashes in well under a second). The prime
+// is 2^40 + 0x1b3, so h · prime = h · 0x1b3 + (h << 40) mod 2^64, and h << 40
+// is limb k moved to limb k + 2, shifted left by 8. The bytes are read through
+// a Uint8Array view, in the platform's order: little-endian on every platform
+// browsers and Node run on, as WebAssembly memory is. The one hash of the
+// page: self-check, grid cells, stimuli of listening tests, results files.
 export function fnv1a64(...parts) {
-  let hi = 0xcbf29ce4; // offset basis 14695981039346656037 = 0xcbf29ce484222325
-  let lo = 0x84222325;
+  // offset basis 14695981039346656037 = 0xcbf29ce484222325
+  let h0 = 0x2325;
+  let h1 = 0x8422;
+  let h2 = 0x9ce4;
+  let h3 = 0xcbf2;
   for (const samples of parts) {
     const bytes = new Uint8Array(samples.buffer, samples.byteOffset, samples.byteLength);
     for (let i = 0; i < bytes.length; i++) {
-      lo = (lo ^ bytes[i]) >>> 0;
-      const l = lo * 0x1b3; // < 2^41, exact
-      const carry = Math.floor(l / 4294967296);
-      const h = hi * 0x1b3 + carry + ((lo << 8) >>> 0); // < 2^42, exact
-      lo = l % 4294967296;
-      hi = h % 4294967296;
+      h0 ^= bytes[i];
+      const t0 = h0 * 0x1b3;
+      const t1 = h1 * 0x1b3 + (t0 >>> 16);
+      const t2 = h2 * 0x1b3 + (h0 << 8) + (t1 >>> 16);
+      const t3 = h3 * 0x1b3 + (h1 << 8) + (t2 >>> 16);
+      h0 = t0 & 0xffff;
+      h1 = t1 & 0xffff;
+      h2 = t2 & 0xffff;
+      h3 = t3 & 0xffff;
     }
   }
-  return hi.toString(16).padStart(8, '0') + lo.toString(16).padStart(8, '0');
+  const hex = (v) => v.toString(16).padStart(4, '0');
+  return hex(h3) + hex(h2) + hex(h1) + hex(h0);
 }
 
 // The bits of one float32 as 8 hex digits (for a readable difference).
