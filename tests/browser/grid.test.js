@@ -256,3 +256,25 @@ test('at 390 px the grid scrolls inside its panel and the page never sideways, a
   await desk.page.close();
   assert.deepEqual([...problems, ...desk.problems], []);
 });
+
+test('the chosen cell shows its spectrogram, and its level difference from the row\'s reference where there is one', async () => {
+  const { page, problems } = await openGrid(server.url);
+  await page.click(cell(1, 2));
+  await waitReady(page, 1, 2);
+  await page.click(cell(1, 2)); // stop
+  await page.waitForSelector('#grid-view:not([hidden]) #grid-spec[data-state=drawn]', { timeout: 60000 });
+  assert.equal(await page.getAttribute('#grid-spec', 'data-mode'), 'level');
+  assert.match(await page.textContent('#grid-spec-caption'), /Stereo clip, LSTM: level in dB .* Hann window 2048, hop 512 at 48/);
+  assert.equal(await page.isDisabled('#grid-view-difference'), false);
+  await page.check('#grid-view-difference');
+  await page.waitForSelector('#grid-spec[data-mode=difference][data-state=drawn]', { timeout: 60000 });
+  assert.match(await page.textContent('#grid-spec-caption'), /Stereo clip: LSTM − Target/);
+  // The mono row has no reference: no difference to show, the view falls back to the spectrogram.
+  await page.click(cell(0, 3));
+  await waitReady(page, 0, 3);
+  await page.click(cell(0, 3));
+  await page.waitForSelector('#grid-spec[data-mode=level][data-state=drawn]', { timeout: 60000 });
+  assert.equal(await page.isDisabled('#grid-view-difference'), true);
+  await page.close();
+  assert.deepEqual(problems, []);
+});

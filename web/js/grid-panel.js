@@ -12,7 +12,8 @@
 import { $, el, clear, setText } from './dom.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { GridPlayer } from './grid-player.js';
-import { clock, db } from './format.js';
+import { clock, db, hz } from './format.js';
+import { drawSpectrogram, setSpectrogramCursor, spectrogramStale, stftSettings, SPECTROGRAM_DEFAULTS } from './spectrogram.js';
 
 const MARK = { pass: '✓', fail: '✗' };
 
@@ -41,8 +42,16 @@ export class GridPanel {
     // Read-only view for tests/browser/grid.test.js (the row's timeline and its sources).
     Object.defineProperty($('grid'), 'gridPlayer', { value: this.player });
     $('grid-match').addEventListener('change', () => this.applyMatch());
+    for (const v of ['level', 'difference', 'none']) $(`grid-view-${v}`).addEventListener('change', () => this.showView());
+    window.addEventListener('resize', () => this.showView());
     const tick = () => {
-      if (this.player.playing) setText($('grid-position'), clock(this.player.position()));
+      const p = this.player;
+      if (p.playing) setText($('grid-position'), clock(p.position()));
+      const shown = this.shown;
+      if (shown && shown.buffer) {
+        const on = p.playing ? p.row === shown.row : false;
+        setSpectrogramCursor($('grid-spec'), on ? p.position() / shown.buffer.duration : null);
+      }
       requestAnimationFrame(tick);
     };
     requestAnimationFrame(tick);
@@ -133,6 +142,51 @@ export class GridPanel {
 
   changed() {
     for (const fn of this.changeListeners) fn();
+    this.showView();
+  }
+
+  // The spectrogram of the chosen cell, or its level difference from the
+  // row's reference cell (spectrogram.js, computed in its Worker).
+  showView() {
+    const c = this.chosen ? this.cells[this.chosen.row][this.chosen.column] : null;
+    const box = $('grid-view');
+    box.hidden = !c || c.state !== 'ready';
+    if (box.hidden) return;
+    const refCell = this.cells[c.row].find((x) => this.grid.columns[x.column].kind === 'reference' && x.state !== 'none');
+    const canDiff = refCell && refCell !== c;
+    $('grid-view-difference').disabled = !canDiff;
+    let view = ['level', 'difference', 'none'].find((v) => $(`grid-view-${v}`).checked);
+    if (view === 'difference' && !canDiff) view = 'level';
+    const canvas = $('grid-spec');
+    canvas.hidden = view === 'none';
+    const caption = $('grid-spec-caption');
+    caption.hidden = view === 'none';
+    if (view === 'none') return;
+    if (view === 'difference' && refCell.state !== 'ready') {
+      this.want(refCell, true);
+      setText(caption, 'Computing the reference cell first…');
+      return;
+    }
+    const key = `${c.row}.${c.column}.${view}`;
+    if (this.shownKey === key && !spectrogramStale(canvas)) return;
+    this.shownKey = key;
+    this.shown = c;
+    const chans = (b) => Array.from({ length: b.numberOfChannels }, (_, i) => b.getChannelData(i));
+    const rate = c.buffer.sampleRate;
+    const { n, hop } = stftSettings(rate);
+    const D = SPECTROGRAM_DEFAULTS;
+    const clip = this.clipOf(c.row).name;
+    const col = this.grid.columns[c.column].name;
+    const what = view === 'level'
+      ? `${clip}, ${col}: level in dB relative to a full-scale sine, colour map cividis (Nuñez, Anderton & Renslow 2018)`
+      : `${clip}: ${col} − ${this.grid.columns[refCell.column].name}, 20·log10 of the magnitudes per bin, ±${D.diffRange} dB, colour map cool-warm (Moreland 2009)`;
+    setText(caption, `${what}. Hann window ${n}, hop ${hop} at ${hz(rate)}; log frequency axis.`);
+    canvas.setAttribute('aria-label', view === 'level' ? `Spectrogram of ${clip}, ${col}` : `Level difference of ${clip}, ${col} from the reference`);
+    const opts = view === 'difference' ? { reference: chans(refCell.buffer) } : {};
+    drawSpectrogram(canvas, chans(c.buffer), rate, opts).catch((e) => {
+      this.shownKey = null;
+      setText(caption, `The picture could not be drawn: ${e.message}`);
+    });
   }
 
   // A click, Space or Enter on a cell.
@@ -301,6 +355,7 @@ export class GridPanel {
       this.arrived(c);
     };
     put(cell, r);
+    this.showView();
     // The render read the dry clip too: the row's input cells need no job of their own.
     if (r.dry) {
       this.grid.columns.forEach((col, k) => {
