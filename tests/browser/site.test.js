@@ -42,6 +42,11 @@ test('the page loads with no console errors, shows the config as text, and its s
   assert.equal(await page.textContent('#site-credits li'), built.config.credits[0]);
   assert.equal(await page.locator('#site-credits u').count(), 0);
   assert.match(await page.textContent('#variant-line'), /simd build/);
+  // The verdict also sits above the fold as a compact badge, in words and a mark.
+  assert.equal(await page.getAttribute('#check-badge', 'data-state'), 'pass');
+  assert.match(await page.textContent('#check-badge'), /✓ .*same samples as native \(simd build\)/);
+  const badge = await page.locator('#check-badge').boundingBox();
+  assert.ok(badge && badge.y + badge.height <= 900, `the self-check badge ends at ${badge && badge.y + badge.height} px, below the fold`);
   // A Content-Security-Policy allowing only what the page uses, and no inline script or handler.
   const csp = await page.getAttribute('meta[http-equiv="Content-Security-Policy"]', 'content');
   assert.match(csp, /default-src 'none'/);
@@ -111,6 +116,8 @@ test('the self-check reports the first differing sample when the native referenc
   await page.reload();
   const r = await waitForCheck(page);
   assert.equal(r.state, 'fail');
+  assert.equal(await page.getAttribute('#check-badge', 'data-state'), 'fail');
+  assert.match(await page.textContent('#check-badge'), /✗ .*differs from native/);
   assert.match(r.text, /first at sample 1\u202f000: this browser gives/);
   await ctx.unrouteAll();
   await page.close();

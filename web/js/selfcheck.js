@@ -2,8 +2,19 @@
 // this browser (in a Worker, with the page's build) and compares the output
 // hash with the native one the site builder stored. A new choice cancels a
 // check still running.
-import { $, el, clear, status } from './dom.js';
+import { $, el, clear, status, setText } from './dom.js';
 import { count } from './format.js';
+
+// The compact verdict at the top of the page (a link to the panel): state
+// running, pass, fail or none, in words and a mark, never in colour alone.
+const BADGE = { running: '…', pass: '✓', fail: '✗', none: '?' };
+function badge(state, text) {
+  const b = $('check-badge');
+  b.hidden = false;
+  b.dataset.state = state;
+  setText(b.querySelector('.badge-mark'), BADGE[state]);
+  setText($('check-badge-text'), text);
+}
 
 export class SelfCheck {
   constructor(engine) {
@@ -22,6 +33,7 @@ export class SelfCheck {
     status(line, 'busy', `Checking ${fx.name}: rendering the test signal in this browser…`);
     line.dataset.state = 'running';
     line.dataset.effect = fx.key;
+    badge('running', `Self-check of ${fx.name} running`);
     const w = this.engine.worker();
     this.worker = w;
     const ref = fx.entry ? fx.entry.reference : null;
@@ -33,6 +45,7 @@ export class SelfCheck {
       if (m.type === 'failed') {
         line.dataset.state = 'fail';
         status(line, 'error', `Self-check could not run: ${m.message}`);
+        badge('fail', `Self-check of ${fx.name} could not run`);
         return;
       }
       this.show(fx, m.result);
@@ -40,6 +53,7 @@ export class SelfCheck {
     w.onerror = (e) => {
       line.dataset.state = 'fail';
       status(line, 'error', `Self-check could not run: ${e.message || 'the worker failed to start'}`);
+      badge('fail', `Self-check of ${fx.name} could not run`);
     };
     // A copy: the page keeps its bytes for the worklet and later renders.
     w.postMessage(this.engine.job({ type: 'check', id, effect: fx.bytes.slice(0), reference: ref }));
@@ -59,12 +73,15 @@ export class SelfCheck {
     facts.hidden = false;
     if (r.pass === null) {
       line.dataset.state = 'none';
+      badge('none', `${fx.name}: no native reference to check against`);
       status(line, 'info', `No native reference for this file (it was not part of the site). Its output hash here is ${r.outputHash}; compare it with the scalar hash of 'earshot verify FILE --json'.`);
     } else if (r.pass) {
       line.dataset.state = 'pass';
+      badge('pass', `${fx.name}: same samples as native (${r.variant} build)`);
       status(line, 'ok', `Pass: all ${count(r.samples)} output samples are bit-identical to the native build.`);
     } else {
       line.dataset.state = 'fail';
+      badge('fail', `${fx.name}: differs from native (${r.variant} build)`);
       const d = r.difference;
       let text;
       if (d.kind === 'sample') {
