@@ -22,7 +22,10 @@ export class GridPanel {
     this.engine = engine;
     this.site = site;
     this.grid = site.grid && Array.isArray(site.grid.rows) && Array.isArray(site.grid.columns) ? site.grid : null;
-    this.player = new GridPlayer(() => this.refreshAll());
+    this.player = new GridPlayer(() => {
+      this.say('The row played to its end.');
+      this.refreshAll();
+    });
     this.cells = []; // [row][column] → state
     this.queue = []; // cells waiting for the Worker, first = next
     this.busy = null; // the cell the Worker is on
@@ -202,6 +205,7 @@ export class GridPanel {
     if (p.playing && p.row === cell.row && p.column === cell.column) {
       p.stop();
       this.pending = null;
+      this.say(`Stopped ${this.clipOf(cell.row).name} at ${clock(p.offset)}; play a cell of this row to go on from there.`);
       this.refreshAll();
       return;
     }
