@@ -735,7 +735,7 @@ std::string box_plot_svg(const std::string& title, const std::vector<Condition>&
     const Summary& s = sums[i];
     const double cx = left + slot * (double(i) + 0.5);
     // The condition's label, cut to fit its slot; the whole label in a <title> when cut.
-    const std::string shown = shortened(conds[i].label, 13);
+    const std::string shown = shortened(conds[i].label, 11);  // about the 90 px of a slot at 12 px
     o << "<text class=\"condition\" x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 20)
       << "\" text-anchor=\"middle\" fill=\"#1b1b1b\">";
     if (shown != conds[i].label) o << "<title>" << xml_text(conds[i].label) << "</title>";

@@ -834,7 +834,7 @@ def test_condition_names_in_text_csv_and_svg(tmp_path):
     pair_rows = read_csv(out_pairs)
     assert {(r["name_a"], r["name_b"]) for r in pair_rows if r["condition_a"] == "reference" and
             r["condition_b"] == "lstm"} == {("Circuit (reference)", "'=HYPERLINK(\"http://x\")")}
-    # SVG: the label under each box (cut to 13 characters with the whole name in a <title>), the
+    # SVG: the label under each box (cut to 11 characters with the whole name in a <title>), the
     # name on the box, and beside it the confidence interval from the CSV.
     root = ET.parse(out_svg / "all.svg").getroot()
     texts = [t for t in root.iter(SVG + "text") if t.get("class") == "condition"]
@@ -842,7 +842,7 @@ def test_condition_names_in_text_csv_and_svg(tmp_path):
             for t in texts] == list(labels.values())
     cut = texts[4]
     assert cut.find(SVG + "title").text == labels["gru"]
-    assert "".join(cut.itertext()).endswith("GRU <small> \u2026")  # 12 characters and the ellipsis
+    assert "".join(cut.itertext()).endswith("GRU <small\u2026")  # 10 characters and the ellipsis
     ticks = {t.text: float(t.get("y")) - 4 for t in root.iter(SVG + "text") if t.get("text-anchor") == "end"}
     y = lambda v: ticks["0"] + (ticks["100"] - ticks["0"]) * v / 100
     csv_all = {r["condition"]: r for r in rows if r["scope"] == "all"}

@@ -195,6 +195,13 @@ function stepCue(cues, delta) {
   cues[next].focus();
 }
 
+// The digit keys of n choices as listed: 1 … n, and 0 for a tenth.
+function digitKeys(n) {
+  if (n <= 1) return ['1'];
+  if (n <= 9) return ['1', '…', String(n)];
+  return ['1', '…', '9', '0'];
+}
+
 const PLAY_KEYS = { keys: ['Space'], label: [['Space'], 'play / stop'] };
 const STEP_KEYS = { keys: ['ArrowLeft', 'ArrowRight'], label: [['←', '→'], 'previous / next sound'] };
 
@@ -231,7 +238,8 @@ function familiarise(test, state, prepared, onDone) {
     } },
     { keys: STEP_KEYS.keys, run: (e, k) => stepCue(cues, k === 'ArrowRight' ? 1 : -1) },
   ]);
-  showKeys($('familiar-keys'), [PLAY_KEYS.label, [['1', '…', '9'], 'sound 1 to 9 of the item playing (or of the first item)'], STEP_KEYS.label]);
+  const k = Math.min(9, test.conditions.length);
+  showKeys($('familiar-keys'), [PLAY_KEYS.label, [digitKeys(k), `sound 1 to ${k} of the item playing (or of the first item)`], STEP_KEYS.label]);
   $('familiar-done').onclick = () => { stopAll(); onDone(); };
 }
 
@@ -303,7 +311,7 @@ function mushraTrial(test, trial, stimuli, onAnswer) {
     { keys: Object.keys(DELTA), run: (e, k) => nudge(DELTA[k]) },
   ]);
   showKeys($('trial-keys'), [PLAY_KEYS.label, [['R'], 'reference'],
-    [['1', '…', '9', '0'], `sample 1 to ${Math.min(10, sampleCues.length)}`], [['←', '→'], 'previous / next sound (the samples after 10 too)'],
+    [digitKeys(sampleCues.length), `sample 1 to ${Math.min(10, sampleCues.length)}`], [['←', '→'], `previous / next sound${sampleCues.length > 10 ? ' (the samples after 10 too)' : ''}`],
     [['↑', '↓'], 'score of the chosen sample +1 / −1'], [['Page Up', 'Page Down'], 'score +10 / −10']]);
   $('trial-next').disabled = true;
   $('trial-next').onclick = () => {
