@@ -99,6 +99,11 @@ async function step(page, name) {
   await page.waitForSelector(`body[data-step="${name}"]`, { timeout: 90000 });
 }
 
+// The keys (data-key) of the sound buttons shown as playing.
+function pressed(page) {
+  return page.evaluate(() => [...document.querySelectorAll('.cue[aria-pressed=true]')].map((b) => b.dataset.key));
+}
+
 async function rateAll(page, score) {
   const n = await page.locator('#trial-body input[type=range]').count();
   for (let i = 0; i < n; i++) {
@@ -221,6 +226,15 @@ test('an ABX set runs through, resumes after a reload, and its results tally', a
   await step(page, 'trial');
   assert.equal(await page.textContent('#trial-count'), 'Trial 1 of 2');
   await page.click('#trial-body .cue >> nth=2'); // X
+  // Keys: letters play A, B and X; digits answer in the order shown; the list is visible.
+  assert.match(await page.textContent('#trial-keys'), /play A, B, X.*answer “X is A”.*answer “X is B”/);
+  await page.keyboard.press('b');
+  assert.deepEqual(await pressed(page), ['b']);
+  await page.keyboard.press('x');
+  assert.deepEqual(await pressed(page), ['x']);
+  await page.keyboard.press('2');
+  assert.equal(await page.isChecked('#answer-b'), true);
+  assert.equal(await page.isDisabled('#trial-next'), false);
   await page.check('#answer-a');
   await page.click('#trial-next');
   await page.waitForSelector('body[data-trial="1"]');
@@ -262,6 +276,15 @@ test('an A/B preference set with "no preference" runs through and its counts tal
   for (let k = 0; k < 3; k++) {
     await page.waitForSelector(`body[data-step="trial"][data-trial="${k}"]`);
     await page.click('#trial-body .cue >> nth=1');
+    if (k === 0) {
+      // Keys: 3 is "No preference" (offered here); there is no X to play in A/B.
+      await page.keyboard.press('3');
+      assert.equal(await page.isChecked('#answer-none'), true);
+      await page.keyboard.press('x');
+      assert.deepEqual(await pressed(page), ['b']);
+      await page.keyboard.press('a');
+      assert.deepEqual(await pressed(page), ['a']);
+    }
     await page.check(`#answer-${given[k]}`);
     await page.click('#trial-next');
   }
@@ -438,7 +461,6 @@ async function openWithSeed(seed, participant) {
   return { page, problems };
 }
 
-const pressed = (page) => page.evaluate(() => [...document.querySelectorAll('.cue[aria-pressed=true]')].map((b) => b.dataset.key));
 
 // Runs f-test from the intro to the download; `keys` drives the first trial by keyboard.
 async function runFamiliarisationSet(page, tag, keys) {
