@@ -235,6 +235,10 @@ test('an ABX set runs through, resumes after a reload, and its results tally', a
   await page.keyboard.press('2');
   assert.equal(await page.isChecked('#answer-b'), true);
   assert.equal(await page.isDisabled('#trial-next'), false);
+  // The digit left the focus on the choice, which keeps its arrows: the native move to the other choice.
+  await page.keyboard.press('ArrowUp');
+  assert.equal(await page.isChecked('#answer-a'), true);
+  assert.deepEqual(await pressed(page), ['x']);
   await page.check('#answer-a');
   await page.click('#trial-next');
   await page.waitForSelector('body[data-trial="1"]');

@@ -1,7 +1,8 @@
 // Keyboard shortcuts of the listening page: one keydown listener for the
 // document and the key map of the screen on show (each screen sets its own
 // with setKeys). Keys are left alone while the focus is in a text field, and
-// with Ctrl, Alt or Meta held (the browser's own shortcuts). The same map
+// with Ctrl, Alt or Meta held (the browser's own shortcuts); a focused radio
+// button keeps Space and the arrows. The same map
 // renders the visible list of keys (showKeys), so the page documents exactly
 // the keys that work.
 import { el, clear } from './dom.js';
@@ -36,6 +37,8 @@ export function installKeys() {
     if (e.defaultPrevented || e.ctrlKey || e.altKey || e.metaKey || e.isComposing) return;
     if (isTextEntry(e.target) || isTextEntry(document.activeElement)) return;
     const k = keyName(e);
+    // A focused answer choice keeps its own keys (Space checks it, arrows move between choices).
+    if (e.target.type === 'radio' && (k === 'Space' || k.startsWith('Arrow'))) return;
     const run = active.get(k);
     if (!run) return;
     if (e.repeat && !k.startsWith('Arrow') && !k.startsWith('Page')) { e.preventDefault(); return; }
