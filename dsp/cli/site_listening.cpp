@@ -190,9 +190,10 @@ class Checker {
     for (rapidjson::SizeType i = 0; i < items->Size(); ++i) {
       const std::string fi = f + ".items[" + std::to_string(i) + "]";
       rapidjson::Value& it = (*items)[i];
-      if (!it.IsObject()) w_.fail(fi, "must be {\"id\": ..., \"stimuli\": {...}}");
-      only_fields(w_, fi, it, {"id", "stimuli"});
+      if (!it.IsObject()) w_.fail(fi, "must be {\"id\": ..., \"title\"?: ..., \"stimuli\": {...}}");
+      only_fields(w_, fi, it, {"id", "title", "stimuli"});
       const std::string id = ident(member(it, "id"), fi + ".id");
+      str(member(it, "title"), fi + ".title", true, 200);  // shown to participants instead of the id
       rapidjson::Value* stimuli = mutable_member(it, "stimuli");
       if (!stimuli || !stimuli->IsObject()) w_.fail(fi + ".stimuli", "must be an object of condition id: stimulus");
       for (auto m = stimuli->MemberBegin(); m != stimuli->MemberEnd(); ++m) {

@@ -3,6 +3,8 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdint>
+#include <utility>
 #include <vector>
 
 namespace earshot {
@@ -133,6 +135,85 @@ Summary summarize(std::vector<double> v, double confidence) {
     if (x < s.q1 - 1.5 * iqr || x > s.q3 + 1.5 * iqr) s.outliers.push_back(x);
   }
   return s;
+}
+
+// ---- Wilcoxon signed-rank test ---------------------------------------------------
+// Method: Wilcoxon (1945), "Individual comparisons by ranking methods",
+// Biometrics Bulletin 1(6):80–83. The large-sample approximation with the tie
+// correction follows Hollander & Wolfe, Nonparametric Statistical Methods
+// (2nd ed. 1999, chapter 3, the signed rank procedure; chapter and edition
+// recalled from memory): under H0, E[W+] = n(n+1)/4 and
+// Var[W+] = n(n+1)(2n+1)/24 − Σ_j (t_j³ − t_j)/48 over the groups of t_j tied |d|.
+
+// The null distribution of W+ for n untied ranks: each of the 2^n sign
+// patterns is equally likely, so P(W+ = s) = c_n(s) / 2^n where c_n(s) counts
+// the subsets of {1..n} summing to s (c_k(s) = c_{k−1}(s) + c_{k−1}(s − k)).
+// For n <= 50 every count is below C(50, 25) < 2^47 and every tail sum below
+// 2^50: exact in 64-bit integers, then one rounding in the division.
+void signed_rank_exact_tails(size_t n, long w, double& lower, double& upper) {
+  const long total = long(n * (n + 1) / 2);
+  std::vector<uint64_t> c(size_t(total) + 1, 0);
+  c[0] = 1;
+  for (long k = 1; k <= long(n); ++k)
+    for (long s = k * (k + 1) / 2; s >= k; --s) c[size_t(s)] += c[size_t(s - k)];
+  uint64_t lo = 0, hi = 0;
+  for (long s = 0; s <= total; ++s) {
+    if (s <= w) lo += c[size_t(s)];
+    if (s >= w) hi += c[size_t(s)];
+  }
+  const double all = std::ldexp(1.0, int(n));
+  lower = double(lo) / all;
+  upper = double(hi) / all;
+}
+
+SignedRank signed_rank(const std::vector<double>& d) {
+  SignedRank r;
+  r.n = d.size();
+  std::vector<std::pair<double, bool>> a;  // (|d|, d > 0)
+  for (double x : d) {
+    if (x == 0) {
+      ++r.zeros;
+      continue;
+    }
+    a.push_back({std::abs(x), x > 0});
+  }
+  r.used = a.size();
+  if (a.empty()) return r;
+  std::sort(a.begin(), a.end(), [](const std::pair<double, bool>& u, const std::pair<double, bool>& v) {
+    return u.first < v.first;
+  });
+  // Average ranks over runs of equal |d|; each run of t adds t³ − t to the tie term.
+  double w_plus = 0, w_minus = 0, tie_term = 0;
+  for (size_t i = 0; i < a.size();) {
+    size_t j = i;
+    while (j < a.size() && a[j].first == a[i].first) ++j;
+    const double t = double(j - i), rank = (double(i + 1) + double(j)) / 2;
+    if (j - i > 1) {
+      r.ties = true;
+      tie_term += t * t * t - t;
+    }
+    for (size_t k = i; k < j; ++k) (a[k].second ? w_plus : w_minus) += rank;
+    i = j;
+  }
+  r.w_plus = w_plus;
+  r.w_minus = w_minus;
+  r.statistic = std::min(w_plus, w_minus);
+  const double n = double(r.used);
+  if (r.zeros == 0 && !r.ties && r.used <= kSignedRankExactMax) {
+    // Untied: W+ is a whole number. Two-sided: twice the smaller tail, capped at 1.
+    r.exact = true;
+    double lower, upper;
+    signed_rank_exact_tails(r.used, long(w_plus), lower, upper);
+    r.p = std::min(1.0, 2 * std::min(lower, upper));
+    return r;
+  }
+  const double mean = n * (n + 1) / 4;
+  const double sd = std::sqrt((n * (n + 1) * (2 * n + 1) - tie_term / 2) / 24);
+  const double t = r.statistic;
+  const double cc = t > mean ? 0.5 : t < mean ? -0.5 : 0.0;  // continuity correction towards the mean
+  r.z = (t - mean - cc) / sd;
+  r.p = std::min(1.0, std::erfc(std::abs(r.z) / std::sqrt(2.0)));  // 2·(1 − Φ(|z|))
+  return r;
 }
 
 }  // namespace stats

@@ -1,6 +1,7 @@
 // Statistics behind `earshot tally` (native only; libm is used freely): the
 // regularized incomplete beta function, Student's t, exact binomial tests for
-// p = 1/2, and a five-number summary with a t-based confidence interval.
+// p = 1/2, a five-number summary with a t-based confidence interval, and the
+// Wilcoxon signed-rank test of paired differences.
 // tests/native/stats_test.cpp checks each against SciPy reference values.
 #pragma once
 #include <cmath>
@@ -42,6 +43,38 @@ double quantile_sorted(const std::vector<double>& v, double p);
 // the mean from Student's t (n >= 2), quartiles (type 7), min, max, Tukey
 // whiskers and outliers.
 Summary summarize(std::vector<double> v, double confidence);
+
+// The Wilcoxon signed-rank test of paired differences d = x − y against a
+// distribution symmetric about 0, two-sided (Wilcoxon 1945, "Individual
+// comparisons by ranking methods", Biometrics Bulletin 1(6):80–83). Zero
+// differences are dropped before ranking (Wilcoxon's own treatment;
+// scipy.stats.wilcoxon's default zero_method='wilcox'); |d| gets average ranks
+// over ties.
+//   exact:  no zero, no tie and at most kSignedRankExactMax differences: the
+//           exact null distribution of W+ (every sign pattern equally likely),
+//           p = min(1, 2·min(P(W+ <= w), P(W+ >= w))) — as
+//           scipy.stats.wilcoxon(method='exact');
+//   normal: otherwise, the normal approximation with the tie correction of the
+//           variance and a continuity correction of ½ towards the mean — as
+//           scipy.stats.wilcoxon(method='approx', correction=True).
+struct SignedRank {
+  size_t n = 0;      // differences given
+  size_t zeros = 0;  // of them zero, dropped
+  size_t used = 0;   // ranked: n − zeros
+  bool ties = false;  // equal |d| among those ranked
+  bool exact = false;
+  double w_plus = NAN, w_minus = NAN;  // rank sums of the positive and the negative differences
+  double statistic = NAN;              // min(W+, W−), the two-sided statistic scipy reports
+  double z = NAN;                      // normal approximation only
+  double p = NAN;                      // two-sided; NaN when nothing is left to rank
+};
+constexpr size_t kSignedRankExactMax = 50;  // scipy.stats.wilcoxon's limit for method='auto'
+
+SignedRank signed_rank(const std::vector<double>& d);
+
+// P(W+ <= w) and P(W+ >= w) under the null hypothesis for n untied, non-zero
+// differences, 1 <= n <= kSignedRankExactMax, w whole.
+void signed_rank_exact_tails(size_t n, long w, double& lower, double& upper);
 
 }  // namespace stats
 }  // namespace earshot

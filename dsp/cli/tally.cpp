@@ -4,12 +4,16 @@
 //   mushra  per condition (all items, and per item): n, mean with a t-based
 //           confidence interval, standard deviation, median, quartiles
 //           (linear interpolation, Hyndman & Fan type 7), min, max — after the
-//           ITU-R BS.1534-3 post-screening of assessors;
+//           ITU-R BS.1534-3 post-screening of assessors; per condition pair,
+//           the paired score differences: mean with its t interval and the
+//           Wilcoxon signed-rank test (stats.hpp);
 //   abx     per condition pair (pooled and per participant): correct of N and
 //           the one-tailed exact binomial p-value P(X >= correct | N, 1/2);
 //   ab      per condition pair: preference counts, "no preference" counts,
 //           and the two-sided exact binomial p-value with ties left out.
-// Outputs: a text table on stdout, --csv FILE, --svg DIR (box plots, MUSHRA).
+// Outputs: a text table on stdout, --csv FILE, --paired-csv FILE (MUSHRA),
+// --svg DIR (box plots with the confidence interval of each mean, MUSHRA).
+// Conditions are shown by their `name` (optional in the results), else their id.
 // The statistics use libm freely: this is a native-only report.
 #include <sys/stat.h>
 
@@ -54,7 +58,9 @@ const char* kHelp =
     "          quartiles, range; after the ITU-R BS.1534-3 post-screening, which\n"
     "          excludes an assessor who rates the hidden reference below 90 for\n"
     "          more than 15% of the items, or the mid anchor above 90 for more than\n"
-    "          15% of the items (who and why is listed)\n"
+    "          15% of the items (who and why is listed); and for every pair of\n"
+    "          conditions the paired differences of the scores: mean with its\n"
+    "          confidence interval (t) and the Wilcoxon signed-rank test\n"
     "  abx     correct answers of N per condition pair, pooled and per participant,\n"
     "          with the one-tailed exact binomial p-value P(X >= correct)\n"
     "  ab      preference counts per condition pair, with the two-sided exact\n"
@@ -63,9 +69,12 @@ const char* kHelp =
     "\n"
     "options:\n"
     "  --csv FILE        also write the statistics as CSV\n"
+    "  --paired-csv FILE MUSHRA: also write the paired comparisons as CSV\n"
     "  --svg DIR         MUSHRA: write box plots, all.svg and one per item, into DIR\n"
-    "                    (created if missing)\n"
-    "  --force           replace existing --csv and --svg files (never a RESULTS file)\n"
+    "                    (created if missing), each box with the confidence interval\n"
+    "                    of its mean beside it\n"
+    "  --force           replace existing --csv, --paired-csv and --svg files (never a\n"
+    "                    RESULTS file)\n"
     "  --confidence C    confidence level of the intervals, 0.5 .. 0.999 (default 0.95)\n"
     "  --no-screening    keep every assessor (the screening is still reported)\n"
     "  --keep-incomplete tally participants who left items or ratings out (listed,\n"
@@ -79,6 +88,7 @@ constexpr const char* kFormat = "earshot-listening-results";
 constexpr int kVersion = 1;
 constexpr size_t kMaxFileBytes = 64u << 20;
 constexpr int kMaxMushraStimuli = 12;
+constexpr size_t kMaxNameChars = 200;  // as the listening definition's condition names
 
 // The statistics (t interval, exact binomial tests, quartiles) are in stats.hpp.
 using stats::binom_half_two_sided;
@@ -90,6 +100,8 @@ using stats::Summary;
 
 struct Condition {
   std::string id, role;  // role: reference, anchor-low, anchor-mid, test
+  std::string name;      // the definition's name for people; "" when the file gives none
+  std::string label;     // what the outputs show (label_conditions)
 };
 struct Stimulus {
   std::string item, condition, hash;
@@ -120,6 +132,11 @@ struct Result {
   std::vector<Condition> conditions;
   std::vector<Stimulus> stimuli;
   std::vector<Trial> trials;
+  // The familiarisation step as this participant saw it (optional: files of
+  // pages without it, or of tests without the step, have none).
+  bool has_familiarisation = false;
+  uint64_t familiarisation_seed = 0;
+  std::vector<std::pair<std::string, std::vector<std::string>>> familiarisation_order;  // item → conditions as shown
 };
 
 // Refusals of a results file: "<file>: line L, column C: <field>: <what>" at
@@ -200,6 +217,11 @@ void load_conditions(const Where& w, Result& r) {
     Condition c;
     c.id = w.nonempty_string(conds[i], p, "id");
     c.role = conds[i].HasMember("role") ? w.nonempty_string(conds[i], p, "role") : "test";
+    if (conds[i].HasMember("name")) {
+      c.name = w.nonempty_string(conds[i], p, "name");
+      if (utf8_length(c.name) > kMaxNameChars)
+        w.fail(p + ".name", "is longer than " + std::to_string(kMaxNameChars) + " characters");
+    }
     if (c.role != "reference" && c.role != "anchor-low" && c.role != "anchor-mid" && c.role != "test")
       w.fail(p + ".role", quoted(c.role) + " is not a role (reference, anchor-low, anchor-mid or test)");
     if (!cond_ids.insert(c.id).second) w.fail(p + ".id", quoted(c.id) + " is listed twice");
@@ -306,6 +328,47 @@ void load_choice(const Where& w, const rapidjson::Value& tv, const std::string& 
   }
 }
 
+// The optional familiarisation record: {"seed": whole number, "order":
+// [{"item": id, "conditions": [condition ids as shown]}, ...]}, every item of
+// the stimuli once, each with exactly the conditions it has stimuli of.
+void load_familiarisation(const Where& w, const StimulusIndex& ix, Result& r) {
+  const rapidjson::Value* f = member(w.doc->doc, "familiarisation");
+  if (!f) return;
+  if (!f->IsObject()) w.fail("familiarisation", std::string("must be an object, not ") + type_name(*f));
+  r.has_familiarisation = true;
+  const rapidjson::Value& seed = w.required(*f, "familiarisation", "seed");
+  if (!seed.IsUint64() || seed.GetUint64() > 9007199254740991ull)
+    w.fail("familiarisation.seed", "must be a whole number from 0 to 2^53 - 1");
+  r.familiarisation_seed = seed.GetUint64();
+  const rapidjson::Value& order = w.array(*f, "familiarisation", "order");
+  std::set<std::string> items_seen;
+  for (rapidjson::SizeType i = 0; i < order.Size(); ++i) {
+    const std::string p = "familiarisation.order[" + std::to_string(i) + "]";
+    if (!order[i].IsObject()) w.fail(p, std::string("must be an object, not ") + type_name(order[i]));
+    const std::string item = w.nonempty_string(order[i], p, "item");
+    if (!ix.per_item.count(item)) w.fail(p + ".item", quoted(item) + " has no stimuli");
+    if (!items_seen.insert(item).second) w.fail(p + ".item", quoted(item) + " is listed twice");
+    const rapidjson::Value& conds = w.array(order[i], p, "conditions");
+    std::vector<std::string> shown;
+    std::set<std::string> seen;
+    for (rapidjson::SizeType k = 0; k < conds.Size(); ++k) {
+      const std::string pk = p + ".conditions[" + std::to_string(k) + "]";
+      if (!conds[k].IsString()) w.fail(pk, std::string("must be a string, not ") + type_name(conds[k]));
+      const std::string c(conds[k].GetString(), conds[k].GetStringLength());
+      if (!ix.have.count({item, c}))
+        w.fail(pk, "item " + quoted(item) + " has no stimulus of condition " + quoted(c));
+      if (!seen.insert(c).second) w.fail(pk, quoted(c) + " is listed twice");
+      shown.push_back(c);
+    }
+    if (int(shown.size()) != ix.per_item.at(item))
+      w.fail(p + ".conditions", "lists " + std::to_string(shown.size()) + " of the " +
+                                    std::to_string(ix.per_item.at(item)) + " stimuli of item " + quoted(item));
+    r.familiarisation_order.push_back({item, shown});
+  }
+  for (const auto& kv : ix.per_item)
+    if (!items_seen.count(kv.first)) w.fail("familiarisation.order", "does not list item " + quoted(kv.first));
+}
+
 void load_trials(const Where& w, const StimulusIndex& ix, Result& r) {
   const rapidjson::Value& trials = w.array(w.doc->doc, "", "trials");
   if (trials.Empty()) w.fail("trials", "holds no answers");
@@ -362,6 +425,7 @@ Result load(const std::string& path) {
   load_header(w, r);
   load_conditions(w, r);
   const StimulusIndex ix = load_stimuli(w, r);
+  load_familiarisation(w, ix, r);
   load_trials(w, ix, r);
   find_unanswered_items(r);
   return r;
@@ -371,6 +435,8 @@ Result load(const std::string& path) {
 void check_consistent(const std::vector<Result>& rs) {
   const Result& f = rs[0];
   std::map<std::string, std::string> participants;
+  std::vector<const Result*> named_by;  // per condition: the first file that names it
+  for (const Condition& c : f.conditions) named_by.push_back(c.name.empty() ? nullptr : &f);
   for (const Result& r : rs) {
     auto it = participants.find(r.participant);
     if (it != participants.end())
@@ -394,6 +460,15 @@ void check_consistent(const std::vector<Result>& rs) {
       if (r.conditions[i].role != f.conditions[i].role)
         where_of(r.file, r.doc).fail(p + ".role", quoted(r.conditions[i].role) + " differs from " + quoted(f.conditions[i].role) +
                                       " in " + f.file);
+      // A name may be absent (files of older pages) but never different.
+      if (!r.conditions[i].name.empty()) {
+        const Result* o = named_by[i];
+        if (!o)
+          named_by[i] = &r;
+        else if (o->conditions[i].name != r.conditions[i].name)
+          where_of(r.file, r.doc).fail(p + ".name", quoted(r.conditions[i].name) + " differs from " +
+                                                      quoted(o->conditions[i].name) + " in " + o->file);
+      }
     }
     std::map<std::pair<std::string, std::string>, const Stimulus*> first;
     for (const Stimulus& s : f.stimuli) first[{s.item, s.condition}] = &s;
@@ -415,6 +490,33 @@ void check_consistent(const std::vector<Result>& rs) {
         where_of(r.file, r.doc).fail("stimuli", "item " + quoted(s.item) + ", condition " + quoted(s.condition) + " of " + f.file +
                                     " is missing");
   }
+}
+
+// What the outputs call each condition (in rs[0].conditions[i].label): its
+// name from any file that gives one (check_consistent made sure they agree),
+// else its id; a label two conditions would share gets the id added, so no
+// label stands for two conditions.
+void label_conditions(std::vector<Result>& rs) {
+  std::vector<Condition>& conds = rs[0].conditions;
+  for (size_t i = 0; i < conds.size(); ++i) {
+    for (const Result& r : rs)
+      if (!r.conditions[i].name.empty()) {
+        conds[i].name = r.conditions[i].name;
+        break;
+      }
+    conds[i].label = conds[i].name.empty() ? conds[i].id : conds[i].name;
+  }
+  std::map<std::string, int> uses;
+  for (const Condition& c : conds) ++uses[c.label];
+  for (Condition& c : conds)
+    if (uses[c.label] > 1 && !c.name.empty()) c.label = c.name + " (" + c.id + ")";
+}
+
+// The label of condition `id` (conditions of rs[0], labelled).
+const std::string& label_of(const std::vector<Condition>& conds, const std::string& id) {
+  for (const Condition& c : conds)
+    if (c.id == id) return c.label;
+  return id;
 }
 
 // ---- incomplete participants ------------------------------------------------------
@@ -484,6 +586,13 @@ void report_incomplete(const std::vector<Result>& rs) {
 
 // ---- output helpers ----------------------------------------------------------------
 
+// " (familiarisation order recorded in K)" when any file records it (the field is optional).
+std::string familiarisation_note(const std::vector<Result>& rs) {
+  size_t k = 0;
+  for (const Result& r : rs) k += r.has_familiarisation;
+  return k == 0 ? "" : " (familiarisation order recorded in " + std::to_string(k) + ")";
+}
+
 // A fixed-point figure for the tables, or "-" where there is none (NaN).
 std::string fixed_or_dash(double v, int decimals) { return std::isnan(v) ? "-" : format_fixed(v, decimals); }
 
@@ -507,6 +616,19 @@ std::string svg_num(double v) {
   char buf[32];
   std::snprintf(buf, sizeof buf, "%.3f", v);
   return buf;
+}
+
+// `s` padded with spaces to `width` characters (UTF-8 aware; longer text is kept whole).
+std::string pad(const std::string& s, size_t width) {
+  const size_t n = utf8_length(s);
+  return n >= width ? s : s + std::string(width - n, ' ');
+}
+
+// Width of the condition column: at least `min`, as wide as the longest label as printed.
+size_t label_width(const std::vector<Condition>& conds, size_t min) {
+  size_t w = min;
+  for (const Condition& c : conds) w = std::max(w, utf8_length(terminal_text(c.label)));
+  return w;
 }
 
 std::string safe_name(const std::string& s) {
@@ -570,10 +692,19 @@ Screening screen(const Result& r, const std::string& ref_id, const std::string& 
   return s;
 }
 
+// The first `max` characters of `s` (UTF-8), with "…" when cut.
+std::string shortened(const std::string& s, size_t max) {
+  if (utf8_length(s) <= max) return s;
+  size_t chars = 0, i = 0;
+  for (; i < s.size(); ++i)
+    if ((static_cast<unsigned char>(s[i]) & 0xc0) != 0x80 && chars++ == max - 1) break;
+  return s.substr(0, i) + "\xE2\x80\xA6";
+}
+
 std::string box_plot_svg(const std::string& title, const std::vector<Condition>& conds,
-                         const std::vector<Summary>& sums, const std::vector<size_t>& missing) {
+                         const std::vector<Summary>& sums, const std::vector<size_t>& missing, double confidence) {
   const double left = 110, top = 50, plot_h = 400, slot = 90, box_w = 44;
-  const double width = std::max(left + slot * double(conds.size()) + 30, 560.0), height = top + plot_h + 80;
+  const double width = std::max(left + slot * double(conds.size()) + 30, 560.0), height = top + plot_h + 96;
   auto y = [&](double v) { return top + plot_h * (1 - v / 100); };
   std::ostringstream o;
   o << "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" << svg_num(width) << "\" height=\"" << svg_num(height)
@@ -603,12 +734,17 @@ std::string box_plot_svg(const std::string& title, const std::vector<Condition>&
   for (size_t i = 0; i < conds.size(); ++i) {
     const Summary& s = sums[i];
     const double cx = left + slot * (double(i) + 0.5);
-    o << "<text x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 20) << "\" text-anchor=\"middle\""
-      << " fill=\"#1b1b1b\">" << xml_text(conds[i].id) << "</text>\n";
+    // The condition's label, cut to fit its slot; the whole label in a <title> when cut.
+    const std::string shown = shortened(conds[i].label, 11);  // about the 90 px of a slot at 12 px
+    o << "<text class=\"condition\" x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 20)
+      << "\" text-anchor=\"middle\" fill=\"#1b1b1b\">";
+    if (shown != conds[i].label) o << "<title>" << xml_text(conds[i].label) << "</title>";
+    o << xml_text(shown) << "</text>\n";
     o << "<text x=\"" << svg_num(cx) << "\" y=\"" << svg_num(top + plot_h + 36) << "\" text-anchor=\"middle\""
       << " fill=\"#5a5f5c\">n = " << s.n << "</text>\n";
     if (s.n == 0) continue;
-    o << "<g class=\"box\" data-condition=\"" << xml_text(conds[i].id) << "\" data-n=\"" << s.n
+    o << "<g class=\"box\" data-condition=\"" << xml_text(conds[i].id) << "\" data-name=\"" << xml_text(conds[i].label)
+      << "\" data-n=\"" << s.n
       << "\" data-missing=\"" << missing[i]
       << "\" data-q1=\"" << csv_num(s.q1) << "\" data-median=\"" << csv_num(s.median) << "\" data-q3=\""
       << csv_num(s.q3) << "\" data-whisker-low=\"" << csv_num(s.whisker_lo) << "\" data-whisker-high=\""
@@ -631,10 +767,33 @@ std::string box_plot_svg(const std::string& title, const std::vector<Condition>&
     for (double v : s.outliers)
       o << "  <circle class=\"outlier\" cx=\"" << svg_num(cx) << "\" cy=\"" << svg_num(y(v))
         << "\" r=\"3\" fill=\"none\" stroke=\"#2d3a34\"/>\n";
+    if (!std::isnan(s.ci_lo)) {
+      // The confidence interval of the mean, a capped bar beside the box; drawn
+      // within the 0 .. 100 scale (the data attributes keep the exact figures).
+      const double cix = cx + box_w / 2 + 10, lo = y(std::max(0.0, s.ci_lo)), hi = y(std::min(100.0, s.ci_hi));
+      o << "  <g class=\"ci\" data-ci-low=\"" << csv_num(s.ci_lo) << "\" data-ci-high=\"" << csv_num(s.ci_hi)
+        << "\" data-confidence=\"" << csv_num(confidence) << "\" stroke=\"#8a3b12\" stroke-width=\"2\">\n";
+      o << "    <line class=\"ci-bar\" x1=\"" << svg_num(cix) << "\" y1=\"" << svg_num(hi) << "\" x2=\"" << svg_num(cix)
+        << "\" y2=\"" << svg_num(lo) << "\"/>\n";
+      for (double cy : {hi, lo})
+        o << "    <line x1=\"" << svg_num(cix - 4) << "\" y1=\"" << svg_num(cy) << "\" x2=\"" << svg_num(cix + 4)
+          << "\" y2=\"" << svg_num(cy) << "\"/>\n";
+      o << "  </g>\n";
+    }
     o << "</g>\n";
   }
-  o << "<text x=\"" << svg_num(left) << "\" y=\"" << svg_num(height - 12) << "\" fill=\"#5a5f5c\" font-size=\"11\">"
+  o << "<text x=\"" << svg_num(left) << "\" y=\"" << svg_num(height - 28) << "\" fill=\"#5a5f5c\" font-size=\"11\">"
     << "box: quartiles, line: median, diamond: mean, whiskers: furthest data within 1.5 IQR</text>\n";
+  // Legend of the interval bar, with a sample of the mark itself.
+  const double ly = height - 12;
+  o << "<g class=\"legend-ci\" stroke=\"#8a3b12\" stroke-width=\"2\"><line x1=\"" << svg_num(left + 4) << "\" y1=\""
+    << svg_num(ly - 9) << "\" x2=\"" << svg_num(left + 4) << "\" y2=\"" << svg_num(ly + 1) << "\"/><line x1=\""
+    << svg_num(left) << "\" y1=\"" << svg_num(ly - 9) << "\" x2=\"" << svg_num(left + 8) << "\" y2=\"" << svg_num(ly - 9)
+    << "\"/><line x1=\"" << svg_num(left) << "\" y1=\"" << svg_num(ly + 1) << "\" x2=\"" << svg_num(left + 8)
+    << "\" y2=\"" << svg_num(ly + 1) << "\"/></g>\n";
+  o << "<text class=\"legend-ci\" x=\"" << svg_num(left + 16) << "\" y=\"" << svg_num(ly) << "\" fill=\"#5a5f5c\""
+    << " font-size=\"11\">bar beside the box: " << format_fixed(100 * confidence, 0)
+    << "% confidence interval of the mean (Student's t)</text>\n";
   o << "</svg>\n";
   return o.str();
 }
@@ -669,13 +828,20 @@ struct MushraRow {
   std::vector<size_t> missing;  // per condition: ratings kept incomplete assessors lack
 };
 
+// The items in the order of the first file's stimuli.
+std::vector<std::string> item_order(const Result& r) {
+  std::vector<std::string> items;
+  std::set<std::string> seen;
+  for (const Stimulus& s : r.stimuli)
+    if (seen.insert(s.item).second) items.push_back(s.item);
+  return items;
+}
+
 // One row for all items, then one per item in the order of the first file's stimuli.
 std::vector<MushraRow> mushra_rows(const std::vector<Result>& rs, const std::vector<const Result*>& kept,
                                    double confidence) {
   const std::vector<Condition>& conds = rs[0].conditions;
-  std::vector<std::string> items;
-  for (const Stimulus& s : rs[0].stimuli)
-    if (std::find(items.begin(), items.end(), s.item) == items.end()) items.push_back(s.item);
+  const std::vector<std::string> items = item_order(rs[0]);
   // Ratings kept assessors lack, by (item, condition); item "" is the total.
   // (Item ids are never empty: Where::nonempty_string refuses empty strings.)
   std::map<std::pair<std::string, std::string>, size_t> gaps;
@@ -709,30 +875,32 @@ std::vector<MushraRow> mushra_rows(const std::vector<Result>& rs, const std::vec
 
 void print_mushra_rows(const std::vector<MushraRow>& rows, const std::vector<Condition>& conds, double confidence) {
   const std::string ci_head = format_fixed(100 * confidence, 0) + "% CI (t)";
+  const size_t width = label_width(conds, 16);
   for (const MushraRow& row : rows) {
     std::printf("%s\n", row.scope == "all" ? "all items" : ("item " + terminal_text(row.scope)).c_str());
-    std::printf("  %-16s %-10s %5s %7s %17s %6s %7s %16s %12s\n", "condition", "role", "n", "mean", ci_head.c_str(),
-                "sd", "median", "IQR (Q1 .. Q3)", "range");
+    std::printf("  %s %-10s %5s %7s %17s %6s %7s %16s %12s\n", pad("condition", width).c_str(), "role", "n", "mean",
+                ci_head.c_str(), "sd", "median", "IQR (Q1 .. Q3)", "range");
     for (size_t i = 0; i < conds.size(); ++i) {
       const Summary& s = row.sums[i];
       if (s.n == 0 && row.missing[i] == 0) continue;
       const std::string ci = std::isnan(s.ci_lo) ? "-" : fixed_or_dash(s.ci_lo, 1) + " .. " + fixed_or_dash(s.ci_hi, 1);
       const std::string iqr = fixed_or_dash(s.q1, 1) + " .. " + fixed_or_dash(s.q3, 1);
       const std::string range = fixed_or_dash(s.min, 0) + " .. " + fixed_or_dash(s.max, 0);
-      std::printf("  %-16s %-10s %5zu %7s %17s %6s %7s %16s %12s\n", terminal_text(conds[i].id).c_str(), conds[i].role.c_str(), s.n,
+      std::printf("  %s %-10s %5zu %7s %17s %6s %7s %16s %12s\n", pad(terminal_text(conds[i].label), width).c_str(), conds[i].role.c_str(), s.n,
                   fixed_or_dash(s.mean, 1).c_str(), ci.c_str(), fixed_or_dash(s.sd, 1).c_str(), fixed_or_dash(s.median, 1).c_str(), iqr.c_str(),
                   range.c_str());
     }
     std::string gaps;
     for (size_t i = 0; i < conds.size(); ++i)
-      if (row.missing[i] > 0) gaps += (gaps.empty() ? "" : ", ") + terminal_text(conds[i].id) + " " + std::to_string(row.missing[i]);
+      if (row.missing[i] > 0) gaps += (gaps.empty() ? "" : ", ") + terminal_text(conds[i].label) + " " + std::to_string(row.missing[i]);
     if (!gaps.empty()) std::printf("  ratings missing (incomplete assessors kept): %s\n", gaps.c_str());
     std::printf("\n");
   }
 }
 
 std::string mushra_csv(const std::vector<MushraRow>& rows, const std::vector<Condition>& conds, double confidence) {
-  std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max,missing\n";
+  // `name` (the condition's label) is the last column: readers of the earlier columns are unaffected.
+  std::string o = "scope,condition,role,n,mean,sd,ci_low,ci_high,confidence,median,q1,q3,min,max,missing,name\n";
   for (const MushraRow& row : rows)
     for (size_t i = 0; i < conds.size(); ++i) {
       const Summary& s = row.sums[i];
@@ -740,14 +908,132 @@ std::string mushra_csv(const std::vector<MushraRow>& rows, const std::vector<Con
       o += csv_cell(row.scope) + "," + csv_cell(conds[i].id) + "," + conds[i].role + "," + std::to_string(s.n) +
            "," + csv_num(s.mean) + "," + csv_num(s.sd) + "," + csv_num(s.ci_lo) + "," + csv_num(s.ci_hi) + "," +
            csv_num(confidence) + "," + csv_num(s.median) + "," + csv_num(s.q1) + "," + csv_num(s.q3) + "," +
-           csv_num(s.min) + "," + csv_num(s.max) + "," + std::to_string(row.missing[i]) + "\n";
+           csv_num(s.min) + "," + csv_num(s.max) + "," + std::to_string(row.missing[i]) + "," + csv_cell(conds[i].label) +
+           "\n";
     }
+  return o;
+}
+
+// ---- MUSHRA paired comparisons ------------------------------------------------------
+//
+// For every pair of conditions (a before b in declared order) and every scope
+// (all items, then each item): the differences d = score(a) − score(b) over
+// the trials of the kept assessors that rated both — one per assessor and item
+// (per item: one per assessor) — their mean with the t-based confidence
+// interval (stats::summarize), and the Wilcoxon signed-rank test
+// (stats::signed_rank: zero differences dropped, exact or normal as stated there).
+
+struct PairedRow {
+  std::string scope;  // "all" or an item
+  size_t a = 0, b = 0;  // condition indices, a < b
+  Summary diff;
+  stats::SignedRank test;
+};
+
+// Every trial rates at most 12 stimuli (load_stimuli), so the pairs are
+// gathered trial by trial — at most 66 per trial — whatever the number of
+// conditions a file declares.
+std::vector<PairedRow> paired_rows(const std::vector<Result>& rs, const std::vector<const Result*>& kept,
+                                   const std::vector<std::string>& items, double confidence) {
+  const std::vector<Condition>& conds = rs[0].conditions;
+  std::map<std::string, size_t> index;
+  for (size_t i = 0; i < conds.size(); ++i) index[conds[i].id] = i;
+  using Key = std::pair<size_t, size_t>;
+  std::map<Key, std::vector<double>> all;
+  std::map<std::string, std::map<Key, std::vector<double>>> per_item;
+  for (const Result* r : kept)
+    for (const Trial& t : r->trials) {
+      std::vector<std::pair<size_t, double>> v;  // (condition index, score), in declared order
+      for (const auto& kv : t.ratings) {
+        auto it = index.find(kv.first);
+        if (it != index.end()) v.push_back({it->second, kv.second});
+      }
+      std::sort(v.begin(), v.end());
+      std::map<Key, std::vector<double>>& mine = per_item[t.item];
+      for (size_t i = 0; i < v.size(); ++i)
+        for (size_t j = i + 1; j < v.size(); ++j) {
+          const double d = v[i].second - v[j].second;
+          all[{v[i].first, v[j].first}].push_back(d);
+          mine[{v[i].first, v[j].first}].push_back(d);
+        }
+    }
+  std::vector<PairedRow> rows;
+  auto emit = [&](const std::string& scope, std::map<Key, std::vector<double>>& pairs) {
+    for (auto& kv : pairs) {
+      PairedRow row;
+      row.scope = scope;
+      row.a = kv.first.first;
+      row.b = kv.first.second;
+      row.test = stats::signed_rank(kv.second);
+      row.diff = summarize(std::move(kv.second), confidence);
+      rows.push_back(std::move(row));
+    }
+  };
+  emit("all", all);
+  for (const std::string& it : items) {
+    auto p = per_item.find(it);
+    if (p != per_item.end()) emit(it, p->second);
+  }
+  return rows;
+}
+
+std::string method_name(const stats::SignedRank& w) {
+  if (w.used == 0) return "none";
+  return w.exact ? "exact" : "normal";
+}
+
+void print_paired_rows(const std::vector<PairedRow>& rows, const std::vector<Condition>& conds, double confidence) {
+  if (rows.empty()) return;
+  const std::string ci_head = format_fixed(100 * confidence, 0) + "% CI (t)";
+  std::printf("paired comparisons: first minus second, over the trials that rated both (all items: one\n"
+              "difference per assessor and item; per item: per assessor)\n"
+              "Wilcoxon signed-rank test, two-sided: zero differences are dropped (n0) before ranking;\n"
+              "'exact': the exact null distribution (no zeros, no ties, at most %zu differences);\n"
+              "'normal': normal approximation with tie and continuity corrections\n\n",
+              stats::kSignedRankExactMax);
+  size_t width = 20;
+  for (const PairedRow& r : rows)
+    width = std::max(width, utf8_length(terminal_text(conds[r.a].label) + " - " + terminal_text(conds[r.b].label)));
+  std::string scope;
+  for (const PairedRow& r : rows) {
+    if (&r == &rows[0] || r.scope != scope) {
+      if (&r != &rows[0]) std::printf("\n");
+      scope = r.scope;
+      std::printf("%s\n", r.scope == "all" ? "all items" : ("item " + terminal_text(r.scope)).c_str());
+      std::printf("  %s %5s %9s %19s %4s %8s %8s %9s %s\n", pad("pair", width).c_str(), "n", "mean diff",
+                  ci_head.c_str(), "n0", "W+", "W-", "p", "method");
+    }
+    const Summary& s = r.diff;
+    const stats::SignedRank& w = r.test;
+    const std::string pair = terminal_text(conds[r.a].label) + " - " + terminal_text(conds[r.b].label);
+    const std::string ci = std::isnan(s.ci_lo) ? "-" : fixed_or_dash(s.ci_lo, 1) + " .. " + fixed_or_dash(s.ci_hi, 1);
+    std::printf("  %s %5zu %9s %19s %4zu %8s %8s %9s %s\n", pad(pair, width).c_str(), s.n, fixed_or_dash(s.mean, 1).c_str(),
+                ci.c_str(), w.zeros, fixed_or_dash(w.w_plus, 1).c_str(), fixed_or_dash(w.w_minus, 1).c_str(),
+                std::isnan(w.p) ? "-" : p_text(w.p).c_str(), method_name(w).c_str());
+  }
+  std::printf("\n");
+}
+
+std::string paired_csv(const std::vector<PairedRow>& rows, const std::vector<Condition>& conds, double confidence) {
+  std::string o =
+      "scope,condition_a,condition_b,name_a,name_b,n,zeros,mean_diff,sd_diff,ci_low,ci_high,confidence,median_diff,"
+      "w_plus,w_minus,statistic,z,p_two_sided,method\n";
+  for (const PairedRow& r : rows) {
+    const Summary& s = r.diff;
+    const stats::SignedRank& w = r.test;
+    o += csv_cell(r.scope) + "," + csv_cell(conds[r.a].id) + "," + csv_cell(conds[r.b].id) + "," +
+         csv_cell(conds[r.a].label) + "," + csv_cell(conds[r.b].label) + "," + std::to_string(s.n) + "," +
+         std::to_string(w.zeros) + "," + csv_num(s.mean) + "," + csv_num(s.sd) + "," + csv_num(s.ci_lo) + "," +
+         csv_num(s.ci_hi) + "," + csv_num(confidence) + "," + csv_num(s.median) + "," + csv_num(w.w_plus) + "," +
+         csv_num(w.w_minus) + "," + csv_num(w.statistic) + "," + csv_num(w.z) + "," + csv_num(w.p) + "," +
+         method_name(w) + "\n";
+  }
   return o;
 }
 
 // One box plot per row: DIR/all.svg and DIR/item-<id>.svg.
 void write_mushra_svgs(const std::string& dir, const std::vector<MushraRow>& rows, const std::vector<Result>& rs,
-                       const std::vector<const Result*>& kept) {
+                       const std::vector<const Result*>& kept, double confidence) {
   std::set<std::string> names;
   for (const MushraRow& row : rows) {
     std::string name = row.scope == "all" ? "all" : "item-" + safe_name(row.scope);
@@ -765,7 +1051,7 @@ void write_mushra_svgs(const std::string& dir, const std::vector<MushraRow>& row
     if (incomplete > 0)
       title += ", " + std::to_string(incomplete) + " incomplete: " + std::to_string(gaps) +
                (gaps == 1 ? " rating" : " ratings") + " missing";
-    write_file(dir + "/" + name + ".svg", box_plot_svg(title + ")", rs[0].conditions, row.sums, row.missing));
+    write_file(dir + "/" + name + ".svg", box_plot_svg(title + ")", rs[0].conditions, row.sums, row.missing, confidence));
   }
 }
 
@@ -776,14 +1062,18 @@ int tally_mushra(const std::vector<Result>& rs, const Args& a, double confidence
     if (c.role == "reference") ref_id = c.id;
     if (c.role == "anchor-mid") mid_id = c.id;
   }
-  std::printf("MUSHRA test '%s': %zu results files\n\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  std::printf("MUSHRA test '%s': %zu results files%s\n\n", terminal_text(rs[0].test_id).c_str(), rs.size(),
+              familiarisation_note(rs).c_str());
   report_incomplete(rs);
   const std::vector<const Result*> kept = screen_assessors(rs, ref_id, mid_id, !a.has("--no-screening"));
   const std::vector<MushraRow> rows = mushra_rows(rs, kept, confidence);
   print_mushra_rows(rows, conds, confidence);
+  const std::vector<PairedRow> pairs = paired_rows(rs, kept, item_order(rs[0]), confidence);
+  print_paired_rows(pairs, conds, confidence);
   if (kept.empty()) std::printf("no assessor is left after the post-screening: there are no statistics\n");
   if (const std::string* csv = a.last("--csv")) write_file(*csv, mushra_csv(rows, conds, confidence));
-  if (const std::string* dir = a.last("--svg")) write_mushra_svgs(*dir, rows, rs, kept);
+  if (const std::string* csv = a.last("--paired-csv")) write_file(*csv, paired_csv(pairs, conds, confidence));
+  if (const std::string* dir = a.last("--svg")) write_mushra_svgs(*dir, rows, rs, kept, confidence);
   return kExitOk;
 }
 
@@ -823,21 +1113,24 @@ int tally_abx(const std::vector<Result>& rs, const Args& a) {
     }
     for (const auto& kv : mine) per[kv.first].push_back({&r, kv.second});
   }
-  std::printf("ABX test '%s': %zu results files\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  std::printf("ABX test '%s': %zu results files%s\n", terminal_text(rs[0].test_id).c_str(), rs.size(),
+              familiarisation_note(rs).c_str());
   report_incomplete(rs);
   std::printf("p: one-tailed exact binomial test, P(X >= correct) with X ~ Binomial(trials, 1/2)\n\n");
   std::printf("  %-34s %-22s %8s %7s %9s\n", "pair", "participant", "correct", "trials", "p");
   // missing_items: items without answers, of that participant or, pooled, of all (--keep-incomplete).
   size_t all_missing = 0;
   for (const Result& r : rs) all_missing += missing_count(r);
-  std::string csv = "pair_a,pair_b,participant,seed,correct,trials,p_one_tailed,missing_items\n";
+  // name_a, name_b (the pair's labels) come last: readers of the earlier columns are unaffected.
+  std::string csv = "pair_a,pair_b,participant,seed,correct,trials,p_one_tailed,missing_items,name_a,name_b\n";
   for (const auto& k : order) {
     const Count& c = pooled[k];
-    const std::string pair = terminal_text(k.first) + " vs " + terminal_text(k.second);
+    const std::string names = "," + csv_cell(label_of(conds, k.first)) + "," + csv_cell(label_of(conds, k.second)) + "\n";
+    const std::string pair = terminal_text(label_of(conds, k.first)) + " vs " + terminal_text(label_of(conds, k.second));
     const double p = binom_half_upper(c.correct, c.trials);
     std::printf("  %-34s %-22s %8ld %7ld %9s\n", pair.c_str(), "(all)", c.correct, c.trials, p_text(p).c_str());
     csv += csv_cell(k.first) + "," + csv_cell(k.second) + ",," + "," + std::to_string(c.correct) + "," +
-           std::to_string(c.trials) + "," + csv_num(p) + "," + std::to_string(all_missing) + "\n";
+           std::to_string(c.trials) + "," + csv_num(p) + "," + std::to_string(all_missing) + names;
     for (const auto& pr : per[k]) {
       const double pp = binom_half_upper(pr.second.correct, pr.second.trials);
       std::printf("  %-34s %-22s %8ld %7ld %9s\n", "", terminal_text(pr.first->participant).c_str(), pr.second.correct,
@@ -845,7 +1138,7 @@ int tally_abx(const std::vector<Result>& rs, const Args& a) {
       csv += csv_cell(k.first) + "," + csv_cell(k.second) + "," + csv_cell(pr.first->participant) + "," +
              std::to_string(pr.first->seed) + "," + std::to_string(pr.second.correct) + "," +
              std::to_string(pr.second.trials) + "," + csv_num(pp) + "," + std::to_string(missing_count(*pr.first)) +
-             "\n";
+             names;
     }
   }
   if (const std::string* f = a.last("--csv")) write_file(*f, csv);
@@ -874,7 +1167,8 @@ int tally_ab(const std::vector<Result>& rs, const Args& a) {
       else
         ++c.second;
     }
-  std::printf("A/B preference test '%s': %zu results files\n", terminal_text(rs[0].test_id).c_str(), rs.size());
+  std::printf("A/B preference test '%s': %zu results files%s\n", terminal_text(rs[0].test_id).c_str(), rs.size(),
+              familiarisation_note(rs).c_str());
   report_incomplete(rs);
   std::printf("p: two-sided exact binomial test of the preferences against 1/2; 'no preference'\n"
               "answers are counted but left out of the test\n\n");
@@ -883,15 +1177,17 @@ int tally_ab(const std::vector<Result>& rs, const Args& a) {
   // missing_items: items without answers over all participants (--keep-incomplete).
   size_t all_missing = 0;
   for (const Result& r : rs) all_missing += missing_count(r);
-  std::string csv = "pair_a,pair_b,prefer_a,prefer_b,no_preference,p_two_sided,missing_items\n";
+  // name_a, name_b (the pair's labels) come last: readers of the earlier columns are unaffected.
+  std::string csv = "pair_a,pair_b,prefer_a,prefer_b,no_preference,p_two_sided,missing_items,name_a,name_b\n";
   for (const auto& k : order) {
     const Count& c = counts[k];
     const double p = binom_half_two_sided(c.first, c.first + c.second);
-    const std::string pair = terminal_text(k.first) + " vs " + terminal_text(k.second);
+    const std::string pair = terminal_text(label_of(conds, k.first)) + " vs " + terminal_text(label_of(conds, k.second));
     std::printf("  %-34s %10ld %10ld %8ld %9s\n", pair.c_str(), c.first, c.second, c.none, p_text(p).c_str());
     csv += csv_cell(k.first) + "," + csv_cell(k.second) + "," + std::to_string(c.first) + "," +
            std::to_string(c.second) + "," + std::to_string(c.none) + "," + csv_num(p) + "," +
-           std::to_string(all_missing) + "\n";
+           std::to_string(all_missing) + "," + csv_cell(label_of(conds, k.first)) + "," +
+           csv_cell(label_of(conds, k.second)) + "\n";
   }
   if (const std::string* f = a.last("--csv")) write_file(*f, csv);
   return kExitOk;
@@ -902,6 +1198,7 @@ int tally_ab(const std::vector<Result>& rs, const Args& a) {
 int cmd_tally(const std::vector<std::string>& argv) {
   const Args a = parse_args(argv, {{"--help", false},
                                    {"--csv", true},
+                                   {"--paired-csv", true},
                                    {"--svg", true},
                                    {"--confidence", true},
                                    {"--no-screening", false},
@@ -917,9 +1214,12 @@ int cmd_tally(const std::vector<std::string>& argv) {
   std::vector<Result> rs;
   for (const std::string& p : a.positional) rs.push_back(load(p));
   check_consistent(rs);
+  label_conditions(rs);
   if (!a.has("--keep-incomplete")) refuse_incomplete(rs);
   if (rs[0].type != "mushra") {
     if (a.has("--svg")) throw UsageError("--svg draws MUSHRA box plots; these are " + rs[0].type + " results");
+    if (a.has("--paired-csv"))
+      throw UsageError("--paired-csv compares MUSHRA scores; these are " + rs[0].type + " results");
     if (a.has("--no-screening")) throw UsageError("--no-screening applies to MUSHRA results only");
   }
   if (const std::string* dir = a.last("--svg")) {

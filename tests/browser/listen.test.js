@@ -10,7 +10,7 @@ import https from 'node:https';
 import { join } from 'node:path';
 import { ARTIFACTS, REPO, PYTHON, WORK, buildSite, serve, launch, openPage, download, earshotBin, mustRun, run } from './helpers.js';
 import { parseConfig } from '../../web/js/listen-config.js';
-import { plan } from '../../web/js/listen-order.js';
+import { plan, familiarisationPlan, familiarisationSeed } from '../../web/js/listen-order.js';
 
 const TARGET = -23;
 let built;
@@ -39,6 +39,16 @@ w.write(sys.argv[1], r, x.astype(np.float32))
         id: 'm-test', type: 'mushra', title: 'MUSHRA <b>test</b>', target_lufs: TARGET,
         conditions: [{ id: 'reference', role: 'reference' }, { id: 'lstm' }],
         items: [{ id: 'tone', stimuli: { reference: { file: 'listen-clips/tone.wav' }, lstm: { effect: 'lstm', clip: 'listen-clips/tone.wav' } } }],
+      },
+      // Ids no participant may see: the page shows item titles ("Item N" without
+      // one) and numbered sounds; the condition names are for the tally only.
+      {
+        id: 'f-test', type: 'mushra', target_lufs: TARGET, anchors: false,
+        conditions: [{ id: 'cond-ref-k2', role: 'reference', name: 'Circuit K2' }, { id: 'cond-net-m5', name: 'Network M5' }, { id: 'cond-plain-q7' }],
+        items: [
+          { id: 'itm-tone-x7', title: 'Plucked tone', stimuli: { 'cond-ref-k2': { file: 'listen-clips/tone.wav' }, 'cond-net-m5': { effect: 'lstm', clip: 'listen-clips/tone.wav' }, 'cond-plain-q7': { file: 'listen-clips/tone.wav' } } },
+          { id: 'itm-other-q3', stimuli: { 'cond-ref-k2': { file: 'listen-clips/tone.wav' }, 'cond-net-m5': { effect: 'lstm', clip: 'listen-clips/tone.wav' }, 'cond-plain-q7': { file: 'listen-clips/tone.wav' } } },
+        ],
       },
       {
         id: 'x-test', type: 'abx', target_lufs: TARGET, trials: 2, familiarisation: false,
@@ -87,6 +97,11 @@ function outsideRequests(page) {
 
 async function step(page, name) {
   await page.waitForSelector(`body[data-step="${name}"]`, { timeout: 90000 });
+}
+
+// The keys (data-key) of the sound buttons shown as playing.
+function pressed(page) {
+  return page.evaluate(() => [...document.querySelectorAll('.cue[aria-pressed=true]')].map((b) => b.dataset.key));
 }
 
 async function rateAll(page, score) {
@@ -211,6 +226,19 @@ test('an ABX set runs through, resumes after a reload, and its results tally', a
   await step(page, 'trial');
   assert.equal(await page.textContent('#trial-count'), 'Trial 1 of 2');
   await page.click('#trial-body .cue >> nth=2'); // X
+  // Keys: letters play A, B and X; digits answer in the order shown; the list is visible.
+  assert.match(await page.textContent('#trial-keys'), /play A, B, X.*answer “X is A”.*answer “X is B”/);
+  await page.keyboard.press('b');
+  assert.deepEqual(await pressed(page), ['b']);
+  await page.keyboard.press('x');
+  assert.deepEqual(await pressed(page), ['x']);
+  await page.keyboard.press('2');
+  assert.equal(await page.isChecked('#answer-b'), true);
+  assert.equal(await page.isDisabled('#trial-next'), false);
+  // The digit left the focus on the choice, which keeps its arrows: the native move to the other choice.
+  await page.keyboard.press('ArrowUp');
+  assert.equal(await page.isChecked('#answer-a'), true);
+  assert.deepEqual(await pressed(page), ['x']);
   await page.check('#answer-a');
   await page.click('#trial-next');
   await page.waitForSelector('body[data-trial="1"]');
@@ -252,6 +280,15 @@ test('an A/B preference set with "no preference" runs through and its counts tal
   for (let k = 0; k < 3; k++) {
     await page.waitForSelector(`body[data-step="trial"][data-trial="${k}"]`);
     await page.click('#trial-body .cue >> nth=1');
+    if (k === 0) {
+      // Keys: 3 is "No preference" (offered here); there is no X to play in A/B.
+      await page.keyboard.press('3');
+      assert.equal(await page.isChecked('#answer-none'), true);
+      await page.keyboard.press('x');
+      assert.deepEqual(await pressed(page), ['b']);
+      await page.keyboard.press('a');
+      assert.deepEqual(await pressed(page), ['a']);
+    }
     await page.check(`#answer-${given[k]}`);
     await page.click('#trial-next');
   }
@@ -391,4 +428,182 @@ test('the results reach a real https endpoint: preflight, a refused POST, and a 
     endpoint.close();
     if (site) site.stop();
   }
+});
+
+// ---- titles, the familiarisation order and the keyboard --------------------------------------------
+
+const HIDDEN = ['itm-tone-x7', 'itm-other-q3', 'cond-ref-k2', 'cond-net-m5', 'cond-plain-q7', 'Circuit K2', 'Network M5'];
+const LABELS = { 'itm-tone-x7': 'Plucked tone', 'itm-other-q3': 'Item 2' };
+
+// Nothing on the page (text or markup, attributes included) names an item id or a condition.
+async function assertNoIds(page, where) {
+  const html = await page.content();
+  for (const id of HIDDEN) assert.ok(!html.includes(id), `${where}: the page shows '${id}'`);
+}
+
+// Opens f-test as a new participant with `seed` (the saved state the page resumes from).
+async function openWithSeed(seed, participant) {
+  // The page once (it saves a participant of its own once prepared), then the
+  // saved state replaced by this participant's, and the page again.
+  const { page, problems } = await openPage(browser.context, `${server.url}listen.html?test=f-test`);
+  // Any screen past the preparation (an earlier participant of this browser may be resumed).
+  await page.waitForSelector('body:not([data-step="start"]):not([data-step="loading"])', { timeout: 90000 });
+  // Every text the preparation progress line shows, from the first one on.
+  await page.addInitScript(() => {
+    window.__prepareTexts = [];
+    new MutationObserver(() => {
+      const p = document.getElementById('prepare-text');
+      if (p && p.textContent) window.__prepareTexts.push(p.textContent);
+    }).observe(document, { subtree: true, childList: true, characterData: true });
+  });
+  await page.evaluate(([s, p]) => {
+    localStorage.setItem('earshot-listen:f-test', JSON.stringify({ version: 1, participant: p, seed: s, started: null, familiarised: false, answers: [] }));
+  }, [seed, participant]);
+  await page.reload();
+  await step(page, 'intro');
+  assert.equal(await page.getAttribute('body', 'data-seed'), String(seed));
+  return { page, problems };
+}
+
+
+// Runs f-test from the intro to the download; `keys` drives the first trial by keyboard.
+async function runFamiliarisationSet(page, tag, keys) {
+  await assertNoIds(page, 'intro');
+  const prep = await page.evaluate(() => window.__prepareTexts);
+  assert.ok(prep.length > 0 && prep.some((t) => t.includes('Plucked tone')) && prep.some((t) => t.includes('Item 2')), prep.join(' | '));
+  for (const t of prep) for (const id of HIDDEN) assert.ok(!t.includes(id), `the progress line shows '${id}': ${t}`);
+  await page.click('#start');
+  await step(page, 'familiar');
+  await assertNoIds(page, 'familiarisation');
+  const shownItems = await page.locator('#familiar-list .cue-item').allTextContents();
+  if (keys) await keys.familiar(page);
+  await page.click('#familiar-done');
+  await step(page, 'trial');
+  await assertNoIds(page, 'first trial');
+  if (keys) await keys.trial(page);
+  for (let k = 0; k < 2; k++) {
+    await page.waitForSelector(`body[data-step="trial"][data-trial="${k}"]`);
+    if (k > 0 || !keys) await rateAll(page, (i) => [100, 40, 70][i]);
+    await page.click('#trial-next');
+  }
+  await step(page, 'done');
+  const file = await download(page, '#download', `listen-f-${tag}.json`);
+  return { shownItems, file, res: JSON.parse(readFileSync(file, 'utf8')) };
+}
+
+test('participants see titles, never ids; the familiarisation order is recorded; keyboard shortcuts work', async () => {
+  const test0 = config.tests.find((t) => t.id === 'f-test');
+  const seed = 3141592653;
+  const { page, problems } = await openWithSeed(seed, 'p-keys');
+  const keys = {
+    async familiar(p) {
+      // The list of keys is on the page, visible.
+      assert.equal(await p.isVisible('#familiar-keys'), true);
+      assert.match(await p.textContent('#familiar-keys'), /Space\s*play \/ stop/);
+      await p.keyboard.press('2');
+      assert.deepEqual(await pressed(p), ['f0-1']);
+      await p.keyboard.press('ArrowRight');
+      assert.deepEqual(await pressed(p), ['f0-2']);
+      await p.keyboard.press('ArrowRight'); // on to the second item's first sound
+      assert.deepEqual(await pressed(p), ['f1-0']);
+      await p.keyboard.press('Space');
+      assert.deepEqual(await pressed(p), []);
+      await p.keyboard.press('Space');
+      assert.deepEqual(await pressed(p), ['f1-0']);
+    },
+    async trial(p) {
+      assert.equal(await p.isVisible('#trial-keys'), true);
+      const help = await p.textContent('#trial-keys');
+      for (const w of ['play / stop', 'reference', 'sample 1 to 3', 'score of the chosen sample', 'Page Up']) assert.ok(help.includes(w), help);
+      await p.keyboard.press('r');
+      assert.deepEqual(await pressed(p), ['open-reference']);
+      await p.keyboard.press('2');
+      assert.deepEqual(await pressed(p), ['s1']);
+      assert.equal(await p.evaluate(() => document.activeElement.id), 'score-1');
+      // Keyboard focus is visible: the ring style.css draws for :focus-visible.
+      const ring = await p.evaluate(() => {
+        const e = document.activeElement;
+        const cs = getComputedStyle(e);
+        return { visible: e.matches(':focus-visible'), style: cs.outlineStyle, width: parseFloat(cs.outlineWidth) };
+      });
+      assert.deepEqual([ring.visible, ring.style], [true, 'solid']);
+      assert.ok(ring.width >= 2, JSON.stringify(ring));
+      for (let k = 0; k < 3; k++) await p.keyboard.press('ArrowUp');
+      assert.equal(await p.inputValue('#score-1'), '53');
+      await p.keyboard.press('PageDown');
+      assert.equal(await p.inputValue('#score-1'), '43');
+      assert.match(await p.textContent('output[for=score-1]'), /^43 Fair$/);
+      await p.keyboard.press('ArrowRight');
+      assert.deepEqual(await pressed(p), ['s2']);
+      assert.equal(await p.evaluate(() => document.activeElement.id), 'score-2');
+      await p.keyboard.press('Space');
+      assert.deepEqual(await pressed(p), []);
+      await p.keyboard.press('Space');
+      assert.deepEqual(await pressed(p), ['s2']);
+      // Typing in a text field is left alone: neither the digit nor the space is taken.
+      await p.evaluate(() => {
+        const i = document.createElement('input');
+        i.type = 'text';
+        i.id = 'probe';
+        i.setAttribute('aria-label', 'probe');
+        document.body.appendChild(i);
+      });
+      await p.focus('#probe');
+      await p.keyboard.type('1 r');
+      assert.equal(await p.inputValue('#probe'), '1 r');
+      assert.deepEqual(await pressed(p), ['s2']);
+      await p.evaluate(() => document.getElementById('probe').remove());
+      // Score every sample by keys: digit, then Page Up/Down; Next opens once all are moved.
+      await p.keyboard.press('1');
+      await p.keyboard.press('PageUp');
+      await p.keyboard.press('3');
+      await p.keyboard.press('PageUp');
+      await p.keyboard.press('PageUp');
+      assert.equal(await p.isDisabled('#trial-next'), false);
+    },
+  };
+  const { shownItems, res, file } = await runFamiliarisationSet(page, 'a', keys);
+  // The record: the seed the page derived, and the order it showed (items by title in that order).
+  assert.deepEqual(res.familiarisation, { seed: familiarisationSeed(seed), order: familiarisationPlan(test0, seed) });
+  assert.deepEqual(shownItems, res.familiarisation.order.map((o) => LABELS[o.item]));
+  // The trial's scores as set by keys (first trial; the sliders follow the seed's order).
+  const first = plan(test0, seed)[0];
+  assert.deepEqual(res.trials[0].order, first.order);
+  assert.deepEqual(first.order.map((c) => res.trials[0].ratings[c]), [60, 43, 70]);
+  // The names reach the results and the tally, not the page.
+  assert.deepEqual(res.conditions, [{ id: 'cond-ref-k2', role: 'reference', name: 'Circuit K2' }, { id: 'cond-net-m5', role: 'test', name: 'Network M5' }, { id: 'cond-plain-q7', role: 'test' }]);
+  // (--no-screening: this participant rated the hidden reference below 90, on purpose of the keys above.)
+  const csv = join(WORK, 'listen-test', 'f-names.csv');
+  const t = run(bin, ['tally', file, '--no-screening', '--csv', csv, '--force']);
+  assert.equal(t.status, 0, t.stderr);
+  const [head, ...lines] = readFileSync(csv, 'utf8').trim().split('\n').map((l) => l.split(','));
+  const rows = lines.map((l) => Object.fromEntries(head.map((h, i) => [h, l[i]])));
+  assert.deepEqual(rows.filter((r) => r.scope === 'all').map((r) => r.name), ['Circuit K2', 'Network M5', 'cond-plain-q7']);
+  assert.match(t.stdout, /Network M5/);
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
+test('the familiarisation order differs between two seeds and is the same again for the same seed', async () => {
+  const test0 = config.tests.find((t) => t.id === 'f-test');
+  const [s1, s2] = [3141592653, 2718281828];
+  // The two seeds give different orders (checked on the plan first, so the test can tell).
+  assert.notDeepEqual(familiarisationPlan(test0, s1), familiarisationPlan(test0, s2));
+  const runs = [];
+  for (const [seed, tag] of [[s2, 'b'], [s1, 'c']]) {
+    const { page, problems } = await openWithSeed(seed, `p-${tag}`);
+    runs.push(await runFamiliarisationSet(page, tag, null));
+    await page.close();
+    assert.deepEqual(problems, []);
+  }
+  const [b, c] = runs;
+  assert.equal(b.res.familiarisation.seed, familiarisationSeed(s2));
+  assert.notDeepEqual(b.res.familiarisation.order, c.res.familiarisation.order);
+  // Same seed, a new participant in a fresh page: the order recorded in the first test.
+  assert.deepEqual(c.res.familiarisation, { seed: familiarisationSeed(s1), order: familiarisationPlan(test0, s1) });
+  for (const r of runs) assert.deepEqual(r.shownItems, r.res.familiarisation.order.map((o) => LABELS[o.item]));
+  // Both files tally together (the record is checked, and files without it still read).
+  const both = run(bin, ['tally', b.file, c.file]);
+  assert.equal(both.status, 0, both.stderr);
+  assert.match(both.stdout, /familiarisation order recorded in 2/);
 });

@@ -156,6 +156,8 @@ const BAD = [
   ['abx-pairs', definition([{ id: 'x', type: 'abx', target_lufs: -23, conditions: [{ id: 'a' }, { id: 'b' }], pairs: [['a', 'c']], items: [] }]), /tests\[0\]\.pairs\[0\]: 'c' is not a declared condition \(a, b\)/, 'tests[0].pairs[0]'],
   ['abx-trials', definition([{ id: 'x', type: 'abx', target_lufs: -23, trials: 0, conditions: [{ id: 'a' }, { id: 'b' }], pairs: [['a', 'b']], items: [] }]), /tests\[0\]\.trials: must be a whole number of ABX trials per pair and item, 1 \.\. 100, got 0/, 'tests[0].trials'],
   ['ab-repeats', definition([{ id: 'p', type: 'ab', target_lufs: -23, repeats: 21, conditions: [{ id: 'a' }, { id: 'b' }], pairs: [['a', 'b']], items: [] }]), /tests\[0\]\.repeats: must be a whole number of A\/B trials per pair and item, 1 \.\. 20, got 21/, 'tests[0].repeats'],
+  ['item-title', definition([mushra({ items: [{ ...mushra().items[0], title: 7 }] })]), /tests\[0\]\.items\[0\]\.title: must be a non-empty string, got 7/, 'tests[0].items[0].title'],
+  ['item-typo', definition([mushra({ items: [{ ...mushra().items[0], titel: 'Tone' }] })]), /tests\[0\]\.items\[0\]: unknown field 'titel' \(allowed: id, title, stimuli\)/, null],
   ['dup-item', definition([mushra({ items: [mushra().items[0], mushra().items[0]] })]), /tests\[0\]\.items: item 'one' is declared twice/, 'tests[0].items'],
   ['dup-test', definition([mushra(), mushra()]), /tests: test id 'm' is used twice/, 'tests'],
   // The builder's own checks: effects, controls and audio files.

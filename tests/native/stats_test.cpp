@@ -8,10 +8,13 @@
 //   scipy.stats.binomtest(k, n, 0.5).pvalue binom_half_two_sided (two-sided)
 //   numpy.percentile(v, q) (linear, = Hyndman & Fan type 7), numpy.std(ddof=1),
 //   the 95 % interval mean ± t_{0.975, n-1}·sd/√n with t from mpmath      summarize
+//   scipy.stats.wilcoxon                    signed_rank (see there)
 // Each table row is its own section, so a failure names the row and every
 // other row still runs.
 #include <catch2/catch.hpp>
 
+#include <cmath>
+#include <cstdint>
 #include <vector>
 
 #include "../../dsp/cli/stats.hpp"
@@ -119,4 +122,103 @@ TEST_CASE("stats: summary against numpy.percentile, numpy.std and the t interval
     CHECK(std::isnan(one.ci_lo));
   }
   SECTION("no values") { CHECK(summarize({}, 0.95).n == 0); }
+}
+
+// ---- Wilcoxon signed-rank test --------------------------------------------------------------
+// Expected values: scipy.stats.wilcoxon 1.10.1 (zero_method='wilcox', the default), printed with
+// repr(): method='exact' for the untied, zero-free rows, method='approx', correction=True for the
+// others (docs/listening.md says why ties go to the normal approximation). Tolerance 1e-12
+// relative: both sides count the exact distribution (scipy in floating point, we in integers) or
+// evaluate erfc of the same z.
+
+TEST_CASE("stats: Wilcoxon signed-rank test against scipy.stats.wilcoxon", "[stats][wilcoxon]") {
+  struct Row {
+    const char* name;
+    std::vector<double> d;
+    bool exact;
+    double statistic, p, z;  // z: NaN for the exact rows
+  };
+  const double none = NAN;
+  const Row row = GENERATE_COPY(values<Row>({
+      {"exact n=10", {1.5, -2.25, 3.0, 4.75, -0.5, 6.0, 7.25, 8.0, -9.5, 10.0}, true, 13.0, 0.16015625, none},
+      {"exact n=1", {3.0}, true, 0.0, 1.0, none},
+      {"exact n=8, one sign", {1, 2, 3, 4, 5, 6, 7, 8.5}, true, 0.0, 0.0078125, none},
+      {"exact n=20",
+       {-3.1, -2.171, -1.216, -0.236, 0.771, 1.804, 2.863, 3.948, 5.058, 6.195, 7.358, 8.547, 9.761, 11.002, 12.269,
+        13.562, 14.881, 16.225, 17.596, 18.993},
+       true, 16.0, 0.0003223419189453125, none},
+      {"exact n=50",
+       {-40.0, -2.99, 34.02,  -29.97, 7.04,  44.05, -19.94, 17.07, 54.08,  -9.91,  27.1,  -36.89, 0.12,
+        37.13, -26.86, 10.15, 47.16, -16.83, 20.18, 57.19, -6.8,  30.21,  -33.78, 3.23,  40.24, -23.75,
+        13.26, 50.27, -13.72, 23.29, 60.3,  -3.69, 33.32, -30.67, 6.34,  43.35,  -20.64, 16.37, 53.38,
+        -10.61, 26.4,  -37.59, -0.5800000000000001, 36.43, -27.56, 9.45, 46.46, -17.53, 19.48, 56.49},
+       true, 413.0, 0.029727315082014982, none},
+      {"ties n=9", {2, -2, 2, 5, 5, -1, 3, 3, 3}, false, 4.0, 0.03159532752069589, -2.149493162495516},
+      {"zeros n=10", {0, 0, 1.5, -2, 3, 4, 5, -6, 7, 8}, false, 8.0, 0.18343061898217816, -1.3302660798266093},
+      {"normal n=60",
+       {-35.0,  18.001, -25.998, 27.003, -16.996, 36.005, -7.994, 45.007,  1.008,   54.009, 10.01,  -33.989,
+        19.012, -24.987, 28.014, -15.985, 37.016, -6.983, 46.018, 2.019,   55.02,   11.021, -32.978, 20.023,
+        -23.976, 29.025, -14.974, 38.027, -5.972, 47.029, 3.03,   56.031,  12.032,  -31.967, 21.034, -22.965,
+        30.036, -13.963, 39.038, -4.961, 48.04,  4.041,  57.042,  13.043,  -30.956, 22.045, -21.954, 31.047,
+        -12.952, 40.049, -3.95,  49.051, 5.052,  58.053, 14.054,  -29.945, 23.056,  -20.943, 32.058, -11.941},
+       false, 568.0, 0.010747738761268074, -2.5507954400635855},
+      {"ties and zeros n=30",
+       {-4, 3, -1, 6, 2, -2, 5, 1, -3, 4, 0, -4, 3, -1, 6, 2, -2, 5, 1, -3, 4, 0, -4, 3, -1, 6, 2, -2, 5, 1},
+       false, 129.0, 0.0929306323974395, -1.6801371596524308},
+  }));
+  CAPTURE(row.name);
+  const SignedRank w = signed_rank(row.d);
+  CHECK(w.exact == row.exact);
+  CHECK(w.n == row.d.size());
+  CHECK(w.statistic == row.statistic);  // rank sums are sums of halves: exact in double
+  CHECK(w.w_plus + w.w_minus == double(w.used * (w.used + 1)) / 2);
+  CHECK(w.p == Approx(row.p).epsilon(1e-12));
+  if (row.exact)
+    CHECK(std::isnan(w.z));
+  else
+    CHECK(w.z == Approx(row.z).epsilon(1e-12));
+}
+
+TEST_CASE("stats: Wilcoxon zero handling (zero_method='wilcox') and the empty case", "[stats][wilcoxon]") {
+  // Zeros are dropped before ranking: the rank sums are those of the non-zero differences alone.
+  const SignedRank with = signed_rank({0, 0, 1.5, -2, 3, 4, 5, -6, 7, 8});
+  const SignedRank without = signed_rank({1.5, -2, 3, 4, 5, -6, 7, 8});
+  CHECK(with.zeros == 2);
+  CHECK(with.used == 8);
+  CHECK(with.w_plus == without.w_plus);
+  CHECK(with.w_minus == without.w_minus);
+  CHECK_FALSE(with.exact);  // a zero sends the test to the normal approximation (as scipy's 'auto')
+  CHECK(without.exact);
+  // Nothing left to rank: no test (scipy raises ValueError for all-zero differences).
+  const SignedRank zero = signed_rank({0, 0, 0});
+  CHECK(zero.used == 0);
+  CHECK(std::isnan(zero.p));
+  CHECK(std::isnan(signed_rank({}).p));
+}
+
+TEST_CASE("stats: exact signed-rank tails against enumeration of every sign pattern", "[stats][wilcoxon]") {
+  // The oracle: all 2^n sign patterns of the ranks 1..n, W+ summed directly (the null
+  // distribution's definition, Wilcoxon 1945).
+  for (size_t n = 1; n <= 14; ++n) {
+    const long total = long(n * (n + 1) / 2);
+    std::vector<double> count(size_t(total) + 1, 0);
+    for (uint32_t m = 0; m < (1u << n); ++m) {
+      long s = 0;
+      for (size_t k = 0; k < n; ++k)
+        if (m & (1u << k)) s += long(k + 1);
+      count[size_t(s)] += 1;
+    }
+    for (long w = 0; w <= total; ++w) {
+      double lo = 0, hi = 0;
+      for (long s = 0; s <= total; ++s) {
+        if (s <= w) lo += count[size_t(s)];
+        if (s >= w) hi += count[size_t(s)];
+      }
+      double got_lo, got_hi;
+      signed_rank_exact_tails(n, w, got_lo, got_hi);
+      CAPTURE(n, w);
+      CHECK(got_lo == lo / double(1u << n));
+      CHECK(got_hi == hi / double(1u << n));
+    }
+  }
 }

@@ -427,7 +427,51 @@ SINGLE_FILE_ERRORS = [
 ]
 
 
-@pytest.mark.parametrize("name,make,words", SINGLE_FILE_ERRORS, ids=[e[0] for e in SINGLE_FILE_ERRORS])
+# The optional familiarisation record and condition names (docs/listening.md, "Results file").
+def with_familiarisation(d, seed=12345):
+    d = copy.deepcopy(d)
+    items = list(dict.fromkeys(s["item"] for s in d["stimuli"]))
+    conds = [c["id"] for c in d["conditions"]]
+    d["familiarisation"] = {"seed": seed, "order": [{"item": i, "conditions": conds[::-1]} for i in items[::-1]]}
+    return d
+
+
+def _fam(fn):
+    return lambda: mutate(with_familiarisation(base_mushra()), fn)
+
+
+FAMILIARISATION_ERRORS = [
+    ("fam-type", _fam(lambda d: _set(d, [], "familiarisation")), ["familiarisation", "must be an object, not an array"]),
+    ("fam-seed", _fam(lambda d: _set(d, -3, "familiarisation", "seed")),
+     ["familiarisation.seed", "whole number from 0 to 2^53 - 1"]),
+    ("fam-seed-missing", _fam(lambda d: _del(d, "familiarisation", "seed")), ["familiarisation.seed: missing"]),
+    ("fam-order-type", _fam(lambda d: _set(d, "gtr", "familiarisation", "order")),
+     ["familiarisation.order", "must be an array, not a string"]),
+    ("fam-item", _fam(lambda d: _set(d, "flute", "familiarisation", "order", 1, "item")),
+     ["familiarisation.order[1].item", "'flute' has no stimuli"]),
+    ("fam-item-twice", _fam(lambda d: _set(d, d["familiarisation"]["order"][0]["item"], "familiarisation", "order", 2,
+                                           "item")), ["familiarisation.order[2].item", "is listed twice"]),
+    ("fam-item-missing", _fam(lambda d: d["familiarisation"]["order"].pop()),
+     ["familiarisation.order", "does not list item"]),
+    ("fam-cond", _fam(lambda d: _set(d, "tcn", "familiarisation", "order", 0, "conditions", 3)),
+     ["familiarisation.order[0].conditions[3]", "has no stimulus of condition 'tcn'"]),
+    ("fam-cond-twice", _fam(lambda d: _set(d, "gru", "familiarisation", "order", 0, "conditions", 1)),
+     ["familiarisation.order[0].conditions[1]", "'gru' is listed twice"]),
+    ("fam-cond-short", _fam(lambda d: d["familiarisation"]["order"][3]["conditions"].pop()),
+     ["familiarisation.order[3].conditions", "lists 4 of the 5 stimuli"]),
+    ("fam-cond-type", _fam(lambda d: _set(d, 7, "familiarisation", "order", 0, "conditions", 0)),
+     ["familiarisation.order[0].conditions[0]", "must be a string, not a number"]),
+    ("name-type", lambda: mutate(base_mushra(), lambda d: _set(d, 3, "conditions", 3, "name")),
+     ["conditions[3].name", "must be a string, not a number"]),
+    ("name-long", lambda: mutate(base_mushra(), lambda d: _set(d, "n" * 201, "conditions", 3, "name")),
+     ["conditions[3].name", "longer than 200 characters"]),
+]
+
+
+ALL_FILE_ERRORS = SINGLE_FILE_ERRORS + FAMILIARISATION_ERRORS
+
+
+@pytest.mark.parametrize("name,make,words", ALL_FILE_ERRORS, ids=[e[0] for e in ALL_FILE_ERRORS])
 def test_single_file_errors_name_file_and_field(tmp_path, name, make, words):
     f = write(tmp_path, f"{name}.json", make())
     p = run("tally", f)
@@ -610,3 +654,263 @@ def test_a_long_list_of_gaps_is_cut_short(tmp_path):
     assert "... and 19 more" in p.stderr
     p = run("tally", f, "--keep-incomplete")
     assert p.returncode == OK and "195 ratings missing" in p.stdout  # 39 items x 5 conditions
+
+
+# ---- paired comparisons: Wilcoxon signed-rank test and the t interval of the mean difference --------
+#
+# Reference: scipy.stats.wilcoxon (SciPy 1.10.1) with its default zero_method='wilcox'. Our rule
+# (docs/listening.md): the exact null distribution when the differences hold no zero and no tie and
+# there are at most 50 of them -- compared with method='exact'; otherwise the normal approximation with
+# tie and continuity corrections -- compared with method='approx', correction=True. The rule is
+# worked out here again from the data. Tolerance: 1e-9 relative for p, z, the mean difference and the
+# interval's centre (the CSV prints 12 significant digits); 1e-8 relative for the interval's half-width
+# (scipy.stats.t.ppf is off by up to 2e-9 relative, see tests/native/stats_test.cpp); exact for the
+# rank sums (sums of halves).
+
+PAIRED_CONDITIONS = [{"id": "reference", "role": "reference"}, {"id": "net-a", "role": "test"},
+                     {"id": "net-b", "role": "test"}]
+
+
+def paired_panel(n_assessors, items, rate):
+    """rate(k, j) -> {condition: score} for assessor k and item j (scores rounded to 0.01, as the page stores)."""
+    docs = {}
+    for k in range(n_assessors):
+        trials = [mushra_trial(item, {c: round(float(v), 2) for c, v in rate(k, j).items()})
+                  for j, item in enumerate(items)]
+        docs[f"q{k:02d}"] = doc(f"q{k:02d}", 500 + k, trials, conditions=PAIRED_CONDITIONS, items=items)
+    return docs
+
+
+def scipy_signed_rank(d):
+    """(method, statistic, p, z) from scipy.stats.wilcoxon, by our rule for which method applies."""
+    import warnings
+    d = np.asarray(d, dtype=float)
+    nz = d[d != 0]
+    if len(nz) == 0:
+        return "none", None, None, None
+    ties = len(np.unique(np.abs(nz))) < len(nz)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # scipy warns about small n for the approximation
+        if len(nz) == len(d) and not ties and len(d) <= 50:
+            r = stats.wilcoxon(d, method="exact")
+            return "exact", float(r.statistic), float(r.pvalue), None
+        r = stats.wilcoxon(d, method="approx", correction=True)
+        return "normal", float(r.statistic), float(r.pvalue), float(r.zstatistic)
+
+
+PAIRED_SETS = {
+    # 9 assessors, one item, continuous scores: untied, no zeros, n = 9 -> exact.
+    "exact-small": (9, ["gtr"], lambda k, j, rng: {"reference": rng.uniform(92, 100), "net-a": rng.uniform(40, 90),
+                                                    "net-b": rng.uniform(30, 85)}),
+    # Whole-point scores from a few values: many ties and some zeros -> normal approximation.
+    "ties-zeros": (8, ["gtr", "bass"], lambda k, j, rng: {"reference": float(rng.choice([95, 100])),
+                                                           "net-a": float(rng.choice([60, 65, 70])),
+                                                           "net-b": float(rng.choice([60, 65, 70, 75]))}),
+    # Zeros only from one pair: net-a equals net-b for a third of the trials.
+    "zeros": (12, ["gtr"], lambda k, j, rng: (lambda a: {"reference": rng.uniform(90, 100), "net-a": a,
+                                                         "net-b": a if k % 3 == 0 else rng.uniform(20, 95)})(
+        rng.uniform(20, 95))),
+    # 7 assessors x 10 items = 70 pairs over all items: n > 50 -> normal approximation without ties;
+    # per item n = 7 -> exact.
+    "large": (7, [f"i{j}" for j in range(10)], lambda k, j, rng: {"reference": rng.uniform(90, 100),
+                                                                   "net-a": rng.uniform(50, 95),
+                                                                   "net-b": rng.uniform(45, 90)}),
+    # One assessor, one item: n = 1, exact p = 1, no interval.
+    "single": (1, ["gtr"], lambda k, j, rng: {"reference": 100.0, "net-a": 70.0, "net-b": 55.5}),
+}
+
+
+@pytest.mark.parametrize("name", list(PAIRED_SETS))
+def test_paired_comparisons_against_scipy_wilcoxon_and_t(tmp_path, name):
+    n_assessors, items, make = PAIRED_SETS[name]
+    rng = np.random.default_rng(sum(map(ord, name)))
+    docs = paired_panel(n_assessors, items, lambda k, j: make(k, j, rng))
+    files = [write(tmp_path, f"{pid}.json", d) for pid, d in docs.items()]
+    out = tmp_path / "paired.csv"
+    p = run("tally", *files, "--paired-csv", out, "--csv", tmp_path / "stats.csv")
+    assert p.returncode == OK, p.stderr
+    assert "paired comparisons" in p.stdout and "Wilcoxon signed-rank test" in p.stdout
+    rows = read_csv(out)
+    ids = [c["id"] for c in PAIRED_CONDITIONS]
+    pairs = [(ids[a], ids[b]) for a in range(3) for b in range(a + 1, 3)]
+    assert [(r["scope"], r["condition_a"], r["condition_b"]) for r in rows] == \
+        [(s, a, b) for s in ["all"] + items for a, b in pairs]
+    methods = set()
+    for r in rows:
+        scope = None if r["scope"] == "all" else r["scope"]
+        d = np.array([t["ratings"][r["condition_a"]] - t["ratings"][r["condition_b"]]
+                      for pid in docs for t in docs[pid]["trials"] if scope is None or t["item"] == scope])
+        assert int(r["n"]) == len(d)
+        assert int(r["zeros"]) == int(np.sum(d == 0))
+        assert close(r["mean_diff"], d.mean()) and close(r["median_diff"], np.median(d))
+        if len(d) > 1:
+            # The interval's centre to 1e-9 relative; its half-width t_{0.975, n-1}·s/√n to 1e-8 relative,
+            # the accuracy of scipy.stats.t.ppf here (as in test_t_quantile_against_scipy).
+            half = stats.t.ppf(0.975, len(d) - 1) * stats.sem(d)
+            lo, hi = float(r["ci_low"]), float(r["ci_high"])
+            assert close((lo + hi) / 2, d.mean())
+            assert abs((hi - lo) / 2 - half) <= 1e-8 * half, (r, half)
+            assert close(r["sd_diff"], d.std(ddof=1))
+        else:
+            assert r["ci_low"] == r["ci_high"] == r["sd_diff"] == ""
+        method, statistic, pvalue, z = scipy_signed_rank(d)
+        methods.add(method)
+        assert r["method"] == method, (r, method)
+        if method == "none":
+            assert r["p_two_sided"] == "" and r["statistic"] == ""
+            continue
+        assert float(r["statistic"]) == statistic, (r, statistic)
+        assert close(r["p_two_sided"], pvalue), (r["scope"], r["condition_a"], r["condition_b"], r["p_two_sided"],
+                                                 pvalue)
+        nz = d[d != 0]
+        assert float(r["w_plus"]) + float(r["w_minus"]) == len(nz) * (len(nz) + 1) / 2
+        if z is None:
+            assert r["z"] == ""
+        else:
+            assert close(r["z"], z), (r, z)
+    # Each data set reaches the method it was made for.
+    want = {"exact-small": {"exact"}, "ties-zeros": {"normal"}, "zeros": {"exact", "normal"},
+            "large": {"exact", "normal"}, "single": {"exact"}}[name]
+    assert methods == want, methods
+
+
+def test_paired_comparison_of_identical_scores_has_no_test(tmp_path):
+    # Every difference zero: nothing left to rank (scipy.stats.wilcoxon refuses such data).
+    docs = paired_panel(4, ["gtr"], lambda k, j: {"reference": 100.0, "net-a": 60.0 + k, "net-b": 60.0 + k})
+    files = [write(tmp_path, f"{pid}.json", d) for pid, d in docs.items()]
+    p = run("tally", *files, "--paired-csv", tmp_path / "p.csv")
+    assert p.returncode == OK, p.stderr
+    row = [r for r in read_csv(tmp_path / "p.csv") if r["scope"] == "all" and r["condition_a"] == "net-a"][0]
+    assert row["zeros"] == "4" and row["method"] == "none" and row["p_two_sided"] == ""
+    assert row["mean_diff"] == "0" and row["ci_low"] == "0" and row["ci_high"] == "0"
+
+
+def test_paired_csv_is_for_mushra_only(tmp_path):
+    a = write(tmp_path, "a.json", base_abx())
+    p = run("tally", a, "--paired-csv", tmp_path / "p.csv")
+    assert p.returncode == USAGE and "--paired-csv compares MUSHRA scores" in p.stderr
+
+
+# ---- condition names and confidence interval marks ----------------------------------------------------
+
+NAMED_CONDITIONS = [{"id": "reference", "role": "reference", "name": "Circuit (reference)"},
+                    {"id": "lp3500", "role": "anchor-low"}, {"id": "lp7000", "role": "anchor-mid"},
+                    {"id": "lstm", "role": "test", "name": "=HYPERLINK(\"http://x\")"},
+                    {"id": "gru", "role": "test", "name": "GRU <small> model with a long name"}]
+
+
+def named_panel(with_names=True):
+    docs = mushra_panel(4)
+    for d in docs.values():
+        d["conditions"] = copy.deepcopy(NAMED_CONDITIONS if with_names else MUSHRA_CONDITIONS)
+    return docs
+
+
+def test_condition_names_in_text_csv_and_svg(tmp_path):
+    docs = named_panel()
+    # One older file without names: the names of the others still apply.
+    docs["p1"]["conditions"] = copy.deepcopy(MUSHRA_CONDITIONS)
+    files = [write(tmp_path, f"{pid}.json", d) for pid, d in docs.items()]
+    out_csv, out_svg, out_pairs = tmp_path / "s.csv", tmp_path / "svg", tmp_path / "p.csv"
+    p = run("tally", *files, "--csv", out_csv, "--svg", out_svg, "--paired-csv", out_pairs)
+    assert p.returncode == OK, p.stderr
+    labels = {"reference": "Circuit (reference)", "lp3500": "lp3500", "lp7000": "lp7000",
+              "lstm": "=HYPERLINK(\"http://x\")", "gru": "GRU <small> model with a long name"}
+    # Text: the names, and the ids only where there is no name.
+    table = [ln for ln in p.stdout.split("\nitem ")[0].splitlines() if ln.startswith("  ")]
+    shown = [ln for ln in table if any(ln.strip().startswith(v) for v in labels.values())]
+    assert len(shown) == 5, p.stdout
+    assert "  lstm " not in p.stdout and "  gru " not in p.stdout
+    assert "Circuit (reference) - =HYPERLINK(\"http://x\")" in p.stdout  # the paired comparisons
+    # CSV: `name` is the last column; formula injection is neutralised (OWASP, CSV injection).
+    with open(out_csv, newline="") as f:
+        raw = f.read()
+    assert raw.splitlines()[0].endswith(",missing,name")
+    assert "'=HYPERLINK" in raw and ",=HYPERLINK" not in raw
+    rows = read_csv(out_csv)
+    for r in rows:
+        want = labels[r["condition"]]
+        assert r["name"] == ("'" + want if want.startswith("=") else want)
+    pair_rows = read_csv(out_pairs)
+    assert {(r["name_a"], r["name_b"]) for r in pair_rows if r["condition_a"] == "reference" and
+            r["condition_b"] == "lstm"} == {("Circuit (reference)", "'=HYPERLINK(\"http://x\")")}
+    # SVG: the label under each box (cut to 11 characters with the whole name in a <title>), the
+    # name on the box, and beside it the confidence interval from the CSV.
+    root = ET.parse(out_svg / "all.svg").getroot()
+    texts = [t for t in root.iter(SVG + "text") if t.get("class") == "condition"]
+    assert [("".join(t.itertext()) if t.find(SVG + "title") is None else t.find(SVG + "title").text)
+            for t in texts] == list(labels.values())
+    cut = texts[4]
+    assert cut.find(SVG + "title").text == labels["gru"]
+    assert "".join(cut.itertext()).endswith("GRU <small\u2026")  # 10 characters and the ellipsis
+    ticks = {t.text: float(t.get("y")) - 4 for t in root.iter(SVG + "text") if t.get("text-anchor") == "end"}
+    y = lambda v: ticks["0"] + (ticks["100"] - ticks["0"]) * v / 100
+    csv_all = {r["condition"]: r for r in rows if r["scope"] == "all"}
+    boxes = [g for g in root.iter(SVG + "g") if g.get("class") == "box"]
+    assert [b.get("data-name") for b in boxes] == list(labels.values())
+    for b in boxes:
+        r = csv_all[b.get("data-condition")]
+        ci = [g for g in b if g.get("class") == "ci"]
+        assert len(ci) == 1, b.get("data-condition")
+        assert close(ci[0].get("data-ci-low"), float(r["ci_low"])) and close(ci[0].get("data-ci-high"), float(r["ci_high"]))
+        assert ci[0].get("data-confidence") == "0.95"
+        bar = [e for e in ci[0] if e.get("class") == "ci-bar"][0]
+        assert abs(float(bar.get("y1")) - y(min(100.0, float(r["ci_high"])))) < 2e-3
+        assert abs(float(bar.get("y2")) - y(max(0.0, float(r["ci_low"])))) < 2e-3
+        # Beside the box, not over it.
+        rect = [e for e in b if e.get("class") == "iqr"][0]
+        assert float(bar.get("x1")) > float(rect.get("x")) + float(rect.get("width"))
+    legend = [t for t in root.iter(SVG + "text") if t.get("class") == "legend-ci"]
+    assert len(legend) == 1 and "95% confidence interval of the mean" in legend[0].text
+    # ABX and A/B: the names follow the pair ids as the last two columns.
+    ab = mutate(base_ab(), lambda d: d["conditions"][1].__setitem__("name", "@LSTM"))
+    f = write(tmp_path, "ab.json", ab)
+    p = run("tally", f, "--csv", tmp_path / "ab.csv")
+    assert p.returncode == OK, p.stderr
+    assert "reference vs @LSTM" in p.stdout
+    r = read_csv(tmp_path / "ab.csv")[0]
+    assert list(r)[-2:] == ["name_a", "name_b"] and (r["name_a"], r["name_b"]) == ("reference", "'@LSTM")
+    abx = mutate(base_abx(), lambda d: d["conditions"][1].__setitem__("name", "LSTM net"))
+    f = write(tmp_path, "abx.json", abx)
+    p = run("tally", f, "--csv", tmp_path / "abx.csv")
+    assert p.returncode == OK and "reference vs LSTM net" in p.stdout
+    assert {(r["name_a"], r["name_b"]) for r in read_csv(tmp_path / "abx.csv")} == {("reference", "LSTM net")}
+
+
+def test_a_name_two_conditions_share_gets_the_ids(tmp_path):
+    conds = copy.deepcopy(MUSHRA_CONDITIONS)
+    conds[3]["name"] = conds[4]["name"] = "net"
+    d = mutate(base_mushra(), lambda x: x.__setitem__("conditions", conds))
+    p = run("tally", write(tmp_path, "d.json", d), "--csv", tmp_path / "d.csv")
+    assert p.returncode == OK, p.stderr
+    names = {r["condition"]: r["name"] for r in read_csv(tmp_path / "d.csv") if r["scope"] == "all"}
+    assert names["lstm"] == "net (lstm)" and names["gru"] == "net (gru)"
+
+
+# ---- the familiarisation record (optional) -----------------------------------------------------------
+
+def test_results_with_and_without_the_familiarisation_record(tmp_path):
+    docs = mushra_panel(6)
+    files = []
+    for k, (pid, d) in enumerate(docs.items()):
+        files.append(write(tmp_path, f"{pid}.json", with_familiarisation(d, 1000 + k) if k % 2 else d))
+    p = run("tally", *files, "--csv", tmp_path / "with.csv")
+    assert p.returncode == OK, p.stderr
+    assert "(familiarisation order recorded in 4)" in p.stdout
+    # The statistics do not depend on it.
+    plain = [write(tmp_path, f"plain-{pid}.json", d) for pid, d in docs.items()]
+    p2 = run("tally", *plain, "--csv", tmp_path / "without.csv")
+    assert p2.returncode == OK and "familiarisation" not in p2.stdout
+    assert (tmp_path / "with.csv").read_text() == (tmp_path / "without.csv").read_text()
+
+
+def test_different_names_for_one_condition_are_refused(tmp_path):
+    panel = named_panel()
+    first = write(tmp_path, "first.json", panel["p1"])
+    d = copy.deepcopy(panel["p2"])
+    d["conditions"][4]["name"] = "Another"
+    second = write(tmp_path, "second.json", d)
+    p = run("tally", first, second)
+    assert p.returncode == INPUT
+    assert "second.json: line" in p.stderr and "conditions[4].name: 'Another' differs from" in p.stderr
+    assert "first.json" in p.stderr

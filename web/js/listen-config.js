@@ -110,8 +110,10 @@ export function parseTest(t, field) {
   if (!Array.isArray(t.items) || t.items.length === 0) fail(`${field}.items`, 'must be a non-empty array');
   test.items = t.items.map((it, i) => {
     const f = `${field}.items[${i}]`;
-    if (!it || typeof it !== 'object') fail(f, 'must be {"id": ..., "stimuli": {...}}');
-    const item = { id: ident(it.id, `${f}.id`), stimuli: {} };
+    if (!it || typeof it !== 'object') fail(f, 'must be {"id": ..., "title"?: ..., "stimuli": {...}}');
+    // title: what participants see for the item (never the id; without one, "Item N").
+    const item = { id: ident(it.id, `${f}.id`), title: str(it.title, `${f}.title`, { optional: true }), stimuli: {} };
+    item.label = item.title || `Item ${i + 1}`;
     if (!it.stimuli || typeof it.stimuli !== 'object') fail(`${f}.stimuli`, 'must be an object of condition id: stimulus');
     for (const k of Object.keys(it.stimuli)) if (!ids.includes(k)) fail(`${f}.stimuli.${k}`, `'${k}' is not a declared condition`);
     for (const c of test.conditions) {

@@ -12,13 +12,15 @@ import { parseWav } from './wav.js';
 import { parseConfig } from './listen-config.js';
 import { CoreAudio, interleave } from './listen-audio.js';
 import { fnv1a64 } from './test-signal.js';
-import { plan, newSeed, newParticipantId } from './listen-order.js';
+import { plan, familiarisationPlan, familiarisationSeed, newSeed, newParticipantId } from './listen-order.js';
 import { SyncPlayer } from './listen-player.js';
+import { installKeys, setKeys, showKeys } from './listen-keys.js';
 
 const BANDS = ['Bad', 'Poor', 'Fair', 'Good', 'Excellent']; // ITU-R BS.1534-3 scale words, 20 points each
 const player = new SyncPlayer();
 
 function setStep(step) {
+  setKeys([]); // each screen sets its own keys after this
   document.body.dataset.step = step;
   for (const s of document.querySelectorAll('[data-screen]')) s.hidden = s.dataset.screen !== step;
 }
@@ -88,7 +90,8 @@ async function prepare(test, site, engine, core, progress) {
     for (const c of test.conditions) {
       if (c.passband) continue;
       const s = item.stimuli[c.id];
-      progress(records.length + raw.size, total, `${item.id}: ${c.id}`);
+      // The item's title (or "Item N"), never an id or a condition: participants read this.
+      progress(records.length + raw.size, total, item.label);
       const audio = await clip(s.source === 'file' ? s.file : s.clip);
       raw.set(c.id, { audio: s.source === 'file' ? audio : core.render(await effect(s.effect), s.controls, audio), source: s.source });
     }
@@ -134,7 +137,7 @@ function saveState(test, state) {
 }
 
 function results(test, state, records, variant) {
-  return {
+  const out = {
     format: 'earshot-listening-results',
     version: 1,
     test: { id: test.id, type: test.type, title: test.title },
@@ -142,17 +145,25 @@ function results(test, state, records, variant) {
     started: state.started,
     finished: state.finished,
     page: { variant, target_lufs: test.targetLufs },
-    conditions: test.conditions.map((c) => ({ id: c.id, role: c.role })),
+    conditions: test.conditions.map((c) => (c.name ? { id: c.id, role: c.role, name: c.name } : { id: c.id, role: c.role })),
     stimuli: records,
     trials: state.answers,
   };
+  // The familiarisation order this participant saw, and the seed that made it
+  // (docs/listening.md, "Results file").
+  if (test.familiarisation) out.familiarisation = { seed: familiarisationSeed(state.seed), order: familiarisationPlan(test, state.seed) };
+  return out;
 }
 
 // ---------------------------------------------------------------- screens
 
+// The sound chosen last on the screen on show (Space plays it again after a stop).
+let lastCue = null;
+
 function playButton(label, key, group) {
   const b = el('button', { type: 'button', class: 'cue', 'data-key': key }, label);
   b.addEventListener('click', async () => {
+    lastCue = b;
     await player.select(key);
     for (const o of group.querySelectorAll('.cue')) o.setAttribute('aria-pressed', String(o === b));
   });
@@ -160,28 +171,76 @@ function playButton(label, key, group) {
   return b;
 }
 
+function stopAll() {
+  player.stop();
+  for (const o of document.querySelectorAll('.cue')) o.setAttribute('aria-pressed', 'false');
+}
+
 function stopButton() {
   const b = el('button', { type: 'button', class: 'stop' }, 'Stop');
-  b.addEventListener('click', () => {
-    player.stop();
-    for (const o of document.querySelectorAll('.cue')) o.setAttribute('aria-pressed', 'false');
-  });
+  b.addEventListener('click', stopAll);
   return b;
 }
 
-function familiarise(test, prepared, onDone) {
+// Key actions shared by the screens; `cues` are the screen's sound buttons in order.
+function togglePlay(cues) {
+  if (player.playing) stopAll();
+  else (cues.includes(lastCue) ? lastCue : cues[0]).click();
+}
+
+function stepCue(cues, delta) {
+  const i = cues.indexOf(lastCue);
+  const next = i < 0 ? (delta > 0 ? 0 : cues.length - 1) : (i + delta + cues.length) % cues.length;
+  cues[next].click();
+  cues[next].focus();
+}
+
+// The digit keys of n choices as listed: 1 … n, and 0 for a tenth.
+function digitKeys(n) {
+  if (n <= 1) return ['1'];
+  if (n <= 9) return ['1', '…', String(n)];
+  return ['1', '…', '9', '0'];
+}
+
+const PLAY_KEYS = { keys: ['Space'], label: [['Space'], 'play / stop'] };
+const STEP_KEYS = { keys: ['ArrowLeft', 'ArrowRight'], label: [['←', '→'], 'previous / next sound'] };
+
+function familiarise(test, state, prepared, onDone) {
   const box = clear($('familiar-list'));
-  for (const item of test.items) {
-    const group = el('div', { class: 'cue-row' }, el('span', { class: 'cue-item' }, item.id));
-    // Numbered, not named: the names would tell the participant what to expect.
-    test.conditions.forEach((c, i) => group.appendChild(playButton(`Sound ${i + 1}`, `${item.id}/${c.id}`, box)));
-    group.appendChild(stopButton());
-    box.appendChild(group);
-  }
   const all = new Map();
-  for (const [item, m] of prepared.stimuli) for (const [c, a] of m) all.set(`${item}/${c}`, a);
+  const groups = []; // per item shown: its sound buttons
+  // The participant's own order (listen-order.js): items and sounds shuffled
+  // from the seed. Items by title, sounds numbered, and the keys neutral
+  // ("f<item>-<sound>"): nothing on the page names a condition.
+  familiarisationPlan(test, state.seed).forEach((shown, gi) => {
+    const item = test.items.find((it) => it.id === shown.item);
+    const group = el('div', { class: 'cue-row' }, el('span', { class: 'cue-item' }, item.label));
+    const buttons = shown.conditions.map((c, i) => {
+      const key = `f${gi}-${i}`;
+      all.set(key, prepared.stimuli.get(item.id).get(c));
+      return playButton(`Sound ${i + 1}`, key, box);
+    });
+    group.append(...buttons, stopButton());
+    box.appendChild(group);
+    groups.push(buttons);
+  });
   player.load(all);
-  $('familiar-done').onclick = () => { player.stop(); onDone(); };
+  const cues = groups.flat();
+  const current = () => groups.find((g) => g.includes(lastCue)) || groups[0];
+  lastCue = null;
+  setKeys([
+    { keys: PLAY_KEYS.keys, run: () => togglePlay(cues) },
+    { keys: ['1', '2', '3', '4', '5', '6', '7', '8', '9'], run: (e, k) => {
+      const b = current()[Number(k) - 1];
+      if (!b) return false;
+      b.click();
+      b.focus();
+    } },
+    { keys: STEP_KEYS.keys, run: (e, k) => stepCue(cues, k === 'ArrowRight' ? 1 : -1) },
+  ]);
+  const k = Math.min(9, test.conditions.length);
+  showKeys($('familiar-keys'), [PLAY_KEYS.label, [digitKeys(k), `sound 1 to ${k} of the item playing (or of the first item)`], STEP_KEYS.label]);
+  $('familiar-done').onclick = () => { stopAll(); onDone(); };
 }
 
 function mushraTrial(test, trial, stimuli, onAnswer) {
@@ -191,14 +250,17 @@ function mushraTrial(test, trial, stimuli, onAnswer) {
   trial.order.forEach((c, i) => m.set(`s${i}`, stimuli.get(c)));
   player.load(m);
   const cues = el('div', { class: 'cue-row' });
-  cues.append(playButton('Reference', 'open-reference', box), stopButton());
+  const refCue = playButton('Reference', 'open-reference', box);
+  cues.append(refCue, stopButton());
   box.appendChild(cues);
+  const sampleCues = [];
   const scale = el('div', { class: 'bands', 'aria-hidden': 'true' }, BANDS.map((b) => el('span', {}, b)));
   const grid = el('div', { class: 'ratings' }, el('span', {}), el('div', { class: 'slider' }, scale, el('span', {})));
   const sliders = [];
   trial.order.forEach((c, i) => {
     const row = el('div', { class: 'cue-row' });
     const cue = playButton(`Sample ${i + 1}`, `s${i}`, box);
+    sampleCues.push(cue);
     const id = `score-${i}`;
     const s = el('input', { type: 'range', id, min: 0, max: 100, step: 'any', value: 50, 'aria-label': `Score for sample ${i + 1}`, 'data-condition-index': i });
     const o = el('output', { for: id, class: 'score' }, '—');
@@ -214,6 +276,43 @@ function mushraTrial(test, trial, stimuli, onAnswer) {
   });
   box.appendChild(grid);
   box.appendChild(el('p', { class: 'note' }, 'Rate every sample against the reference; one of them is the reference itself. Move every slider at least once.'));
+  // Keys: R the reference, digits a sample (its slider takes the focus), arrows
+  // up/down and Page Up/Down move the score of the focused slider, or else of
+  // the sample chosen last, by whole points.
+  const all = [refCue, ...sampleCues];
+  lastCue = null;
+  const pick = (b, focus) => { b.click(); focus.focus(); };
+  const rated = () => {
+    const f = sliders.indexOf(document.activeElement);
+    if (f >= 0) return sliders[f];
+    const c = sampleCues.indexOf(lastCue);
+    return c >= 0 ? sliders[c] : null;
+  };
+  const nudge = (delta) => {
+    const s = rated();
+    if (!s) return false;
+    s.value = String(Math.min(100, Math.max(0, Math.round(Number(s.value)) + delta)));
+    s.dispatchEvent(new Event('input', { bubbles: true }));
+  };
+  const DELTA = { ArrowUp: 1, ArrowDown: -1, PageUp: 10, PageDown: -10 };
+  setKeys([
+    { keys: PLAY_KEYS.keys, run: () => togglePlay(all) },
+    { keys: ['r'], run: () => pick(refCue, refCue) },
+    { keys: ['1', '2', '3', '4', '5', '6', '7', '8', '9', '0'], run: (e, k) => {
+      const i = k === '0' ? 9 : Number(k) - 1;
+      if (!sampleCues[i]) return false;
+      pick(sampleCues[i], sliders[i]);
+    } },
+    { keys: STEP_KEYS.keys, run: (e, k) => {
+      stepCue(all, k === 'ArrowRight' ? 1 : -1);
+      const i = sampleCues.indexOf(lastCue);
+      if (i >= 0) sliders[i].focus();
+    } },
+    { keys: Object.keys(DELTA), run: (e, k) => nudge(DELTA[k]) },
+  ]);
+  showKeys($('trial-keys'), [PLAY_KEYS.label, [['R'], 'reference'],
+    [digitKeys(sampleCues.length), `sample 1 to ${Math.min(10, sampleCues.length)}`], [['←', '→'], `previous / next sound${sampleCues.length > 10 ? ' (the samples after 10 too)' : ''}`],
+    [['↑', '↓'], 'score of the chosen sample +1 / −1'], [['Page Up', 'Page Down'], 'score +10 / −10']]);
   $('trial-next').disabled = true;
   $('trial-next').onclick = () => {
     const ratings = {};
@@ -228,21 +327,39 @@ function choiceTrial(test, trial, stimuli, onAnswer) {
   if (test.type === 'abx') m.set('x', stimuli.get(trial[trial.x]));
   player.load(m);
   const cues = el('div', { class: 'cue-row' });
-  cues.append(playButton('A', 'a', box), playButton('B', 'b', box));
-  if (test.type === 'abx') cues.append(playButton('X', 'x', box));
-  cues.append(stopButton());
+  const list = [playButton('A', 'a', box), playButton('B', 'b', box)];
+  if (test.type === 'abx') list.push(playButton('X', 'x', box));
+  cues.append(...list, stopButton());
   box.appendChild(cues);
   const choices = test.type === 'abx'
     ? [['a', 'X is A'], ['b', 'X is B']]
     : [['a', 'I prefer A'], ['b', 'I prefer B'], ...(test.noPreference ? [['none', 'No preference']] : [])];
   const fs = el('fieldset', { class: 'answer' }, el('legend', {}, test.type === 'abx' ? 'Which one is X?' : 'Which do you prefer?'));
+  const radios = [];
   for (const [v, label] of choices) {
     const id = `answer-${v}`;
     const r = el('input', { type: 'radio', name: 'answer', id, value: v });
     r.addEventListener('change', () => { $('trial-next').disabled = false; });
     fs.append(r, el('label', { for: id }, label));
+    radios.push(r);
   }
   box.appendChild(fs);
+  // Keys: the letters play A, B (and X); digits give the answers in the order shown.
+  lastCue = null;
+  const letters = test.type === 'abx' ? ['a', 'b', 'x'] : ['a', 'b'];
+  setKeys([
+    { keys: PLAY_KEYS.keys, run: () => togglePlay(list) },
+    { keys: letters, run: (e, k) => { const b = list[letters.indexOf(k)]; b.click(); b.focus(); } },
+    { keys: STEP_KEYS.keys, run: (e, k) => stepCue(list, k === 'ArrowRight' ? 1 : -1) },
+    { keys: radios.map((r, i) => String(i + 1)), run: (e, k) => {
+      const r = radios[Number(k) - 1];
+      r.checked = true;
+      r.dispatchEvent(new Event('change', { bubbles: true }));
+      r.focus();
+    } },
+  ]);
+  showKeys($('trial-keys'), [PLAY_KEYS.label, [letters.map((l) => l.toUpperCase()), `play ${letters.map((l) => l.toUpperCase()).join(', ')}`], STEP_KEYS.label,
+    ...choices.map(([, label], i) => [[String(i + 1)], `answer “${label}”`])]);
   $('trial-next').disabled = true;
   $('trial-next').onclick = () => {
     const answer = box.querySelector('input[name=answer]:checked').value;
@@ -308,6 +425,7 @@ function runTrials(test, state, prepared, variant) {
     setText($('trial-count'), `Trial ${k + 1} of ${trials.length}`);
     document.body.dataset.trial = String(k);
     const t = trials[k];
+    setText($('trial-item'), test.items.find((it) => it.id === t.item).label);
     const stimuli = prepared.stimuli.get(t.item);
     const answer = (a) => {
       player.stop();
@@ -369,7 +487,7 @@ async function main() {
     saveState(test, state);
     if (test.familiarisation && !state.familiarised) {
       setStep('familiar');
-      familiarise(test, prepared, () => { state.familiarised = true; saveState(test, state); trials(); });
+      familiarise(test, state, prepared, () => { state.familiarised = true; saveState(test, state); trials(); });
     } else {
       trials();
     }
@@ -387,5 +505,6 @@ function defaultInstructions(test) {
   return 'In each trial, listen to A and B as often as you like and say which you prefer.';
 }
 
+installKeys();
 window.addEventListener('unhandledrejection', (e) => pageError(`Something went wrong: ${e.reason && e.reason.message ? e.reason.message : e.reason}`));
 main().catch((e) => pageError(e.message));

@@ -57,3 +57,20 @@ export function plan(test, seed) {
   }
   return shuffled(trials, rand);
 }
+
+// The familiarisation step's generator is seeded from the participant's seed
+// but runs on its own stream, so plan() gives the same trials it always did.
+// The constant is the first 32 bits of the fractional part of √2 (any fixed
+// odd constant would do; common practice, no source).
+export function familiarisationSeed(seed) {
+  return (seed ^ 0x6a09e667) >>> 0;
+}
+
+// The familiarisation order for `seed`: the items shuffled, and the sounds of
+// each item shuffled, as [{ item: id, conditions: [condition ids as shown] }].
+// The results record it with familiarisationSeed(seed).
+export function familiarisationPlan(test, seed) {
+  const rand = rng(familiarisationSeed(seed));
+  const ids = test.conditions.map((c) => c.id);
+  return shuffled(test.items, rand).map((it) => ({ item: it.id, conditions: shuffled(ids, rand) }));
+}
