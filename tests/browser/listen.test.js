@@ -353,6 +353,46 @@ test('the demo page links to the listening page the builder wrote', async () => 
   await page.close();
 });
 
+// WCAG 2.1 (W3C Recommendation, 2018), "relative luminance" and "contrast
+// ratio"; colours as the browser computes them ("rgb(r, g, b)").
+function contrastOf(a, b) {
+  const lum = (css) => {
+    const [r, g, bl] = css.match(/\d+(\.\d+)?/g).slice(0, 3).map((v) => Number(v) / 255)
+      .map((c) => (c <= 0.03928 ? c / 12.92 : ((c + 0.055) / 1.055) ** 2.4));
+    return 0.2126 * r + 0.7152 * g + 0.0722 * bl;
+  };
+  const [hi, lo] = [lum(a), lum(b)].sort((x, y) => y - x);
+  return (hi + 0.05) / (lo + 0.05);
+}
+
+test('the listening page follows the dark theme and keeps its contrast, the playing sound included', async () => {
+  const { page, problems } = await openPage(browser.context, 'about:blank');
+  await page.emulateMedia({ colorScheme: 'dark' });
+  await page.goto(`${server.url}listen.html`);
+  await page.waitForSelector('body:not([data-step="start"]):not([data-step="loading"])', { timeout: 90000 });
+  const c = await page.evaluate(() => {
+    const cs = (e) => getComputedStyle(e);
+    const panel = document.querySelector('main .panel:not([hidden])');
+    // The look of the sound that is playing (listen.css), on a probe button.
+    const cue = document.createElement('button');
+    cue.className = 'cue';
+    cue.setAttribute('aria-pressed', 'true');
+    cue.textContent = 'Sound 1';
+    panel.appendChild(cue);
+    const out = { body: cs(document.body).backgroundColor, ink: cs(document.body).color, panel: cs(panel).backgroundColor,
+      cueBg: cs(cue).backgroundColor, cueInk: cs(cue).color };
+    cue.remove();
+    return out;
+  });
+  assert.ok(contrastOf(c.body, 'rgb(0, 0, 0)') < 1.5, `the page is not dark: ${c.body}`);
+  assert.ok(contrastOf(c.ink, c.panel) >= 7, `body text ${c.ink} on ${c.panel}: ${contrastOf(c.ink, c.panel).toFixed(2)}:1`);
+  assert.ok(contrastOf(c.cueInk, c.cueBg) >= 4.5, `the playing sound's label ${c.cueInk} on ${c.cueBg}: ${contrastOf(c.cueInk, c.cueBg).toFixed(2)}:1`);
+  mkdirSync(ARTIFACTS, { recursive: true });
+  await page.screenshot({ path: join(ARTIFACTS, 'listen-dark.png'), fullPage: true });
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
 // A real https endpoint on this machine (self-signed certificate made with
 // openssl, accepted by this Chromium through --ignore-certificate-errors): the
 // cross-origin POST goes through the CORS preflight as it would to a
