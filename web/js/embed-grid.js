@@ -96,6 +96,22 @@ export function resolveColumns(parsed, controls, base, url) {
   return columns;
 }
 
+// The cells (with `buffer`: { length, numberOfChannels }, and `used`, a
+// counter of their last use) to let go so that the samples of the rest fit
+// `budget`: least recently used first, never a cell for which keep(cell) holds.
+export function cellsToLetGo(cells, budget, keep) {
+  const size = (c) => c.buffer.length * c.buffer.numberOfChannels;
+  const kept = cells.filter((c) => c.buffer);
+  let total = kept.reduce((s, c) => s + size(c), 0);
+  const out = [];
+  for (const c of kept.filter((x) => !keep(x)).sort((a, b) => a.used - b.used)) {
+    if (total <= budget) break;
+    total -= size(c);
+    out.push(c);
+  }
+  return out;
+}
+
 // One element's grid. opts: uid, titleId, clips [{ url, name }], columns
 // (resolveColumns), render(row, controls, onProgress) → Promise<the Worker's
 // 'rendered' result | null when the element moved on>, output() → { ctx, node },
@@ -198,7 +214,7 @@ export class EmbedGrid {
   // The element's play(): the chosen cell, else the first effect cell.
   playChosen() {
     const cell = this.chosen || this.cells[0][Math.min(1, this.columns.length - 1)];
-    if (!this.isPlaying(cell)) this.activate(cell);
+    if (!this.isPlaying(cell) && this.pending !== cell) this.activate(cell);
   }
 
   nameOf(cell) {
@@ -210,6 +226,7 @@ export class EmbedGrid {
     const p = this.player;
     this.pending = null;
     this.touch(cell);
+    this.opts.alert(''); // an earlier cell's failure is old news
     if (p.playing && p.row === cell.row) {
       p.switchTo(cell.column);
     } else {
@@ -340,14 +357,9 @@ export class EmbedGrid {
   // Bounded memory: the least recently used cells outside the playing row go
   // (their hash stays shown) until the kept samples fit MAX_KEPT_SAMPLES.
   trim() {
-    const kept = () => this.cells.flat().filter((c) => c.buffer);
-    const size = (c) => c.buffer.length * c.buffer.numberOfChannels;
-    let total = kept().reduce((s, c) => s + size(c), 0);
     const p = this.player;
-    const spare = kept().filter((c) => !(p.playing && p.row === c.row) && c !== this.pending).sort((a, b) => a.used - b.used);
-    while (total > MAX_KEPT_SAMPLES && spare.length) {
-      const c = spare.shift();
-      total -= size(c);
+    const keep = (c) => (p.playing && p.row === c.row) || c === this.pending;
+    for (const c of cellsToLetGo(this.cells.flat(), MAX_KEPT_SAMPLES, keep)) {
       c.buffer = null;
       c.state = 'idle';
       this.refresh(c);
