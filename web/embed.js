@@ -395,19 +395,20 @@ export class EarshotEffect extends HTMLElement {
     u.controls.hidden = grid;
     for (const n of [u.play, u.time, u.ab]) n.hidden = grid;
     if (grid) u.clipRow.hidden = true;
-    else u.grid.replaceChildren();
+    u.grid.replaceChildren(); // a grid of an earlier load goes
   }
 
   makeGrid(columns, seq) {
     const u = this.ui;
     const stale = () => seq !== this.loadSeq;
+    const clips = this.clips;
     const grid = new EmbedGrid({
       uid: this.uid,
       titleId: `${this.uid}-title`,
-      clips: this.clips.map((url) => ({ url, name: clipName(url) })),
+      clips: clips.map((url) => ({ url, name: clipName(url) })),
       columns,
       render: async (row, controls, progress) => {
-        const url = this.clips[row];
+        const url = clips[row];
         const data = await this.clipBytes(url);
         if (stale()) return null;
         const settings = { controls: { ...controls }, mix: 1, inputDb: 0, outputDb: 0, bypass: false };
@@ -425,7 +426,7 @@ export class EarshotEffect extends HTMLElement {
     });
     this.comparison = grid;
     u.grid.replaceChildren(grid.box);
-    setText(u.status, `${this.clips.length} × ${columns.length} cells; each is computed when first played.`);
+    setText(u.status, `${clips.length} × ${columns.length} cells; each is computed when first played.`);
     this.setState('ready');
   }
 

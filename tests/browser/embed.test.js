@@ -153,7 +153,8 @@ before(async () => {
   values="tone=4.5" columns="Soft: drive=0.2; drive=0.9, tone=2" reference="${refs.tcn}"></earshot-effect>
 <earshot-effect id="plain" effect="${f}open/lstm-12.nfx" clips="${f}open/mono-48k-i16.wav" reference="${refs.lstm}"></earshot-effect>`));
   writeFileSync(join(HOST, 'grid-errors.html'), hostPage(Object.entries(BAD_COLUMNS).map(([id, [columns]]) =>
-    `<earshot-effect id="${id}" effect="${f}open/tcn-film.nfx" clips="${f}open/mono-48k-i16.wav" columns="${columns}"></earshot-effect>`).join('\n')));
+    `<earshot-effect id="${id}" effect="${f}open/tcn-film.nfx" clips="${f}open/mono-48k-i16.wav" columns="${columns}"></earshot-effect>`).join('\n')
+    + `\n<earshot-effect id="grid-noclip" effect="${f}open/tcn-film.nfx" clips="${f}open/none.wav" columns="Hot: drive=0.9"></earshot-effect>`));
   browser = await launch();
 });
 
@@ -617,8 +618,19 @@ test('bad `columns` values are shown inside their element, naming the attribute 
     assert.ok(shown.startsWith(`attribute columns: ${want.replace('URL', url)}`), `${id}: ${shown}`);
     assert.equal(await prop(page, id, 'gridPlayer'), null);
   }
+  // A clip that cannot be read: the cell says so, and so does the element, naming the URL.
+  await settled(page, ['grid-noclip']);
+  await page.locator('#grid-noclip td[data-row="0"][data-column="1"] button').click();
+  await page.waitForSelector('#grid-noclip td[data-column="1"][data-state=failed]', { timeout: 60000 });
+  const label = await page.locator('#grid-noclip td[data-column="1"] button').getAttribute('aria-label');
+  assert.match(label, /^none, Hot \(drive=0\.9\): failed: cannot load the clip \(.*none\.wav\): HTTP 404/);
+  assert.equal(await page.getAttribute('#grid-noclip td[data-column="0"]', 'data-state'), 'failed');
+  assert.match(await page.locator('#grid-noclip .error').textContent(), new RegExp(`^Cannot render ${files.url}open/none\\.wav: `));
+  assert.equal(await prop(page, 'grid-noclip', 'playing'), false);
   await page.close();
-  assert.deepEqual(problems, []);
+  // The only console message is the browser's report of the missing clip.
+  assert.deepEqual(problems.filter((p) => !/none\.wav|status of 404/.test(p)), []);
+  assert.ok(problems.length > 0, 'the missing clip should show in the console');
 });
 
 test('a grid element fits a 390 px screen; without `columns` it is the player again, and back', async () => {
