@@ -12,7 +12,10 @@
 // or spaces; absent: all; empty: none), values (initial control values,
 // NAME=VALUE separated by commas, as `earshot render --control`), reference
 // (the scalar output hash `earshot verify FILE --json` prints: the
-// self-check's expectation), label (a name to show instead of the file's title).
+// self-check's expectation), label (a name to show instead of the file's title),
+// columns (optional: settings of the effect that turn the element into a
+// comparison grid, rows = clips, columns = Dry and one per setting;
+// js/embed-grid.js, e.g. columns="Soft: drive=0.2; Hot: drive=0.8").
 //
 // Every element on a page shares one capability check, one compiled
 // WebAssembly module and one instance for reading effect files (the page's
@@ -32,6 +35,7 @@ import { clock, hz } from './js/format.js';
 import { Player } from './js/player.js';
 import { niceStep, show } from './js/controls-panel.js';
 import { EMBED_CSS } from './js/embed-style.js';
+import { EmbedGrid, parseColumns, resolveColumns } from './js/embed-grid.js';
 
 const BASE = new URL('./', import.meta.url).href;
 const LEVEL_START_DB = -30; // as the page's live listening level: output starts quiet
@@ -177,7 +181,7 @@ let instances = 0;
 
 export class EarshotEffect extends HTMLElement {
   static get observedAttributes() {
-    return ['effect', 'clips', 'controls', 'values', 'reference', 'label'];
+    return ['effect', 'clips', 'controls', 'values', 'reference', 'label', 'columns'];
   }
 
   // The shared AudioContext (null before the first Play) and how many were
@@ -205,6 +209,8 @@ export class EarshotEffect extends HTMLElement {
     this.guard = null; // this element's 'earshot-guard' node in the shared context
     this.player = new Player(() => this.showPlaying(), () => this.output());
     this.rendered = false;
+    this.comparison = null; // the comparison grid (js/embed-grid.js) when the element has `columns`
+    this.clipData = new Map(); // url → Promise<ArrayBuffer>, the grid's clips, fetched once per load
     this.root = this.attachShadow({ mode: 'open' });
     const s = sheet();
     if (s) this.root.adoptedStyleSheets = [s];
@@ -218,8 +224,12 @@ export class EarshotEffect extends HTMLElement {
   get checkResult() { return this._check; } // the self-check's result (offline-worker.js)
   get outputHash() { return this._hash; } // FNV-1a 64 of the processed samples, channel after channel
   get errorText() { return this._error; }
-  get playing() { return this.player.playing; }
+  get playing() { return this.comparison ? this.comparison.player.playing : this.player.playing; }
   get listeningTo() { return this.player.which; }
+  // With `columns`: the grid's columns and cells ({ columns, rows: [{ clip, cells: [{ state, hash, ... }] }] }),
+  // and its player (js/grid-player.js: the row's timeline and its sources); null without.
+  get grid() { return this.comparison ? this.comparison.snapshot() : null; }
+  get gridPlayer() { return this.comparison ? this.comparison.player : null; }
   get settings() { return { controls: { ...this.values }, mix: 1, inputDb: 0, outputDb: 0, bypass: false }; }
 
   connectedCallback() {
@@ -265,13 +275,15 @@ export class EarshotEffect extends HTMLElement {
     u.levelOut = el('output', { for: id('level') }, `${LEVEL_START_DB} dB`);
     u.status = el('p', { class: 'status', role: 'status' });
     u.error = el('p', { class: 'error', role: 'alert' });
+    u.grid = el('div', { class: 'grid-slot' }); // the comparison grid, with `columns`
     u.box = el('div', { class: 'box', role: 'group', 'aria-labelledby': id('title') },
       el('div', { class: 'head' }, u.title, u.check),
-      u.controls, u.clipRow,
+      u.controls, u.clipRow, u.grid,
       el('div', { class: 'row' }, u.play, u.time, u.ab,
         el('span', { class: 'level' }, el('label', { for: id('level') }, 'Level'), u.level, u.levelOut)),
       u.status, u.error);
     u.clipRow.hidden = true;
+    u.grid.hidden = true;
     this.root.appendChild(u.box);
 
     u.play.addEventListener('click', () => (this.player.playing ? this.pause() : this.play()));
@@ -306,12 +318,24 @@ export class EarshotEffect extends HTMLElement {
     this._error = null;
     this.rendered = false;
     this.bytes = null;
+    this.clipData = new Map();
     const u = this.ui;
+    if (this.comparison) this.comparison.dispose();
+    this.comparison = null;
+    this.showMode(this.hasAttribute('columns'));
     setText(u.error, '');
     u.play.disabled = true;
     this.setState('loading');
     const src = this.getAttribute('effect');
     if (!src) return this.fail('This element names no effect: give it an effect="URL" attribute.');
+    let columns = null;
+    if (this.hasAttribute('columns')) {
+      try {
+        columns = parseColumns(this.getAttribute('columns'));
+      } catch (e) {
+        return this.fail(e.message);
+      }
+    }
     const url = new URL(src, document.baseURI).href;
     setText(u.status, `Loading ${url}…`);
     let eng;
@@ -342,20 +366,78 @@ export class EarshotEffect extends HTMLElement {
     try {
       this.values = this.initialValues(controls, url);
       this.showControls(controls, url);
+      if (columns) columns = resolveColumns(columns, controls, this.values, url);
     } catch (e) {
       return this.fail(e.message);
     }
     setText(u.title, this.getAttribute('label') || loaded.info.title || clipName(url));
     this.clips = clipList(this.getAttribute('clips'));
     u.clip.replaceChildren(...this.clips.map((c, i) => el('option', { value: String(i) }, clipName(c))));
-    u.clipRow.hidden = this.clips.length < 2;
+    u.clipRow.hidden = columns !== null || this.clips.length < 2;
     this.selfCheck(seq);
     if (!this.clips.length) {
       setText(u.status, 'No clip to play: give this element a clips="URL ..." attribute.');
       this.setState('ready');
       return;
     }
+    if (columns) {
+      this.makeGrid(columns, seq);
+      return;
+    }
     await this.render();
+  }
+
+  // The player's parts or the grid's (with `columns`: the controls, the clip
+  // menu, Play, the time and the A/B switch give way to the grid).
+  showMode(grid) {
+    const u = this.ui;
+    u.grid.hidden = !grid;
+    u.controls.hidden = grid;
+    for (const n of [u.play, u.time, u.ab]) n.hidden = grid;
+    if (grid) u.clipRow.hidden = true;
+    u.grid.replaceChildren(); // a grid of an earlier load goes
+  }
+
+  makeGrid(columns, seq) {
+    const u = this.ui;
+    const stale = () => seq !== this.loadSeq;
+    const clips = this.clips;
+    const grid = new EmbedGrid({
+      uid: this.uid,
+      titleId: `${this.uid}-title`,
+      clips: clips.map((url) => ({ url, name: clipName(url) })),
+      columns,
+      render: async (row, controls, progress) => {
+        const url = clips[row];
+        const data = await this.clipBytes(url);
+        if (stale()) return null;
+        const settings = { controls: { ...controls }, mix: 1, inputDb: 0, outputDb: 0, bypass: false };
+        return this.renderData(data, url, settings, progress, stale);
+      },
+      output: () => this.output(),
+      beforePlay: () => {
+        if (kit.playing && kit.playing !== this) kit.playing.pause();
+        kit.playing = this;
+      },
+      changed: () => this.showPlaying(),
+      onCell: (detail) => this.dispatchEvent(new CustomEvent('earshot-cell', { detail })),
+      say: (text) => setText(u.status, text),
+      alert: (text) => setText(u.error, text),
+    });
+    this.comparison = grid;
+    u.grid.replaceChildren(grid.box);
+    setText(u.status, `${clips.length} × ${columns.length} cells; each is computed when first played.`);
+    this.setState('ready');
+  }
+
+  // A grid's clip, fetched once per load (tried again after a failure).
+  clipBytes(url) {
+    if (!this.clipData.has(url)) {
+      const p = fetchBytes(url, 'the clip');
+      p.catch(() => this.clipData.delete(url));
+      this.clipData.set(url, p);
+    }
+    return this.clipData.get(url);
   }
 
   initialValues(controls, url) {
@@ -462,7 +544,7 @@ export class EarshotEffect extends HTMLElement {
 
   // Renders the chosen clip with the current values in the shared Worker.
   async render() {
-    if (!this.bytes || !this.clips || !this.clips.length) return;
+    if (!this.bytes || !this.clips || !this.clips.length || this.comparison) return;
     const seq = ++this.renderSeq;
     const loadSeq = this.loadSeq;
     const u = this.ui;
@@ -477,19 +559,8 @@ export class EarshotEffect extends HTMLElement {
     try {
       const data = await fetchBytes(url, 'the clip');
       if (stale()) return;
-      const blob = new Blob([data]);
       const progress = (f) => { if (!stale()) setText(u.status, `Rendering ${name}… ${Math.round(100 * f)} %`); };
-      let m = null;
-      if (looksLikeWav(new Uint8Array(data, 0, Math.min(12, data.byteLength))))
-        m = await runJob({ type: 'render', effect: this.bytes.slice(0), settings, source: { kind: 'wav', file: blob, name } }, [], progress);
-      if (stale()) return;
-      if (!m || m.type === 'fallback') {
-        const channels = await decode(data, this._info.model_rate, url, m && m.reason);
-        if (stale()) return;
-        m = await runJob({ type: 'render', effect: this.bytes.slice(0), settings,
-          source: { kind: 'pcm', rate: this._info.model_rate, channels, name } }, channels.map((c) => c.buffer), progress);
-      }
-      result = m.result;
+      result = await this.renderData(data, url, settings, progress, stale);
     } catch (e) {
       if (!stale()) this.fail(`Cannot render ${url}: ${e.message}`);
       return;
@@ -510,6 +581,24 @@ export class EarshotEffect extends HTMLElement {
     if (wasPlaying) this.play();
   }
 
+  // A clip's bytes rendered in the shared Worker with `settings`: a WAV the
+  // Worker reads itself, anything else decoded by the browser first. Resolves
+  // the Worker's 'rendered' result, or null once stale() says the element moved on.
+  async renderData(data, url, settings, progress, stale) {
+    const name = clipName(url);
+    let m = null;
+    if (looksLikeWav(new Uint8Array(data, 0, Math.min(12, data.byteLength))))
+      m = await runJob({ type: 'render', effect: this.bytes.slice(0), settings, source: { kind: 'wav', file: new Blob([data]), name } }, [], progress);
+    if (stale()) return null;
+    if (!m || m.type === 'fallback') {
+      const channels = await decode(data, this._info.model_rate, url, m && m.reason);
+      if (stale()) return null;
+      m = await runJob({ type: 'render', effect: this.bytes.slice(0), settings,
+        source: { kind: 'pcm', rate: this._info.model_rate, channels, name } }, channels.map((c) => c.buffer), progress);
+    }
+    return m.result;
+  }
+
   // ---- playback (js/player.js: both sides start together, A/B moves two gains)
 
   // The player's output: the shared context (made here, in the gesture of
@@ -528,6 +617,10 @@ export class EarshotEffect extends HTMLElement {
   }
 
   async play() {
+    if (this.comparison) {
+      this.comparison.playChosen();
+      return;
+    }
     if (!this.rendered) return;
     if (kit.playing && kit.playing !== this) kit.playing.pause();
     kit.playing = this;
@@ -546,11 +639,12 @@ export class EarshotEffect extends HTMLElement {
 
   pause() {
     this.player.pause();
+    if (this.comparison) this.comparison.stop();
     this.showPlaying();
   }
 
   showPlaying() {
-    if (!this.player.playing && kit.playing === this) kit.playing = null;
+    if (!this.playing && kit.playing === this) kit.playing = null;
     setText(this.ui.play, this.player.playing ? 'Pause' : 'Play');
     this.updateTime();
   }

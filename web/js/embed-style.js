@@ -101,5 +101,29 @@ details.check summary::-webkit-details-marker { display: none; }
 .status:empty { display: none; }
 .error { margin: 10px 0 0; padding: 6px 10px; border-radius: 6px; color: var(--bad); background: var(--bad-bg); }
 .error:empty { display: none; }
+/* The comparison grid (columns="..."): a table that scrolls inside the
+   element on a narrow screen, never the page; the padding keeps a focused
+   cell's outline inside the scrolling box. */
+.grid-box { margin: 10px 0 0; }
+.grid-scroll { overflow-x: auto; max-width: 100%; padding: 6px; margin: 0 -6px; }
+.grid { border-collapse: separate; border-spacing: 4px; }
+.grid th { font-size: 13px; text-align: left; padding: 0 3px; overflow-wrap: anywhere; color: var(--ink); vertical-align: bottom; }
+.grid thead th { color: var(--muted); font-weight: 600; }
+.grid th .settings { display: block; font-weight: 400; font-size: 12px; font-family: ui-monospace, monospace; overflow-wrap: normal; }
+.grid tbody th { position: sticky; left: 0; z-index: 1; background: var(--paper); font-weight: 600; min-width: 72px; max-width: 120px; vertical-align: middle; }
+.grid td { padding: 0; }
+.grid button.cell {
+  display: flex; flex-direction: column; align-items: center; justify-content: center;
+  min-width: 64px; min-height: 40px; padding: 3px 8px; line-height: 1.2; font-weight: 400;
+  background: var(--paper); color: var(--ink); border: 1px solid var(--line); border-radius: 6px;
+}
+.grid .cell-state { font-size: 13px; font-variant-numeric: tabular-nums; }
+.grid td[data-chosen=true] button.cell { border: 2px solid var(--accent); }
+.grid td[data-playing=true] button.cell { background: var(--accent); color: var(--accent-ink); }
+.grid td[data-state=failed] button.cell { border-color: var(--bad); color: var(--bad); }
+.grid button.cell:focus-visible { outline: 3px solid var(--focus); outline-offset: 1px; }
+.hint, .grid-time { margin: 4px 0 0; font-size: 13px; color: var(--muted); }
+.grid-time:empty { display: none; }
+.sr-only { position: absolute; width: 1px; height: 1px; padding: 0; margin: -1px; overflow: hidden; clip: rect(0 0 0 0); white-space: nowrap; border: 0; }
 [hidden] { display: none !important; }
 `;

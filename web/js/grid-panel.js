@@ -12,6 +12,7 @@
 import { $, el, clear, setText } from './dom.js';
 import { fetchBytes, siteUrl } from './site.js';
 import { GridPlayer } from './grid-player.js';
+import { cellWords, enqueue, gridKey, rovingFocus, showCell } from './grid-shared.js';
 import { clock, db, hz } from './format.js';
 import { drawSpectrogram, setSpectrogramCursor, spectrogramStale, stftSettings, SPECTROGRAM_DEFAULTS } from './spectrogram.js';
 
@@ -104,40 +105,22 @@ export class GridPanel {
   }
 
   key(e, cell) {
-    const rows = this.cells.length;
-    const cols = this.grid.columns.length;
-    let { row, column } = cell;
-    switch (e.key) {
-      case 'ArrowRight': column = Math.min(cols - 1, column + 1); break;
-      case 'ArrowLeft': column = Math.max(0, column - 1); break;
-      case 'ArrowDown': row = Math.min(rows - 1, row + 1); break;
-      case 'ArrowUp': row = Math.max(0, row - 1); break;
-      case 'Home': column = 0; break;
-      case 'End': column = cols - 1; break;
-      case ' ':
-      case 'Enter':
-        e.preventDefault();
-        this.activate(cell);
-        return;
-      default: return;
-    }
+    const to = gridKey(e.key, cell, this.cells.length, this.grid.columns.length);
+    if (!to) return;
     e.preventDefault();
-    this.moveFocus(row, column);
+    if (to === 'activate') this.activate(cell);
+    else this.moveFocus(to.row, to.column);
   }
 
   moveFocus(row, column) {
-    for (const line of this.cells) for (const c of line) c.button.tabIndex = -1;
-    const c = this.cells[row][column];
-    c.button.tabIndex = 0;
-    c.button.focus();
+    rovingFocus(this.cells, this.cells[row][column]);
   }
 
   // Chooses a cell without playing it (a shared address): it gets the focus stop.
   select(clipId, column) {
     const row = this.grid ? this.grid.rows.findIndex((r) => r.clip === clipId) : -1;
     if (row < 0 || !Number.isInteger(column) || column < 0 || column >= this.grid.columns.length) return false;
-    for (const line of this.cells) for (const c of line) c.button.tabIndex = -1;
-    this.cells[row][column].button.tabIndex = 0;
+    rovingFocus(this.cells, this.cells[row][column], false);
     this.chosen = { row, column };
     this.refreshAll();
     return true;
@@ -245,11 +228,7 @@ export class GridPanel {
   want(cell, first) {
     const add = (c, front) => {
       if (c.state !== 'idle' && c.state !== 'queued') return;
-      const i = this.queue.indexOf(c);
-      if (i >= 0) this.queue.splice(i, 1);
-      if (front) this.queue.unshift(c);
-      else this.queue.push(c);
-      c.state = 'queued';
+      enqueue(this.queue, c, front);
       this.refresh(c);
     };
     add(cell, first);
@@ -407,16 +386,7 @@ export class GridPanel {
     const playing = p.playing && p.row === cell.row && p.column === cell.column;
     const col = this.grid.columns[cell.column];
     const clip = this.clipOf(cell.row);
-    let state;
-    let long;
-    switch (cell.state) {
-      case 'none': state = '—'; long = 'no reference file for this clip'; break;
-      case 'idle': state = 'play'; long = 'not computed yet; play to compute it'; break;
-      case 'queued': state = 'waiting'; long = 'waiting to be computed'; break;
-      case 'working': state = `${Math.round(100 * (cell.progress || 0))} %`; long = 'being computed'; break;
-      case 'failed': state = 'failed'; long = `failed: ${cell.message}`; break;
-      default: state = playing ? 'playing' : 'play'; long = playing ? 'playing' : 'ready';
-    }
+    const [state, long] = cellWords(cell, playing);
     setText(cell.button.querySelector('.cell-state'), state);
     const mark = cell.verdict ? MARK[cell.verdict] : '';
     setText(cell.button.querySelector('.cell-mark'), mark);
@@ -426,15 +396,8 @@ export class GridPanel {
     let match = '';
     if (playing && p.match && Number.isFinite(p.matchDb.get(cell.column))) match = `; loudness matched by ${db(p.matchDb.get(cell.column))}`;
     const label = `${clip.name}, ${col.name}: ${long}${verdict}${match}`;
-    cell.button.setAttribute('aria-label', label);
-    cell.button.title = label;
-    cell.button.setAttribute('aria-pressed', playing ? 'true' : 'false');
-    const td = cell.td;
-    td.dataset.state = cell.state;
-    if (cell.verdict) td.dataset.verdict = cell.verdict;
-    else delete td.dataset.verdict;
-    if (cell.hash) td.dataset.hash = cell.hash;
-    td.dataset.playing = playing ? 'true' : 'false';
-    td.dataset.chosen = this.chosen && this.chosen.row === cell.row && this.chosen.column === cell.column ? 'true' : 'false';
+    showCell(cell, label, playing, this.chosen && this.chosen.row === cell.row && this.chosen.column === cell.column);
+    if (cell.verdict) cell.td.dataset.verdict = cell.verdict;
+    else delete cell.td.dataset.verdict;
   }
 }

@@ -5,14 +5,25 @@
 // sources stay sample-aligned; switching moves two gains in a 5 ms linear
 // ramp (as player.js). The optional loudness match scales each cell by the
 // gain that brings its integrated loudness (BS.1770) to the row's dry input.
+//
+// output(): where playback goes, { ctx, node }, as in player.js; by default a
+// context of the player's own, made on the first play() (inside the user's
+// gesture), and its destination. The embed's grid (web/js/embed-grid.js)
+// passes the shared context and the element's output guard.
 
 const SWITCH_S = 0.005;
 const LEAD_S = 0.03; // sources start this far ahead of "now", so every start is scheduled, not late
 
 export class GridPlayer {
-  constructor(onEnd) {
+  constructor(onEnd, output = null) {
     this.ctx = null;
+    this.node = null; // where every cell's gain goes
     this.onEnd = onEnd;
+    this.output = output || (async () => {
+      if (!this.ctx) this.ctx = new AudioContext({ latencyHint: 'interactive' });
+      return { ctx: this.ctx, node: this.ctx.destination };
+    });
+    this.token = null; // the play() in progress; stop() cancels it
     this.row = -1;
     this.column = -1;
     this.playing = false;
@@ -22,11 +33,6 @@ export class GridPlayer {
     this.match = false;
     this.matchDb = new Map(); // column → dB that matches the dry input
     this.starts = []; // { column, when, offset } of the row playing, for the alignment check
-  }
-
-  get context() {
-    if (!this.ctx) this.ctx = new AudioContext({ latencyHint: 'interactive' });
-    return this.ctx;
   }
 
   gainOf(column) {
@@ -41,11 +47,16 @@ export class GridPlayer {
   }
 
   // Starts `row` at `from` seconds with the ready cells in `buffers`
-  // (column → AudioBuffer), `column` audible.
+  // (column → AudioBuffer), `column` audible. Resolves false when stop() or
+  // another play() came first while the output was being made ready.
   async play(row, column, buffers, from = 0) {
-    const ctx = this.context;
+    const token = (this.token = {});
+    const { ctx, node } = await this.output();
     await ctx.resume();
-    this.stop();
+    if (token !== this.token) return false;
+    this.halt();
+    this.ctx = ctx;
+    this.node = node;
     this.row = row;
     this.column = column;
     this.starts = [];
@@ -53,6 +64,7 @@ export class GridPlayer {
     this.start = t - from;
     this.playing = true;
     for (const [k, buffer] of buffers) this.join(k, buffer, t);
+    return true;
   }
 
   // A cell joins the playing row at context time t (default: just ahead of now).
@@ -62,7 +74,7 @@ export class GridPlayer {
     const offset = t - this.start;
     const src = new AudioBufferSourceNode(ctx, { buffer });
     const gain = new GainNode(ctx, { gain: this.gainOf(column) });
-    src.connect(gain).connect(ctx.destination);
+    src.connect(gain).connect(this.node);
     if (offset < buffer.duration) src.start(t, offset);
     this.sources.set(column, { src, gain, buffer });
     this.starts.push({ column, when: t, offset });
@@ -74,7 +86,7 @@ export class GridPlayer {
     if (!this.playing) return;
     const end = Math.max(...[...this.sources.values()].map((s) => s.buffer.duration));
     if (this.ctx.currentTime - this.start < end - 0.01) return;
-    this.stop();
+    this.halt();
     this.offset = 0;
     if (this.onEnd) this.onEnd();
   }
@@ -103,6 +115,11 @@ export class GridPlayer {
   }
 
   stop() {
+    this.token = null;
+    this.halt();
+  }
+
+  halt() {
     if (this.playing) this.offset = this.position();
     this.playing = false;
     for (const { src, gain } of this.sources.values()) {
