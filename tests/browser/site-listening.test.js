@@ -211,7 +211,7 @@ test('a listening field that names no file, is not a string, or is misspelt is r
   writeFileSync(join(DIR, 'missing.site.json'), JSON.stringify(config));
   r = run(earshotBin(), ['site', join(DIR, 'missing.site.json'), '--out', join(DIR, 'missing-2'), '--allow-root', FIXTURES]);
   assert.equal(r.status, 3);
-  assert.match(r.stderr, /unknown field 'listening_tests' \(allowed: .*, listening\)/);
+  assert.match(r.stderr, /unknown field 'listening_tests' \(allowed: .*, listening, grid\)/);
   assert.equal(existsSync(join(DIR, 'missing-2')), false);
 });
 
