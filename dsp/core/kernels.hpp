@@ -68,10 +68,11 @@ inline void conv_rows(const float* w, const float* b, int o, int in, int K, int 
 template <class A>
 inline void conv_time(const float* w, const float* b, int out, int in, int K, int d, const float* x, size_t xs,
                       float* y, int ys, int n, const float* add = nullptr) {
-  // 4 rows × 2 vectors: 8 sums, 2 input vectors and a broadcast weight (and,
-  // without FMA, the product) fit the 16 vector registers of x86-64 and of
-  // V8's WebAssembly SIMD code.
-  constexpr int OB = 4, TB = 2;
+  // 4 rows × 2 vectors: 8 sums, 2 input vectors, a broadcast weight and the
+  // product fit the 16 vector registers of x86-64 and of V8's WebAssembly SIMD
+  // code. With FMA there is no separate product: 4 × 3 fits and runs faster
+  // (4 × 3, 8 × 1, 2 × 4 and 4 × 4 were slower without FMA; docs/benchmarks.md).
+  constexpr int OB = 4, TB = EARSHOT_FUSED ? 3 : 2;
   int o = 0;
   for (; o + OB <= out; o += OB) conv_rows<A, OB, TB>(w, b, o, in, K, d, x, xs, y, add, ys, n);
   for (; o + 2 <= out; o += 2) conv_rows<A, 2, 2 * TB>(w, b, o, in, K, d, x, xs, y, add, ys, n);
