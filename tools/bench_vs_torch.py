@@ -33,7 +33,9 @@ Usage (from the repository root, after `cmake --build --preset native`):
   /usr/bin/python3 tools/bench_vs_torch.py --wasm          # also tools/wasm-bench.mjs on the same files
 Options: --seconds S (clip length, default 1), --rounds R (default 3),
 --block N (default 128), --earshot PATH (default build/native/earshot),
---out DIR (default build/bench-vs-torch), --json FILE (write the medians).
+--out DIR (default build/bench-vs-torch), --json FILE (write the medians),
+--baseline PATH (an earlier earshot build, timed in the same rounds: columns
+"<variant> before").
 """
 import argparse
 import json
@@ -123,6 +125,7 @@ def main():
     ap.add_argument("--long", action="store_true", help="5 s clips and 5 rounds")
     ap.add_argument("--only", default="", help="comma-separated model names")
     ap.add_argument("--earshot", default=os.path.join(ROOT, "build", "native", "earshot"))
+    ap.add_argument("--baseline", default="", help="a second earshot binary (an earlier build), timed in the same rounds")
     ap.add_argument("--out", default=os.path.join(ROOT, "build", "bench-vs-torch"))
     ap.add_argument("--json", default="")
     ap.add_argument("--wasm", action="store_true", help="also run tools/wasm-bench.mjs on the same files")
@@ -133,6 +136,8 @@ def main():
         sys.exit("bench_vs_torch: --seconds must be 0.1..600, --rounds 1..100, --block 1..65536")
     if not os.path.exists(a.earshot):
         sys.exit(f"bench_vs_torch: {a.earshot} not found (cmake --preset native && cmake --build --preset native)")
+    if a.baseline and not os.access(a.baseline, os.X_OK):
+        sys.exit(f"bench_vs_torch: --baseline {a.baseline} is not an executable")
     torch.set_num_threads(1)
     os.makedirs(a.out, exist_ok=True)
 
@@ -166,11 +171,12 @@ def main():
     shares = {}  # name -> variant -> [earshot's share of the variant's measured multiply-add peak]
     for r in range(rounds):
         for name, (model, recurrent, kw) in made.items():
-            m, rows = earshot_bench(a.earshot, paths[name], seconds, a.block)
-            macs[name] = m
-            for v, row in rows.items():
-                times[name].setdefault(v, []).append(1.0 / row["realtime"])
-                shares.setdefault(name, {}).setdefault(v, []).append(row["share_of_peak"])
+            for exe, suffix in ([(a.baseline, " before")] if a.baseline else []) + [(a.earshot, "")]:
+                m, rows = earshot_bench(exe, paths[name], seconds, a.block)
+                macs[name] = m
+                for v, row in rows.items():
+                    times[name].setdefault(v + suffix, []).append(1.0 / row["realtime"])
+                    shares.setdefault(name, {}).setdefault(v + suffix, []).append(row["share_of_peak"])
             dt, _ = torch_whole(model, x)
             times[name].setdefault("torch whole", []).append(dt / seconds)
             if recurrent:
@@ -179,7 +185,8 @@ def main():
         print(f"round {r + 1}/{rounds} done", file=sys.stderr)
 
     med = {n: {e: statistics.median(v) for e, v in t.items()} for n, t in times.items()}
-    variants = [v for v in ("scalar", "sse4", "avx2", "avx2fma") if any(v in m for m in med.values())]
+    variants = [v + s for v in ("scalar", "sse4", "avx2", "avx2fma") for s in ((" before", "") if a.baseline else ("",))
+                if any(v + s in m for m in med.values())]
 
     engines = variants + ["torch whole", "torch stream"]
 
