@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
 """Writes the synthetic benchmark model set to build/bench-models/ (or DIR):
-LSTM hidden 16/32/64, GRU 32, WaveNet 10 layers x 16 channels kernel 3, and a
+LSTM hidden 16/32/64/96, GRU 32/64/96, WaveNet 10 layers x 16 channels kernel 3, and a
 TCN with FiLM on two controls. Weights are PyTorch's default initialisation
 with a fixed seed: the figures measure speed, not sound.
 
@@ -31,6 +31,10 @@ def main():
         "gru-32": models.recurrent("gru", hidden=32),
         "wavenet-10x16": models.wavenet(channels=16, dilations=(1, 2, 4, 8, 16, 32, 64, 128, 256, 512), kernel=3),
         "tcn-film": models.tcn(CONTROLS, channels=16, kernel=5, dilations=(1, 4, 16, 64)),
+        # Made after the first six so that their weights stay as they were.
+        "lstm-96": models.recurrent("lstm", hidden=96),
+        "gru-64": models.recurrent("gru", hidden=64),
+        "gru-96": models.recurrent("gru", hidden=96),
     }
     for name, model in made.items():
         path = os.path.join(out, name + ".nfx")

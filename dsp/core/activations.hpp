@@ -67,3 +67,24 @@ inline void activate(const ActSpec& p, const float* x, float* y, int n) {
   for (; t + O::W <= n; t += O::W) O::store(y + t, act_v<A>(p, O::load(x + t)));
   for (; t < n; ++t) y[t] = act_v<scalar_arch>(p, S::load(x + t));
 }
+
+// x[0..n) = sigmoid (kSigmoid) or tanh of x[0..n), in place; vector body,
+// scalar tail (same operations).
+template <class A, bool kSigmoid>
+inline void squash_rows(float* x, int n) {
+  using O = Ops<A>;
+  int t = 0;
+  for (; t + O::W <= n; t += O::W) {
+    const auto v = O::load(x + t);
+    O::store(x + t, kSigmoid ? sigmoid_v<A>(v) : tanh_v<A>(v));
+  }
+  for (; t < n; ++t) x[t] = kSigmoid ? sigmoid_v<scalar_arch>(x[t]) : tanh_v<scalar_arch>(x[t]);
+}
+template <class A>
+inline void tanh_rows(float* x, int n) {
+  squash_rows<A, false>(x, n);
+}
+template <class A>
+inline void sigmoid_rows(float* x, int n) {
+  squash_rows<A, true>(x, n);
+}

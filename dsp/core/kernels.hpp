@@ -6,57 +6,77 @@
 // scalar loop with the same operations covers the tail.
 #pragma once
 
-// Causal (dilated) convolution over a chunk, vectorised over time.
-// w: [out][in][K] (PyTorch layout), b: [out] or null. x[i] points at sample 0
-// of input channel i, with at least (K−1)·d valid samples before it.
-// y: out rows, row stride ys; y[o][t] = b[o] + Σ_k Σ_i w[o][i][k]·x[i][t − (K−1−k)·d].
-template <class A>
-inline void conv_time(const float* w, const float* b, int out, int in, int K, int d, const float* const* x,
-                      float* y, int ys, int n) {
-  using O = Ops<A>;
-  using S = Ops<scalar_arch>;
+// Causal (dilated) convolution over a chunk, vectorised over time and
+// register-blocked: each inner step loads TB time vectors of one input channel
+// once and feeds them to OB output rows (one broadcast weight each), so a load
+// serves several multiply-adds. Every output element is still
+//   acc = b[o]; for k in [0, K): for i in [0, in): acc = w[o][i][k]·x[i][t − (K−1−k)·d] + acc
+// (then, with an addend row, acc = addend + acc), the same operations in the
+// same order whatever OB, TB or the vector width: the blocking only interleaves
+// independent sums.
+// w: [out][in][K] (PyTorch layout), b: [out] or null. x: sample 0 of input
+// channel 0; channel i starts at x + i·xs, with at least (K−1)·d valid samples
+// before it. y: out rows, row stride ys; add: null or out rows of stride ys
+// (may be y itself) added after the sum.
+
+// OB output rows × TB time vectors of width Ops<A2>::W, starting at row o, time t.
+template <class A2, int OB, int TB>
+inline void conv_block(const float* w, const float* b, int o, int in, int K, int d, const float* x, size_t xs,
+                       float* y, const float* add, int ys, int t) {
+  using O = Ops<A2>;
   using V = typename O::V;
   constexpr int W = O::W;
-  for (int o = 0; o < out; ++o) {
-    const float* wo = w + size_t(o) * in * K;
-    const float bo = b ? b[o] : 0.0f;
-    float* yo = y + size_t(o) * ys;
-    int t = 0;
-    for (; t + 4 * W <= n; t += 4 * W) {
-      V a0 = O::set1(bo), a1 = a0, a2 = a0, a3 = a0;
-      for (int k = 0; k < K; ++k) {
-        const int off = (K - 1 - k) * d;
-        for (int i = 0; i < in; ++i) {
-          const V wv = O::set1(wo[i * K + k]);
-          const float* p = x[i] + t - off;
-          a0 = O::madd(wv, O::load(p), a0);
-          a1 = O::madd(wv, O::load(p + W), a1);
-          a2 = O::madd(wv, O::load(p + 2 * W), a2);
-          a3 = O::madd(wv, O::load(p + 3 * W), a3);
-        }
+  V acc[OB][TB];
+  for (int r = 0; r < OB; ++r) {
+    const V bv = O::set1(b ? b[o + r] : 0.0f);
+    for (int j = 0; j < TB; ++j) acc[r][j] = bv;
+  }
+  const size_t wr = size_t(in) * K;  // weight row stride
+  const float* wo = w + size_t(o) * wr;
+  for (int k = 0; k < K; ++k) {
+    const float* xk = x + t - (K - 1 - k) * d;
+    for (int i = 0; i < in; ++i) {
+      const float* p = xk + size_t(i) * xs;
+      V xv[TB];
+      for (int j = 0; j < TB; ++j) xv[j] = O::load(p + j * W);
+      const float* wi = wo + size_t(i) * K + k;
+      for (int r = 0; r < OB; ++r) {
+        const V wv = O::set1(wi[size_t(r) * wr]);
+        for (int j = 0; j < TB; ++j) acc[r][j] = O::madd(wv, xv[j], acc[r][j]);
       }
-      O::store(yo + t, a0);
-      O::store(yo + t + W, a1);
-      O::store(yo + t + 2 * W, a2);
-      O::store(yo + t + 3 * W, a3);
-    }
-    for (; t + W <= n; t += W) {
-      V a0 = O::set1(bo);
-      for (int k = 0; k < K; ++k) {
-        const int off = (K - 1 - k) * d;
-        for (int i = 0; i < in; ++i) a0 = O::madd(O::set1(wo[i * K + k]), O::load(x[i] + t - off), a0);
-      }
-      O::store(yo + t, a0);
-    }
-    for (; t < n; ++t) {
-      float a0 = bo;
-      for (int k = 0; k < K; ++k) {
-        const int off = (K - 1 - k) * d;
-        for (int i = 0; i < in; ++i) a0 = S::madd(wo[i * K + k], x[i][t - off], a0);
-      }
-      yo[t] = a0;
     }
   }
+  for (int r = 0; r < OB; ++r) {
+    float* yr = y + size_t(o + r) * ys + t;
+    const float* ar = add ? add + size_t(o + r) * ys + t : nullptr;
+    for (int j = 0; j < TB; ++j) O::store(yr + j * W, ar ? O::add(O::load(ar + j * W), acc[r][j]) : acc[r][j]);
+  }
+}
+
+// Rows [o, o + OB) over the whole chunk: blocks of TB vectors, then single
+// vectors, then single samples.
+template <class A, int OB, int TB>
+inline void conv_rows(const float* w, const float* b, int o, int in, int K, int d, const float* x, size_t xs,
+                      float* y, const float* add, int ys, int n) {
+  constexpr int W = Ops<A>::W;
+  int t = 0;
+  for (; t + TB * W <= n; t += TB * W) conv_block<A, OB, TB>(w, b, o, in, K, d, x, xs, y, add, ys, t);
+  for (; t + W <= n; t += W) conv_block<A, OB, 1>(w, b, o, in, K, d, x, xs, y, add, ys, t);
+  for (; t < n; ++t) conv_block<scalar_arch, OB, 1>(w, b, o, in, K, d, x, xs, y, add, ys, t);
+}
+
+template <class A>
+inline void conv_time(const float* w, const float* b, int out, int in, int K, int d, const float* x, size_t xs,
+                      float* y, int ys, int n, const float* add = nullptr) {
+  // 4 rows × 2 vectors: 8 sums, 2 input vectors, a broadcast weight and the
+  // product fit the 16 vector registers of x86-64 and of V8's WebAssembly SIMD
+  // code. With FMA there is no separate product: 4 × 3 fits and runs faster
+  // (4 × 3, 8 × 1, 2 × 4 and 4 × 4 were slower without FMA; docs/benchmarks.md).
+  constexpr int OB = 4, TB = EARSHOT_FUSED ? 3 : 2;
+  int o = 0;
+  for (; o + OB <= out; o += OB) conv_rows<A, OB, TB>(w, b, o, in, K, d, x, xs, y, add, ys, n);
+  for (; o + 2 <= out; o += 2) conv_rows<A, 2, 2 * TB>(w, b, o, in, K, d, x, xs, y, add, ys, n);
+  for (; o < out; ++o) conv_rows<A, 1, 4>(w, b, o, in, K, d, x, xs, y, add, ys, n);
 }
 
 // Rows [r, r + R·W) of gemv_cols: R vectors held in registers across the
@@ -192,15 +212,16 @@ struct ConvUnit {
     if (K > 1) hist.init(in, (K - 1) * d);
     ptr.resize(size_t(in));
   }
-  // x: in rows of stride kChunk; y: out rows of stride kChunk.
-  void run(const float* x, float* y, int n) {
+  // x: in rows of stride kChunk; y: out rows of stride kChunk. add: null, or
+  // out rows of stride kChunk added to the result (may be y: y += conv(x)).
+  void run(const float* x, float* y, int n, const float* add = nullptr) {
     if (K > 1) {
       hist.template push<A>(x, n, ptr.data());
+      conv_time<A>(w, b, out, in, K, d, ptr[0], size_t(hist.cap), y, kChunk, n, add);
+      hist.advance(n);
     } else {
-      for (int i = 0; i < in; ++i) ptr[size_t(i)] = x + size_t(i) * kChunk;
+      conv_time<A>(w, b, out, in, K, d, x, size_t(kChunk), y, kChunk, n, add);
     }
-    conv_time<A>(w, b, out, in, K, d, ptr.data(), y, kChunk, n);
-    if (K > 1) hist.advance(n);
   }
   void reset() {
     if (K > 1) hist.reset();

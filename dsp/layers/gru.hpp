@@ -56,22 +56,31 @@ struct GruLayer : Layer {
       for (auto& L : levels) {
         gemv_cols<A>(L.wih_t.data(), 3 * H, cur, L.in, L.bih.data(), gi.data());
         gemv_cols<A>(L.whh_t.data(), 3 * H, L.h.data(), H, L.bhh.data(), gh.data());
+        // Passes with the same operations as one loop: reset and update gates
+        // over the whole 2H vector, the candidate's argument, its tanh, then
+        // the state (independent values per pass, so the activations' chains
+        // of many vectors overlap).
         float* h = L.h.data();
+        float* a = gi.data();  // [0, 2H): r then update; [2H, 3H): candidate
+        const float* b = gh.data();
         int j = 0;
+        for (; j + W <= 2 * H; j += W) O::store(a + j, O::add(O::load(a + j), O::load(b + j)));
+        for (; j < 2 * H; ++j) a[j] = a[j] + b[j];
+        sigmoid_rows<A>(a, 2 * H);
+        float* cand = a + 2 * H;
+        for (j = 0; j + W <= H; j += W)
+          O::store(cand + j, O::madd(O::load(a + j), O::load(b + 2 * H + j), O::load(cand + j)));
+        for (; j < H; ++j) cand[j] = S::madd(a[j], b[2 * H + j], cand[j]);
+        tanh_rows<A>(cand, H);
+        const float* update = a + H;
         const auto one = O::set1(1.0f);
-        for (; j + W <= H; j += W) {
-          const auto r = sigmoid_v<A>(O::add(O::load(&gi[size_t(j)]), O::load(&gh[size_t(j)])));
-          const auto update = sigmoid_v<A>(O::add(O::load(&gi[size_t(H + j)]), O::load(&gh[size_t(H + j)])));
-          const auto candidate = tanh_v<A>(O::madd(r, O::load(&gh[size_t(2 * H + j)]), O::load(&gi[size_t(2 * H + j)])));
-          const auto hv = O::add(O::mul(O::sub(one, update), candidate), O::mul(update, O::load(h + j)));
+        for (j = 0; j + W <= H; j += W) {
+          const auto u = O::load(update + j);
+          const auto hv = O::add(O::mul(O::sub(one, u), O::load(cand + j)), O::mul(u, O::load(h + j)));
           O::store(h + j, flush_tiny<A>(hv));
         }
-        for (; j < H; ++j) {
-          const float r = sigmoid_v<scalar_arch>(gi[size_t(j)] + gh[size_t(j)]);
-          const float update = sigmoid_v<scalar_arch>(gi[size_t(H + j)] + gh[size_t(H + j)]);
-          const float candidate = tanh_v<scalar_arch>(S::madd(r, gh[size_t(2 * H + j)], gi[size_t(2 * H + j)]));
-          h[j] = flush_tiny<scalar_arch>((1.0f - update) * candidate + update * h[j]);
-        }
+        for (; j < H; ++j)
+          h[j] = flush_tiny<scalar_arch>((1.0f - update[j]) * cand[j] + update[j] * h[j]);
         cur = h;
       }
       for (int j = 0; j < H; ++j) y[size_t(j) * kChunk + t] = cur[j];

@@ -58,22 +58,28 @@ struct LstmLayer : Layer {
       for (auto& L : levels) {
         gemv_cols<A>(L.wih_t.data(), 4 * H, cur, L.in, L.bias.data(), z.data());
         gemv_cols<A>(L.whh_t.data(), 4 * H, L.h.data(), H, z.data(), z.data());
-        const float* zi = z.data();
-        const float* zf = zi + H;
-        const float* zg = zf + H;
-        const float* zo = zg + H;
+        // Two passes with the same operations as one: first every gate's
+        // activation over the whole 4H vector (independent values, so the
+        // polynomial chains of many vectors overlap), then the state update.
+        float* zi = z.data();
+        float* zf = zi + H;
+        float* zg = zf + H;
+        float* zo = zg + H;
+        sigmoid_rows<A>(zi, 2 * H);
+        tanh_rows<A>(zg, H);
+        sigmoid_rows<A>(zo, H);
         int j = 0;
         for (; j + W <= H; j += W) {
-          const auto ig = O::mul(sigmoid_v<A>(O::load(zi + j)), tanh_v<A>(O::load(zg + j)));
-          const auto c = flush_tiny<A>(O::madd(sigmoid_v<A>(O::load(zf + j)), O::load(L.c.data() + j), ig));
+          const auto ig = O::mul(O::load(zi + j), O::load(zg + j));
+          const auto c = flush_tiny<A>(O::madd(O::load(zf + j), O::load(L.c.data() + j), ig));
           O::store(L.c.data() + j, c);
-          O::store(L.h.data() + j, flush_tiny<A>(O::mul(sigmoid_v<A>(O::load(zo + j)), tanh_v<A>(c))));
+          O::store(L.h.data() + j, flush_tiny<A>(O::mul(O::load(zo + j), tanh_v<A>(c))));
         }
         for (; j < H; ++j) {
-          const float ig = S::mul(sigmoid_v<scalar_arch>(zi[j]), tanh_v<scalar_arch>(zg[j]));
-          const float c = flush_tiny<scalar_arch>(S::madd(sigmoid_v<scalar_arch>(zf[j]), L.c[size_t(j)], ig));
+          const float ig = S::mul(zi[j], zg[j]);
+          const float c = flush_tiny<scalar_arch>(S::madd(zf[j], L.c[size_t(j)], ig));
           L.c[size_t(j)] = c;
-          L.h[size_t(j)] = flush_tiny<scalar_arch>(S::mul(sigmoid_v<scalar_arch>(zo[j]), tanh_v<scalar_arch>(c)));
+          L.h[size_t(j)] = flush_tiny<scalar_arch>(S::mul(zo[j], tanh_v<scalar_arch>(c)));
         }
         cur = L.h.data();
       }
