@@ -8,9 +8,10 @@ bash tools/setup.sh test || exit 1
 export NODE_PATH=/usr/share/nodejs
 failed=()
 step() {  # step NAME COMMAND...
-  echo "== $1"
+  local name=$1
+  echo "== $name"
   shift
-  "$@" || failed+=("$1")
+  "$@" || failed+=("$name")
 }
 jobs=2
 
