@@ -49,11 +49,11 @@ const STEREO_REF = join(WORK, 'grid-test', 'extra', 'stereo-48k-reference.wav');
 
 before(async () => {
   mkdirSync(join(WORK, 'grid-test', 'extra'), { recursive: true });
-  // A stereo clip (two different sines, 0.8 s, 16-bit) and, as its
+  // A stereo clip (two different sines, 6 s (long enough that a row still plays while a loaded machine runs the switching test), 16-bit) and, as its
   // "reference", its render through the LSTM fixture: same rate and channels.
   mustRun(PYTHON, ['-c', `
 import numpy as np, scipy.io.wavfile as w, sys
-t = np.arange(38400) / 48000.0
+t = np.arange(288000) / 48000.0
 x = np.stack([0.4 * np.sin(2 * np.pi * 220 * t), 0.3 * np.sin(2 * np.pi * 331 * t + 1)], axis=1)
 w.write(sys.argv[1], 48000, np.round(x * 32767).astype(np.int16))
 `, STEREO]);

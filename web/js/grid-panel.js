@@ -211,7 +211,12 @@ export class GridPanel {
       const from = p.row === cell.row ? p.offset : 0;
       const ready = new Map();
       for (const c of this.cells[cell.row]) if (c.state === 'ready') ready.set(c.column, c.buffer);
-      p.play(cell.row, cell.column, ready, from).then(() => this.refreshAll());
+      p.play(cell.row, cell.column, ready, from).then((started) => {
+        if (!started) return;
+        // Cells that became ready while the output was being made ready join the timeline.
+        for (const c of this.cells[cell.row]) if (c.state === 'ready') p.join(c.column, c.buffer);
+        this.applyMatch();
+      });
       this.applyMatch();
     }
     if (this.clicked && this.clicked.cell === cell) {
