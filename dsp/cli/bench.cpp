@@ -24,7 +24,8 @@ namespace cli {
 namespace {
 
 const char* kHelp =
-    "usage: earshot bench FILE [--seconds S] [--block N] [--variant V] [--rounds R] [--json]\n"
+    "usage: earshot bench FILE [--seconds S] [--block N] [--variant V] [--rounds R]\n"
+    "                          [--channels C] [--json]\n"
     "\n"
     "Measures, for every native variant this CPU runs (or the one given), on one\n"
     "thread, at the model's sample rate, with the controls at their defaults:\n"
@@ -35,12 +36,16 @@ const char* kHelp =
     "  share          achieved / peak\n"
     "The input is the standard test signal (see 'earshot verify --help'). Each round\n"
     "runs every variant once, then every peak kernel; the table shows medians.\n"
+    "With --channels C (2 .. 8), each round also runs a stream of C channels in\n"
+    "lockstep (each channel a shifted copy of the signal) right after the mono one,\n"
+    "and the table adds its real time per channel and its ratio to mono.\n"
     "\n"
     "options:\n"
     "  --seconds S   seconds of test signal per variant per round, 0.1 .. 600 (default 3)\n"
     "  --block N     samples per earshot_process call, 1 .. 65536 (default 512)\n"
     "  --variant V   only this variant: scalar, sse4, avx2, avx2fma\n"
     "  --rounds R    rounds, 1 .. 100 (default 3)\n"
+    "  --channels C  also measure a C-channel stream, 2 .. 8\n"
     "  --json        print the figures as JSON\n"
     MAX_STREAM_HELP
     "  -h, --help    this text\n";
@@ -54,7 +59,7 @@ double median(std::vector<double> v) {
 struct BenchOptions {
   std::string path;
   double seconds = 3.0;
-  int block = 512, rounds = 3;
+  int block = 512, rounds = 3, channels = 1;
   std::vector<std::string> variants;  // --variant, else every variant this CPU runs
   bool json = false;
 };
@@ -68,6 +73,8 @@ BenchOptions parse_bench(const Args& a) {
   if (a.has("--seconds")) o.seconds = parse_number("--seconds", *a.last("--seconds"), 0.1, 600);
   if (a.has("--block")) o.block = int(parse_integer("--block", *a.last("--block"), 1, EARSHOT_MAX_BLOCK));
   if (a.has("--rounds")) o.rounds = int(parse_integer("--rounds", *a.last("--rounds"), 1, 100));
+  if (a.has("--channels"))
+    o.channels = int(parse_integer("--channels", *a.last("--channels"), 2, EARSHOT_MAX_CHANNELS));
   if (const std::string* v = a.last("--variant")) {
     check_variant(*v);
     o.variants.push_back(*v);
@@ -82,6 +89,7 @@ BenchOptions parse_bench(const Args& a) {
 struct BenchRow {
   std::string name;
   double rtf, madds, peak, share;
+  double channel_rtf = 0;  // --channels: real time per channel of the C-channel stream
 };
 
 struct BenchResult {
@@ -97,8 +105,11 @@ BenchResult measure(const BenchOptions& o, const std::vector<unsigned char>& byt
     Stream probe(bytes, 48000, o.variants[0], o.path);
     R.model_rate = json_number(probe.info(), "model_rate", 48000);
   }
-  std::vector<std::unique_ptr<Stream>> streams;
-  for (const std::string& v : o.variants) streams.emplace_back(new Stream(bytes, R.model_rate, v, o.path));
+  std::vector<std::unique_ptr<Stream>> streams, multi;
+  for (const std::string& v : o.variants) {
+    streams.emplace_back(new Stream(bytes, R.model_rate, v, o.path));
+    if (o.channels > 1) multi.emplace_back(new Stream(bytes, R.model_rate, v, o.path, o.channels));
+  }
   const rapidjson::Document info = streams[0]->info();
   R.macs = int64_t(json_number(info, "macs_per_sample"));
   R.title = json_string(info, "title");
@@ -106,16 +117,24 @@ BenchResult measure(const BenchOptions& o, const std::vector<unsigned char>& byt
   const std::vector<float> x = test_signal(R.model_rate, o.seconds);
   std::vector<float> y(x.size());
   R.audio_s = double(x.size()) / R.model_rate;
+  // The C-channel input: channel c is the signal rotated by c·1009 samples.
+  std::vector<std::vector<float>> xc(size_t(o.channels), x), yc(size_t(o.channels), y);
+  for (size_t c = 1; c < xc.size(); ++c)
+    std::rotate(xc[c].begin(), xc[c].begin() + long((c * 1009) % x.size()), xc[c].end());
 
   // Warm-up: caches, page faults, CPU clock ramp.
   for (auto& s : streams) {
     s->process(x.data(), y.data(), std::min<size_t>(x.size(), size_t(R.model_rate / 10)), o.block);
     earshot_reset(s->get());
   }
+  for (auto& s : multi) {
+    s->process_channels(xc, yc, std::min<size_t>(x.size(), size_t(R.model_rate / 10)), o.block);
+    earshot_reset(s->get());
+  }
   measure_peak_madd_rate(o.variants[0], 0.1);
 
   const size_t nv = o.variants.size();
-  std::vector<std::vector<double>> rtf(nv), peak(nv);
+  std::vector<std::vector<double>> rtf(nv), peak(nv), crtf(nv);
   for (int r = 0; r < o.rounds; ++r) {
     for (size_t i = 0; i < nv; ++i) {
       earshot_reset(streams[i]->get());
@@ -123,11 +142,19 @@ BenchResult measure(const BenchOptions& o, const std::vector<unsigned char>& byt
       streams[i]->process(x.data(), y.data(), x.size(), o.block);
       const double dt = thread_seconds() - t0;
       rtf[i].push_back(R.audio_s / std::max(dt, 1e-9));
+      if (o.channels > 1) {
+        earshot_reset(multi[i]->get());
+        const double t1 = thread_seconds();
+        multi[i]->process_channels(xc, yc, x.size(), o.block);
+        const double dt1 = thread_seconds() - t1;
+        crtf[i].push_back(o.channels * R.audio_s / std::max(dt1, 1e-9));
+      }
     }
     for (size_t i = 0; i < nv; ++i) peak[i].push_back(measure_peak_madd_rate(o.variants[i], 0.25));
   }
   for (size_t i = 0; i < nv; ++i) {
     BenchRow w{o.variants[i], median(rtf[i]), 0, median(peak[i]), 0};
+    if (o.channels > 1) w.channel_rtf = median(crtf[i]);
     w.madds = double(R.macs) * R.model_rate * w.rtf;
     w.share = w.peak > 0 ? w.madds / w.peak : 0;
     R.rows.push_back(w);
@@ -169,6 +196,14 @@ void print_json(const BenchOptions& o, const BenchResult& R) {
     w.Double(r.peak);
     w.Key("share_of_peak");
     w.Double(r.share);
+    if (o.channels > 1) {
+      w.Key("channels");
+      w.Int(o.channels);
+      w.Key("realtime_per_channel");
+      w.Double(r.channel_rtf);
+      w.Key("per_channel_vs_mono");
+      w.Double(r.channel_rtf / r.rtf);
+    }
     w.EndObject();
   }
   w.EndArray();
@@ -182,10 +217,15 @@ void print_text(const BenchOptions& o, const BenchResult& R) {
   std::printf("model rate %.0f Hz, %s multiply-adds per sample, block %d, %.2f s of test signal,\n"
               "one thread, median of %d interleaved round%s\n\n",
               R.model_rate, format_count(R.macs).c_str(), o.block, R.audio_s, o.rounds, o.rounds == 1 ? "" : "s");
-  std::printf("%-9s %12s %14s %16s %8s\n", "variant", "real time", "Gmadd/s", "peak Gmadd/s", "share");
-  for (const BenchRow& w : R.rows)
-    std::printf("%-9s %11.1fx %14.3f %16.3f %7.1f%%\n", w.name.c_str(), w.rtf, w.madds / 1e9, w.peak / 1e9,
+  std::printf("%-9s %12s %14s %16s %8s", "variant", "real time", "Gmadd/s", "peak Gmadd/s", "share");
+  if (o.channels > 1) std::printf(" %14s %9s", (std::to_string(o.channels) + "ch per ch").c_str(), "vs mono");
+  std::printf("\n");
+  for (const BenchRow& w : R.rows) {
+    std::printf("%-9s %11.1fx %14.3f %16.3f %7.1f%%", w.name.c_str(), w.rtf, w.madds / 1e9, w.peak / 1e9,
                 100 * w.share);
+    if (o.channels > 1) std::printf(" %13.1fx %8.2fx", w.channel_rtf, w.channel_rtf / w.rtf);
+    std::printf("\n");
+  }
 }
 
 }  // namespace
@@ -196,6 +236,7 @@ int cmd_bench(const std::vector<std::string>& argv) {
                                    {"--block", true},
                                    {"--variant", true},
                                    {"--rounds", true},
+                                   {"--channels", true},
                                    {"--json", false}});
   apply_stream_limit(a);
   if (a.has("--help")) {

@@ -113,15 +113,16 @@ std::vector<std::string> supported_variants();
 void apply_stream_limit(const Args& a);
 size_t stream_limit_bytes();
 #define MAX_STREAM_HELP                                                           \
-  "  --max-stream-mib N    memory one stream may use, in MiB (default 64; a file\n" \
+  "  --max-stream-mib N    memory a stream may use per channel, in MiB (default 64; a file\n" \
   "                        needing more is refused, naming the layer)\n"
 
 // Owns one earshot_stream.
 class Stream {
  public:
-  // InputError "<path>: <core message>" on failure.
+  // InputError "<path>: <core message>" on failure. `channels` run in
+  // lockstep (earshot_create_channels); the --max-stream-mib limit holds per channel.
   Stream(const std::vector<unsigned char>& bytes, double host_rate, const std::string& variant,
-         const std::string& path);
+         const std::string& path, int channels = 1);
   ~Stream() { earshot_destroy(s_); }
   Stream(const Stream&) = delete;
   Stream& operator=(const Stream&) = delete;
@@ -130,6 +131,9 @@ class Stream {
   int latency() const { return earshot_latency(s_); }
   // Processes any number of samples in blocks of at most `block`.
   void process(const float* in, float* out, size_t n, int block);
+  // The same for every channel: in[c][0..n) to out[c][0..n).
+  void process_channels(const std::vector<std::vector<float>>& in, std::vector<std::vector<float>>& out, size_t n,
+                        int block);
   rapidjson::Document info() const;
 
  private:

@@ -196,9 +196,10 @@ void apply_stream_limit(const Args& a) {
 }
 
 Stream::Stream(const std::vector<unsigned char>& bytes, double host_rate, const std::string& variant,
-               const std::string& path) {
+               const std::string& path, int channels) {
   char err[1024] = {0};
-  s_ = earshot_create_bounded(bytes.data(), bytes.size(), host_rate, variant.c_str(), stream_limit, err, sizeof err);
+  s_ = earshot_create_channels(bytes.data(), bytes.size(), host_rate, variant.c_str(), channels,
+                               stream_limit * size_t(channels), err, sizeof err);
   if (!s_) throw InputError(path + ": " + err);
 }
 
@@ -207,6 +208,25 @@ void Stream::process(const float* in, float* out, size_t n, int block) {
     const int k = int(std::min<size_t>(size_t(block), n - off));
     if (earshot_process(s_, in + off, out + off, k) != k)
       throw std::runtime_error("earshot_process refused a block of " + std::to_string(k) + " samples");
+  }
+}
+
+void Stream::process_channels(const std::vector<std::vector<float>>& in, std::vector<std::vector<float>>& out,
+                              size_t n, int block) {
+  const int C = earshot_channels(s_);
+  if (C < 1 || C > EARSHOT_MAX_CHANNELS || int(in.size()) != C || int(out.size()) != C)
+    throw std::runtime_error("process_channels: " + std::to_string(in.size()) + " inputs for a stream of " +
+                             std::to_string(C) + " channels");
+  const float* ip[EARSHOT_MAX_CHANNELS];
+  float* op[EARSHOT_MAX_CHANNELS];
+  for (size_t off = 0; off < n; off += size_t(block)) {
+    const int k = int(std::min<size_t>(size_t(block), n - off));
+    for (int c = 0; c < C; ++c) {
+      ip[c] = in[size_t(c)].data() + off;
+      op[c] = out[size_t(c)].data() + off;
+    }
+    if (earshot_process_channels(s_, ip, op, k) != k)
+      throw std::runtime_error("earshot_process_channels refused a block of " + std::to_string(k) + " frames");
   }
 }
 

@@ -1,7 +1,8 @@
 // `earshot render FILE IN OUT`: an audio file through an effect, streamed
-// block by block through libsndfile. One stream per channel (stereo = two
-// independent mono streams with the same settings), created at the file's
-// rate; the core resamples to the model rate and back.
+// block by block through libsndfile. One stream of the file's channels
+// (stereo runs left and right in lockstep, each channel bit-identical to a
+// mono stream with the same settings), created at the file's rate; the core
+// resamples to the model rate and back.
 #include <sndfile.h>
 #include <sys/stat.h>
 #include <unistd.h>
@@ -28,8 +29,9 @@ const char* kHelp =
     "Runs the audio file IN through the effect FILE and writes OUT.\n"
     "IN may be WAV, FLAC, AIFF (anything libsndfile reads) at any sample rate; the\n"
     "stream runs at IN's rate and the core resamples to the model's rate and back.\n"
-    "Mono or stereo: a stereo file runs as two independent streams, left and right,\n"
-    "with the same controls, mix and gains. More than 2 channels is an error.\n"
+    "Mono or stereo: a stereo file runs left and right together with the same\n"
+    "controls, mix and gains; each channel comes out exactly as a mono file of that\n"
+    "channel would. More than 2 channels is an error.\n"
     "\n"
     "OUT has IN's sample rate. Its container follows OUT's extension (.wav, .flac,\n"
     ".aif/.aiff), or IN's container when OUT has no extension. Sample format:\n"
@@ -197,32 +199,29 @@ RenderOptions parse_render(const Args& a) {
 
 // ---- set up: input, streams, output format ----------------------------------------
 
-// One stream per channel with the settings applied, then reset: the render
-// starts at the settings, unramped. Mix and gains are checked by the core; the
-// error names the option at fault.
-std::vector<std::unique_ptr<Stream>> make_streams(const RenderOptions& o, const std::vector<unsigned char>& bytes,
-                                                  int rate, int channels) {
-  std::vector<std::unique_ptr<Stream>> streams;
-  for (int c = 0; c < channels; ++c) {
-    streams.emplace_back(new Stream(bytes, rate, o.variant, o.fx_path));
-    Stream& s = *streams.back();
-    apply_controls(s, o.controls);
-    if (o.mix) {
-      const int st = earshot_set_mix(s.get(), float(o.mix_value));
-      if (st != EARSHOT_OK) throw UsageError("--mix " + *o.mix + ": " + earshot_status_text(st) + " (0 .. 1)");
-    }
-    if (o.input_gain || o.output_gain) {
-      // Checked one at a time so the error names the option at fault.
-      int st = earshot_set_gain(s.get(), float(o.in_db), 0.0f);
-      if (st != EARSHOT_OK)
-        throw UsageError("--input-gain " + *o.input_gain + ": " + earshot_status_text(st) + " (-60 .. 24 dB)");
-      st = earshot_set_gain(s.get(), float(o.in_db), float(o.out_db));
-      if (st != EARSHOT_OK)
-        throw UsageError("--output-gain " + *o.output_gain + ": " + earshot_status_text(st) + " (-60 .. 24 dB)");
-    }
-    earshot_reset(s.get());
+// One stream of `channels` channels with the settings applied, then reset:
+// the render starts at the settings, unramped. Mix and gains are checked by
+// the core; the error names the option at fault.
+std::unique_ptr<Stream> make_stream(const RenderOptions& o, const std::vector<unsigned char>& bytes, int rate,
+                                    int channels) {
+  std::unique_ptr<Stream> stream(new Stream(bytes, rate, o.variant, o.fx_path, channels));
+  Stream& s = *stream;
+  apply_controls(s, o.controls);
+  if (o.mix) {
+    const int st = earshot_set_mix(s.get(), float(o.mix_value));
+    if (st != EARSHOT_OK) throw UsageError("--mix " + *o.mix + ": " + earshot_status_text(st) + " (0 .. 1)");
   }
-  return streams;
+  if (o.input_gain || o.output_gain) {
+    // Checked one at a time so the error names the option at fault.
+    int st = earshot_set_gain(s.get(), float(o.in_db), 0.0f);
+    if (st != EARSHOT_OK)
+      throw UsageError("--input-gain " + *o.input_gain + ": " + earshot_status_text(st) + " (-60 .. 24 dB)");
+    st = earshot_set_gain(s.get(), float(o.in_db), float(o.out_db));
+    if (st != EARSHOT_OK)
+      throw UsageError("--output-gain " + *o.output_gain + ": " + earshot_status_text(st) + " (-60 .. 24 dB)");
+  }
+  earshot_reset(s.get());
+  return stream;
 }
 
 struct OutputFormat {
@@ -252,16 +251,15 @@ OutputFormat output_format(const RenderOptions& o, int in_format, int rate, int 
 
 // ---- compute: blocks through the streams, the latency trimmed -----------------------
 
-// Runs blocks of interleaved frames through one stream per channel and writes
+// Runs blocks of interleaved frames through the stream's channels and writes
 // what lies past the first `skip` output frames (the latency) to `out`.
 class TrimmedRender {
  public:
-  TrimmedRender(std::vector<std::unique_ptr<Stream>>& streams, int block, int64_t skip, SNDFILE* out,
-                const std::string& out_path, Progress& bar)
-      : streams_(streams), channels_(int(streams.size())), to_skip_(skip), out_(out), out_path_(out_path), bar_(bar),
-        outer_(size_t(block) * streams.size()),
-        chan_(streams.size(), std::vector<float>(size_t(block), 0.0f)),
-        res_(streams.size(), std::vector<float>(size_t(block), 0.0f)) {}
+  TrimmedRender(Stream& stream, int block, int64_t skip, SNDFILE* out, const std::string& out_path, Progress& bar)
+      : stream_(stream), channels_(earshot_channels(stream.get())), to_skip_(skip), out_(out), out_path_(out_path),
+        bar_(bar), outer_(size_t(block) * size_t(channels_)),
+        chan_(size_t(channels_), std::vector<float>(size_t(block), 0.0f)),
+        res_(size_t(channels_), std::vector<float>(size_t(block), 0.0f)) {}
 
   // k interleaved frames (k <= block).
   void interleaved(const float* frames, int k) {
@@ -280,9 +278,14 @@ class TrimmedRender {
 
  private:
   void run(int k) {
-    for (int c = 0; c < channels_; ++c)
-      if (earshot_process(streams_[size_t(c)]->get(), chan_[size_t(c)].data(), res_[size_t(c)].data(), k) != k)
-        throw std::runtime_error("earshot_process refused a block of " + std::to_string(k) + " samples");
+    const float* in[EARSHOT_MAX_CHANNELS];
+    float* res[EARSHOT_MAX_CHANNELS];
+    for (int c = 0; c < channels_; ++c) {
+      in[c] = chan_[size_t(c)].data();
+      res[c] = res_[size_t(c)].data();
+    }
+    if (earshot_process_channels(stream_.get(), in, res, k) != k)
+      throw std::runtime_error("earshot_process_channels refused a block of " + std::to_string(k) + " frames");
     const int skip = int(std::min<int64_t>(to_skip_, k));
     to_skip_ -= skip;
     const int m = k - skip;
@@ -301,7 +304,7 @@ class TrimmedRender {
     bar_.update(done);
   }
 
-  std::vector<std::unique_ptr<Stream>>& streams_;
+  Stream& stream_;
   int channels_;
   int64_t to_skip_;
   SNDFILE* out_;
@@ -343,13 +346,12 @@ void render_all(SNDFILE* in, const std::string& in_path, int channels, int block
 // ---- print ------------------------------------------------------------------------
 
 void print_render(const RenderOptions& o, const TrimmedRender& r, const OutputFormat& f, int rate, int channels,
-                  int latency, const std::vector<std::unique_ptr<Stream>>& streams) {
-  unsigned nonfinite = 0;
-  for (const auto& s : streams) nonfinite += earshot_nonfinite_count(s->get());
+                  int latency, const Stream& stream) {
+  const unsigned nonfinite = earshot_nonfinite_count(stream.get());
   if (nonfinite > 0)
     std::fprintf(stderr,
                  "earshot render: warning: %u block(s) produced a non-finite value; each was replaced by silence "
-                 "and the stream state was reset\n",
+                 "(in every channel) and the stream state was reset\n",
                  nonfinite);
   if (r.clipped > 0 && f.sub != SF_FORMAT_FLOAT)
     std::fprintf(stderr, "earshot render: warning: %lld sample(s) above full scale were clipped in %s output\n",
@@ -359,7 +361,7 @@ void print_render(const RenderOptions& o, const TrimmedRender& r, const OutputFo
   std::printf("wrote %s: %lld frames (%s s), %s, %d Hz, %s %s; variant %s; latency %d samples %s; peak %s\n",
               o.out_path.c_str(), (long long)r.written, format_fixed(double(r.written) / rate, 3).c_str(),
               channels == 1 ? "mono" : "stereo", rate, container_name(f.major), encoding_name(f.sub),
-              earshot_variant(streams[0]->get()), latency,
+              earshot_variant(stream.get()), latency,
               latency == 0 ? "(none)" : o.keep_latency ? "(kept)" : "(trimmed)", peak_text.c_str());
 }
 
@@ -402,8 +404,8 @@ int cmd_render(const std::vector<std::string>& argv) {
   // libsndfile shortens a WAV whose data runs past the end of the file: refused, never a shorter output.
   if (in_info.seekable) check_declared_length(o.in_path, in_info.format, channels, int64_t(in_info.frames));
 
-  std::vector<std::unique_ptr<Stream>> streams = make_streams(o, bytes, rate, channels);
-  const int latency = streams[0]->latency();
+  const std::unique_ptr<Stream> stream = make_stream(o, bytes, rate, channels);
+  const int latency = stream->latency();
   SF_INFO out_info;
   const OutputFormat format = output_format(o, in_info.format, rate, channels, out_info);
   // Written to a temporary file beside OUT and renamed over it only after the whole run succeeded
@@ -416,11 +418,11 @@ int cmd_render(const std::vector<std::string>& argv) {
   const bool seekable = in_info.seekable != 0 && in_frames >= 0;
   const bool want_bar = !o.no_progress && (o.progress || (isatty(2) && seekable && in_frames > int64_t(10) * rate));
   Progress bar(want_bar, seekable ? in_frames + latency : 0);
-  TrimmedRender r(streams, o.block, o.keep_latency ? 0 : latency, out, o.out_path, bar);
+  TrimmedRender r(*stream, o.block, o.keep_latency ? 0 : latency, out, o.out_path, bar);
   render_all(in.get(), o.in_path, channels, o.block, seekable, in_frames, latency, r, bar);
   bar.finish();
   out_file.commit();
-  print_render(o, r, format, rate, channels, latency, streams);
+  print_render(o, r, format, rate, channels, latency, *stream);
   return kExitOk;
 }
 

@@ -8,19 +8,20 @@ namespace earshot {
 
 #define EARSHOT_DECLARE(ns)                                      \
   namespace ns {                                                 \
-  std::unique_ptr<Runner> make(std::shared_ptr<const Model> m);  \
+  std::unique_ptr<Runner> make(std::shared_ptr<const Model> m, int lanes); \
   double peak_madd_rate(double seconds);                         \
   }
 
 #ifdef __EMSCRIPTEN__
 EARSHOT_DECLARE(v_wasm)
 std::string default_variant() { return EARSHOT_WASM_VARIANT; }
-std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> m, const std::string& v, std::string& error) {
+std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> m, const std::string& v, int lanes,
+                                    std::string& error) {
   if (!v.empty() && v != EARSHOT_WASM_VARIANT) {
     error = "variant '" + v + "' is not in this build (it is the '" EARSHOT_WASM_VARIANT "' build)";
     return nullptr;
   }
-  return v_wasm::make(std::move(m));
+  return v_wasm::make(std::move(m), lanes);
 }
 #else
 EARSHOT_DECLARE(v_scalar)
@@ -31,7 +32,7 @@ EARSHOT_DECLARE(v_avx2fma)
 namespace {
 struct Entry {
   const char* name;
-  std::unique_ptr<Runner> (*make)(std::shared_ptr<const Model>);
+  std::unique_ptr<Runner> (*make)(std::shared_ptr<const Model>, int);
   double (*peak)(double);
 };
 const Entry kVariants[] = {
@@ -80,7 +81,8 @@ double measure_peak_madd_rate(const std::string& n, double seconds) {
   return e->peak(seconds);
 }
 
-std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> m, const std::string& v, std::string& error) {
+std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> m, const std::string& v, int lanes,
+                                    std::string& error) {
   const std::string name = v.empty() ? best_variant() : v;
   const Entry* e = find(name);
   if (!e) {
@@ -91,7 +93,7 @@ std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> m, const std::s
     error = "variant '" + name + "' needs instructions this CPU does not have";
     return nullptr;
   }
-  return e->make(std::move(m));
+  return e->make(std::move(m), lanes);
 }
 #endif
 

@@ -157,78 +157,111 @@ struct RoundTrip {
 
 using namespace earshot;
 
-struct earshot_stream {
-  std::shared_ptr<const Model> model;
-  std::unique_ptr<Runner> runner;
-  int host_rate = 48000;
-  bool resampling = false;
+// One channel's signal path (a lane of the runner).
+struct Channel {
   RoundTrip wet_trip;  // host → model (into the runner), runner output → host
   RoundTrip dry_trip;  // the dry signal takes the same round trip, so dry and wet line up exactly
+  std::vector<float> x, dry, model_in, model_out, wet;
+};
+
+struct earshot_stream {
+  std::shared_ptr<const Model> model;
+  std::unique_ptr<Runner> runner;  // one lane per channel, in lockstep
+  int host_rate = 48000;
+  bool resampling = false;
+  std::vector<Channel> chans;
 
   std::vector<Ramp> controls;
   std::vector<float> ctl;  // [n_controls][kChunk]
   Ramp mix, gain_in, gain_out;
+  std::vector<float> gin, wmix, gout;  // the shared ramps' values over one sub-block, [kSub]
   int latency = 0;
 
-  std::vector<float> x, dry, model_in, model_out, wet;
   unsigned nonfinite = 0;
   size_t bytes = 0;  // the bound of stream_bytes(), checked against the limit at create
   std::string info;
 
+  int channels() const { return int(chans.size()); }
+
   void reset_state() {
     runner->reset();
-    if (resampling) {
-      wet_trip.reset();
-      dry_trip.reset();
-    }
+    if (resampling)
+      for (auto& c : chans) {
+        c.wet_trip.reset();
+        c.dry_trip.reset();
+      }
     for (auto& r : controls) r.jump();
     mix.jump();
     gain_in.jump();
     gain_out.jump();
   }
 
+  // The runner over m model-rate samples of every channel's model_in.
   void run_model(int m, bool& bad) {
     const int nctl = int(controls.size());
+    const int nch = channels();
+    const float* in[kMaxLanes];
+    float* out[kMaxLanes];
     for (int off = 0; off < m; off += kChunk) {
       const int c = std::min(kChunk, m - off);
       for (int i = 0; i < nctl; ++i) {
         float* row = ctl.data() + size_t(i) * kChunk;
         for (int t = 0; t < c; ++t) row[t] = controls[size_t(i)].next();
       }
-      runner->process(model_in.data() + off, ctl.data(), model_out.data() + off, c);
-      if (!finite_all(model_out.data() + off, c)) bad = true;
+      for (int ch = 0; ch < nch; ++ch) {
+        in[ch] = chans[size_t(ch)].model_in.data() + off;
+        out[ch] = chans[size_t(ch)].model_out.data() + off;
+      }
+      runner->process(in, ctl.data(), out, c);
+      for (int ch = 0; ch < nch; ++ch)
+        if (!finite_all(out[ch], c)) bad = true;
     }
   }
 
-  void process(const float* in, float* out, int n) {
+  // n frames of every channel; the ramps (controls, mix, gains) advance once
+  // per frame and are shared, so each channel sees what a mono stream would.
+  void process(const float* const* in, float* const* out, int n) {
     bool bad = false;
+    const int nch = channels();
     for (int off = 0; off < n; off += kSub) {
       const int k = std::min(kSub, n - off);
-      for (int t = 0; t < k; ++t) x[size_t(t)] = in[off + t] * gain_in.next();
-      const float* wet_p;
-      const float* dry_p;
+      for (int t = 0; t < k; ++t) gin[size_t(t)] = gain_in.next();
+      for (int ch = 0; ch < nch; ++ch) {
+        Channel& c = chans[size_t(ch)];
+        for (int t = 0; t < k; ++t) c.x[size_t(t)] = in[ch][off + t] * gin[size_t(t)];
+      }
       if (resampling) {
-        const int m = wet_trip.up.process(x.data(), k, model_in.data());
+        int m = 0;  // the same count for every channel: it depends on the sample count only
+        for (auto& c : chans) m = c.wet_trip.up.process(c.x.data(), k, c.model_in.data());
         run_model(m, bad);
-        wet_trip.finish(model_out.data(), m, wet.data(), k);
-        const int md = dry_trip.up.process(x.data(), k, dry_trip.mid.data());
-        dry_trip.finish(dry_trip.mid.data(), md, dry.data(), k);
-        wet_p = wet.data();
-        dry_p = dry.data();
+        for (auto& c : chans) {
+          c.wet_trip.finish(c.model_out.data(), m, c.wet.data(), k);
+          const int md = c.dry_trip.up.process(c.x.data(), k, c.dry_trip.mid.data());
+          c.dry_trip.finish(c.dry_trip.mid.data(), md, c.dry.data(), k);
+        }
       } else {
-        std::copy(x.begin(), x.begin() + k, model_in.begin());
+        for (auto& c : chans) std::copy(c.x.begin(), c.x.begin() + k, c.model_in.begin());
         run_model(k, bad);
-        wet_p = model_out.data();
-        dry_p = x.data();
       }
       for (int t = 0; t < k; ++t) {
-        const float w = mix.next();
-        const float y = dry_p[t] * (1.0f - w) + wet_p[t] * w;
-        out[off + t] = y * gain_out.next();
+        wmix[size_t(t)] = mix.next();
+        gout[size_t(t)] = gain_out.next();
+      }
+      for (int ch = 0; ch < nch; ++ch) {
+        const Channel& c = chans[size_t(ch)];
+        const float* wet_p = resampling ? c.wet.data() : c.model_out.data();
+        const float* dry_p = resampling ? c.dry.data() : c.x.data();
+        for (int t = 0; t < k; ++t) {
+          const float w = wmix[size_t(t)];
+          const float y = dry_p[t] * (1.0f - w) + wet_p[t] * w;
+          out[ch][off + t] = y * gout[size_t(t)];
+        }
       }
     }
-    if (bad || !finite_all(out, n)) {
-      std::fill(out, out + n, 0.0f);
+    for (int ch = 0; ch < nch && !bad; ++ch)
+      if (!finite_all(out[ch], n)) bad = true;
+    if (bad) {
+      for (int ch = 0; ch < nch; ++ch) std::fill(out[ch], out[ch] + n, 0.0f);
       reset_state();
       ++nonfinite;
     }
@@ -280,12 +313,15 @@ struct StreamBytes {
   double worst_bytes = 0;
 };
 
-StreamBytes stream_bytes(const Model& m, int host_rate) {
+// `lanes` channels: everything but the file's weights is counted once per
+// channel (a lockstep layer keeps one copy of its weights, so this is above
+// what it holds).
+StreamBytes stream_bytes(const Model& m, int host_rate, int lanes) {
   StreamBytes r;
   r.weights = kF * double(m.parameters);
   double layers = 0;
   for (size_t i = 0; i < m.layers.size(); ++i) {
-    const double b = layer_stream_bytes(m.layers[i]);
+    const double b = lanes * layer_stream_bytes(m.layers[i]);
     layers += b;
     if (b > r.worst_bytes) {
       r.worst_bytes = b;
@@ -296,13 +332,13 @@ StreamBytes stream_bytes(const Model& m, int host_rate) {
   double max_model = kSub;
   if (host_rate != model_rate) {
     double design = 0;
-    r.resampler = 2 * round_trip_bytes(host_rate, model_rate, design);
+    r.resampler = 2 * lanes * round_trip_bytes(host_rate, model_rate, design);
     r.resampler += design;
     max_model = std::ceil(double(kSub) * model_rate / host_rate) + 1;
   }
   const double rows = std::max<double>(m.max_channels, double(m.input_map.size()));
-  const double stream = kF * (3.0 * kSub + 2 * max_model + std::max<double>(1, m.controls.size()) * kChunk +
-                              2 * rows * kChunk) +
+  const double per_lane = kF * (3.0 * kSub + 2 * max_model + 2 * rows * kChunk) + sizeof(Channel);
+  const double stream = lanes * per_lane + kF * (3.0 * kSub + std::max<double>(1, m.controls.size()) * kChunk) +
                         64.0 * m.controls.size() + 8192 + 2.0 * m.description.size();
   r.total = r.weights + layers + r.resampler + stream;
   return r;
@@ -316,7 +352,7 @@ std::string mib_text(double bytes) {
 
 // "" when the stream fits under `cap` bytes, else the refusal naming the
 // largest share (a layer, the resampler or the weights) and the figures.
-std::string stream_bytes_refusal(const Model& m, int host_rate, size_t cap, const StreamBytes& b) {
+std::string stream_bytes_refusal(const Model& m, int host_rate, int lanes, size_t cap, const StreamBytes& b) {
   if (b.total <= double(cap)) return "";
   std::string share;
   if (b.worst >= 0 && b.worst_bytes >= b.resampler && b.worst_bytes >= b.weights) {
@@ -329,7 +365,8 @@ std::string stream_bytes_refusal(const Model& m, int host_rate, size_t cap, cons
   } else {
     share = "the weights need " + mib_text(b.weights);
   }
-  return "a stream of this effect at " + std::to_string(host_rate) + " Hz needs " + mib_text(b.total) + " (" + share +
+  const std::string what = lanes == 1 ? "a stream" : "a stream of " + std::to_string(lanes) + " channels";
+  return what + " of this effect at " + std::to_string(host_rate) + " Hz needs " + mib_text(b.total) + " (" + share +
          "); the limit is " + mib_text(double(cap)) + " per stream";
 }
 
@@ -355,6 +392,8 @@ std::string make_info(const earshot_stream& s) {
   w.Double(m.sample_rate);
   w.Key("host_rate");
   w.Int(s.host_rate);
+  w.Key("channels");
+  w.Int(s.channels());
   w.Key("latency");
   w.Int(s.latency);
   w.Key("stream_bytes");
@@ -407,9 +446,14 @@ std::string make_info(const earshot_stream& s) {
   return sb.GetString();
 }
 
-earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate, const char* variant, int channels,
                        size_t max_stream_bytes, char* error, size_t error_cap) {
   std::string err;
+  if (channels < 1 || channels > EARSHOT_MAX_CHANNELS) {
+    write_error(error, error_cap,
+                "channel count " + std::to_string(channels) + " is outside 1.." + std::to_string(EARSHOT_MAX_CHANNELS));
+    return nullptr;
+  }
   if (!(host_rate >= EARSHOT_MIN_RATE && host_rate <= EARSHOT_MAX_RATE) || host_rate != std::floor(host_rate)) {
     write_error(error, error_cap,
                 ("host sample rate must be a whole number of Hz from " + std::to_string(EARSHOT_MIN_RATE) + " to " +
@@ -421,8 +465,8 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
     write_error(error, error_cap, err);
     return nullptr;
   }
-  const StreamBytes need = stream_bytes(*model, int(host_rate));
-  const std::string refusal = stream_bytes_refusal(*model, int(host_rate), max_stream_bytes, need);
+  const StreamBytes need = stream_bytes(*model, int(host_rate), channels);
+  const std::string refusal = stream_bytes_refusal(*model, int(host_rate), channels, max_stream_bytes, need);
   if (!refusal.empty()) {
     write_error(error, error_cap, refusal);
     return nullptr;
@@ -430,7 +474,7 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
   std::unique_ptr<earshot_stream> s(new earshot_stream);
   s->model = model;
   s->bytes = size_t(need.total);
-  s->runner = make_runner(model, variant ? variant : "", err);
+  s->runner = make_runner(model, variant ? variant : "", channels, err);
   if (!s->runner) {
     write_error(error, error_cap, err);
     return nullptr;
@@ -439,19 +483,25 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
   const int model_rate = int(model->sample_rate);
   s->resampling = s->host_rate != model_rate;
   int max_model = kSub;
-  if (s->resampling) {
-    if (!s->wet_trip.init(s->host_rate, model_rate, kSub, err) || !s->dry_trip.init(s->host_rate, model_rate, kSub, err)) {
-      write_error(error, error_cap, err);
-      return nullptr;
+  s->chans.resize(size_t(channels));
+  for (Channel& c : s->chans) {
+    if (s->resampling) {
+      if (!c.wet_trip.init(s->host_rate, model_rate, kSub, err) || !c.dry_trip.init(s->host_rate, model_rate, kSub, err)) {
+        write_error(error, error_cap, err);
+        return nullptr;
+      }
+      max_model = c.wet_trip.up.max_output(kSub);
+      s->latency = int(c.wet_trip.delay(s->host_rate, model_rate) + 0.5);
     }
-    max_model = s->wet_trip.up.max_output(kSub);
-    s->latency = int(s->wet_trip.delay(s->host_rate, model_rate) + 0.5);
+    c.x.assign(kSub, 0.0f);
+    c.dry.assign(kSub, 0.0f);
+    c.wet.assign(kSub, 0.0f);
+    c.model_in.assign(size_t(max_model), 0.0f);
+    c.model_out.assign(size_t(max_model), 0.0f);
   }
-  s->x.assign(kSub, 0.0f);
-  s->dry.assign(kSub, 0.0f);
-  s->wet.assign(kSub, 0.0f);
-  s->model_in.assign(size_t(max_model), 0.0f);
-  s->model_out.assign(size_t(max_model), 0.0f);
+  s->gin.assign(kSub, 0.0f);
+  s->wmix.assign(kSub, 0.0f);
+  s->gout.assign(kSub, 0.0f);
   s->ctl.assign(size_t(std::max<size_t>(1, model->controls.size())) * kChunk, 0.0f);
   for (const ControlSpec& c : model->controls) {
     Ramp r;
@@ -466,15 +516,12 @@ earshot_stream* create(const unsigned char* bytes, size_t len, double host_rate,
   return s.release();
 }
 
-}  // namespace
-
-extern "C" {
-
-earshot_stream* earshot_create_bounded(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
-                                       size_t max_stream_bytes, char* error, size_t error_cap) {
+// create() with every exception turned into the error text.
+earshot_stream* create_guarded(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                               int channels, size_t max_stream_bytes, char* error, size_t error_cap) {
 #if defined(__cpp_exceptions)
   try {
-    return create(bytes, len, host_rate, variant, max_stream_bytes, error, error_cap);
+    return create(bytes, len, host_rate, variant, channels, max_stream_bytes, error, error_cap);
   } catch (const std::bad_alloc&) {
     write_error(error, error_cap, "out of memory while loading the effect");
   } catch (...) {
@@ -482,8 +529,24 @@ earshot_stream* earshot_create_bounded(const unsigned char* bytes, size_t len, d
   }
   return nullptr;
 #else
-  return create(bytes, len, host_rate, variant, max_stream_bytes, error, error_cap);
+  return create(bytes, len, host_rate, variant, channels, max_stream_bytes, error, error_cap);
 #endif
+}
+
+}  // namespace
+
+extern "C" {
+
+earshot_stream* earshot_create_channels(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                                       int channels, size_t max_stream_bytes, char* error, size_t error_cap) {
+  if (max_stream_bytes == 0 && channels >= 1 && channels <= EARSHOT_MAX_CHANNELS)
+    max_stream_bytes = size_t(channels) * EARSHOT_STREAM_BYTES_DEFAULT;
+  return create_guarded(bytes, len, host_rate, variant, channels, max_stream_bytes, error, error_cap);
+}
+
+earshot_stream* earshot_create_bounded(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
+                                       size_t max_stream_bytes, char* error, size_t error_cap) {
+  return create_guarded(bytes, len, host_rate, variant, 1, max_stream_bytes, error, error_cap);
 }
 
 earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double host_rate, const char* variant,
@@ -494,7 +557,17 @@ earshot_stream* earshot_create(const unsigned char* bytes, size_t len, double ho
 size_t earshot_stream_bytes(const earshot_stream* s) { return s ? s->bytes : 0; }
 
 int earshot_process(earshot_stream* s, const float* in, float* out, int n) {
+  if (!s || !in || !out || n < 1 || n > EARSHOT_MAX_BLOCK || s->channels() != 1) return 0;
+  s->process(&in, &out, n);
+  return n;
+}
+
+int earshot_channels(const earshot_stream* s) { return s ? s->channels() : 0; }
+
+int earshot_process_channels(earshot_stream* s, const float* const* in, float* const* out, int n) {
   if (!s || !in || !out || n < 1 || n > EARSHOT_MAX_BLOCK) return 0;
+  for (int c = 0; c < s->channels(); ++c)
+    if (!in[c] || !out[c]) return 0;
   s->process(in, out, n);
   return n;
 }

@@ -134,6 +134,78 @@ inline void gemv_cols(const float* wt, int rows, const float* x, int in, const f
   }
 }
 
+// Forces inlining of the lockstep blocks into their one caller, so the lane
+// pointers stay in registers across the blocks.
+#if defined(__GNUC__)
+#define EARSHOT_INLINE inline __attribute__((always_inline))
+#else
+#define EARSHOT_INLINE inline
+#endif
+
+// gemv_cols for several lanes (lockstep streams) with one matrix: rows
+// [r, r + R·W) of lanes g in [0, G), so each weight vector loaded serves G
+// lanes. Every lane's sums have the terms and order of gemv_cols.
+template <class A, int R, int G>
+EARSHOT_INLINE void gemv_block_lanes(const float* wt, int rows, const float* const* x, int in, const float* const* init,
+                             float* const* acc, int r) {
+  using O = Ops<A>;
+  using V = typename O::V;
+  constexpr int W = O::W;
+  V a[G][R];
+  for (int g = 0; g < G; ++g)
+    for (int j = 0; j < R; ++j) a[g][j] = O::load(init[g] + r + j * W);
+  for (int i = 0; i < in; ++i) {
+    V xv[G];
+    for (int g = 0; g < G; ++g) xv[g] = O::set1(x[g][i]);
+    const float* p = wt + size_t(i) * rows + r;
+    for (int j = 0; j < R; ++j) {
+      const V w = O::load(p + j * W);
+      for (int g = 0; g < G; ++g) a[g][j] = O::madd(w, xv[g], a[g][j]);
+    }
+  }
+  for (int g = 0; g < G; ++g)
+    for (int j = 0; j < R; ++j) O::store(acc[g] + r + j * W, a[g][j]);
+}
+
+template <class A, int R, int G>
+EARSHOT_INLINE int gemv_rest_lanes(const float* wt, int rows, const float* const* x, int in, const float* const* init,
+                           float* const* acc, int r, int m) {
+  if constexpr (R == 0) {
+    return r;
+  } else {
+    if (m != R) return gemv_rest_lanes<A, R - 1, G>(wt, rows, x, in, init, acc, r, m);
+    gemv_block_lanes<A, R, G>(wt, rows, x, in, init, acc, r);
+    return r + R * Ops<A>::W;
+  }
+}
+
+// acc[l] = init[l] + wt·x[l] for every lane l in [0, lanes): gemv_cols of
+// each lane, the lanes taken in pairs so each weight load feeds two products
+// (an odd last lane runs alone). init[l] may be acc[l].
+template <class A>
+inline void gemv_cols_lanes(const float* wt, int rows, const float* const* x, int in, const float* const* init,
+                            float* const* acc, int lanes) {
+  using S = Ops<scalar_arch>;
+  constexpr int W = Ops<A>::W;
+  constexpr int R = 6;  // 2 lanes × 4 vectors of sums, 2 broadcasts and a weight: 11 registers
+  int l = 0;
+  for (; l + 2 <= lanes; l += 2) {
+    const float* const* xl = x + l;
+    const float* const* il = init + l;
+    float* const* al = acc + l;
+    int r = 0;
+    for (; r + R * W <= rows; r += R * W) gemv_block_lanes<A, R, 2>(wt, rows, xl, in, il, al, r);
+    r = gemv_rest_lanes<A, R - 1, 2>(wt, rows, xl, in, il, al, r, (rows - r) / W);
+    for (; r < rows; ++r)
+      for (int g = 0; g < 2; ++g) {
+        float a0 = il[g][r];
+        for (int i = 0; i < in; ++i) a0 = S::madd(wt[size_t(i) * rows + r], xl[g][i], a0);
+        al[g][r] = a0;
+      }
+  }
+  if (l < lanes) gemv_cols<A>(wt, rows, x[l], in, init[l], acc[l]);
+}
+
 // y[0..n) = a[0..n) + b[0..n)
 template <class A>
 inline void add_rows(const float* a, const float* b, float* y, int n) {

@@ -15,21 +15,29 @@ namespace earshot {
 // chunk boundaries (tested by block-size invariance).
 constexpr int kChunk = 128;
 
+// Most streams a runner computes in lockstep (EARSHOT_MAX_CHANNELS).
+constexpr int kMaxLanes = 8;
+
 class Runner {
  public:
   virtual ~Runner() = default;
-  // audio[0..n): model-rate input; ctl: n_controls rows of kChunk values (the
-  // smoothed control value at each sample); out[0..n). n <= kChunk.
-  virtual void process(const float* audio, const float* ctl, float* out, int n) = 0;
+  // One call for every lane (a stream of the same effect and settings, e.g.
+  // one channel of a stereo file): audio[l][0..n) model-rate input of lane l;
+  // ctl: n_controls rows of kChunk values (the smoothed control value at each
+  // sample), shared by the lanes; out[l][0..n). n <= kChunk. Each lane's
+  // output is bit-identical to a runner of one lane fed that lane alone.
+  virtual void process(const float* const* audio, const float* ctl, float* const* out, int n) = 0;
+  virtual int lanes() const = 0;
   virtual void reset() = 0;
   // Every stored state value (recurrent state, convolution history), for tests.
   virtual void state_values(std::vector<float>& out) const = 0;
   virtual const char* variant() const = 0;
 };
 
-// Builds the runner of the named variant; null with `error` set when the name
-// is unknown here or the CPU cannot run it.
-std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> model, const std::string& variant,
+// Builds the runner of the named variant for `lanes` (1..kMaxLanes) lockstep
+// streams; null with `error` set when the name is unknown here or the CPU
+// cannot run it.
+std::unique_ptr<Runner> make_runner(std::shared_ptr<const Model> model, const std::string& variant, int lanes,
                                     std::string& error);
 
 // The variant make_runner uses for an empty name.

@@ -23,13 +23,14 @@ struct GruLayer : Layer {
   struct Level {
     int in;
     std::vector<float> wih_t, whh_t, bih, bhh;  // [in][3H], [H][3H], [3H], [3H]
-    std::vector<float> h;                       // state, [H]
+    std::vector<float> h;                       // state, [lanes][H]
   };
-  int in, H;
+  int in, H, lanes;
   std::vector<Level> levels;
-  std::vector<float> gi, gh, x;
+  std::vector<float> gi, gh, x;  // [lanes][3H], [lanes][3H], [lanes][max(in, H)]
 
-  explicit GruLayer(const LayerSpec& s) : in(s.in), H(s.hidden) {
+  // Lockstep (layer.hpp): one object keeps every lane's state.
+  explicit GruLayer(const LayerSpec& s, int lanes_ = 1) : in(s.in), H(s.hidden), lanes(lanes_) {
     for (int l = 0; l < s.num_layers; ++l) {
       Level L;
       L.in = l == 0 ? in : H;
@@ -38,59 +39,87 @@ struct GruLayer : Layer {
       L.whh_t = transpose(*s.param("weight_hh_l" + k));
       L.bih = s.bias ? s.param("bias_ih_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
       L.bhh = s.bias ? s.param("bias_hh_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
-      L.h.assign(size_t(H), 0.0f);
+      L.h.assign(size_t(lanes) * H, 0.0f);
       levels.push_back(std::move(L));
     }
-    gi.assign(size_t(3 * H), 0.0f);
-    gh.assign(size_t(3 * H), 0.0f);
-    x.assign(size_t(std::max(in, H)), 0.0f);
+    gi.assign(size_t(lanes) * 3 * H, 0.0f);
+    gh.assign(size_t(lanes) * 3 * H, 0.0f);
+    x.assign(size_t(lanes) * std::max(in, H), 0.0f);
   }
 
-  void run(const float* xin, float* y, int n, const Ctx&) override {
+  // The gates of one lane from its input products a and hidden products b,
+  // and its state update.
+  void update(float* a, const float* b, float* h) {
     using O = Ops<A>;
     using S = Ops<scalar_arch>;
     constexpr int W = O::W;
+    // Passes with the same operations as one loop: reset and update gates
+    // over the whole 2H vector, the candidate's argument, its tanh, then
+    // the state (independent values per pass, so the activations' chains
+    // of many vectors overlap). a: [0, 2H) r then update; [2H, 3H) candidate.
+    int j = 0;
+    for (; j + W <= 2 * H; j += W) O::store(a + j, O::add(O::load(a + j), O::load(b + j)));
+    for (; j < 2 * H; ++j) a[j] = a[j] + b[j];
+    sigmoid_rows<A>(a, 2 * H);
+    float* cand = a + 2 * H;
+    for (j = 0; j + W <= H; j += W)
+      O::store(cand + j, O::madd(O::load(a + j), O::load(b + 2 * H + j), O::load(cand + j)));
+    for (; j < H; ++j) cand[j] = S::madd(a[j], b[2 * H + j], cand[j]);
+    tanh_rows<A>(cand, H);
+    const float* u = a + H;
+    const auto one = O::set1(1.0f);
+    for (j = 0; j + W <= H; j += W) {
+      const auto uv = O::load(u + j);
+      const auto hv = O::add(O::mul(O::sub(one, uv), O::load(cand + j)), O::mul(uv, O::load(h + j)));
+      O::store(h + j, flush_tiny<A>(hv));
+    }
+    for (; j < H; ++j) h[j] = flush_tiny<scalar_arch>((1.0f - u[j]) * cand[j] + u[j] * h[j]);
+  }
+
+  void run(const float* xin, float* y, int n, const Ctx& ctx) override { run_lanes(&xin, &y, n, ctx); }
+
+  void run_lanes(const float* const* xin, float* const* y, int n, const Ctx&) override {
+    const int xs = std::max(in, H);
+    const float* cur[kMaxLanes];
+    const float* hp[kMaxLanes];
+    const float* bi[kMaxLanes];
+    const float* bh[kMaxLanes];
+    float* ip[kMaxLanes];
+    float* qp[kMaxLanes];
+    for (int l = 0; l < lanes; ++l) {
+      ip[l] = gi.data() + size_t(l) * 3 * H;
+      qp[l] = gh.data() + size_t(l) * 3 * H;
+    }
     for (int t = 0; t < n; ++t) {
-      for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
-      const float* cur = x.data();
-      for (auto& L : levels) {
-        gemv_cols<A>(L.wih_t.data(), 3 * H, cur, L.in, L.bih.data(), gi.data());
-        gemv_cols<A>(L.whh_t.data(), 3 * H, L.h.data(), H, L.bhh.data(), gh.data());
-        // Passes with the same operations as one loop: reset and update gates
-        // over the whole 2H vector, the candidate's argument, its tanh, then
-        // the state (independent values per pass, so the activations' chains
-        // of many vectors overlap).
-        float* h = L.h.data();
-        float* a = gi.data();  // [0, 2H): r then update; [2H, 3H): candidate
-        const float* b = gh.data();
-        int j = 0;
-        for (; j + W <= 2 * H; j += W) O::store(a + j, O::add(O::load(a + j), O::load(b + j)));
-        for (; j < 2 * H; ++j) a[j] = a[j] + b[j];
-        sigmoid_rows<A>(a, 2 * H);
-        float* cand = a + 2 * H;
-        for (j = 0; j + W <= H; j += W)
-          O::store(cand + j, O::madd(O::load(a + j), O::load(b + 2 * H + j), O::load(cand + j)));
-        for (; j < H; ++j) cand[j] = S::madd(a[j], b[2 * H + j], cand[j]);
-        tanh_rows<A>(cand, H);
-        const float* update = a + H;
-        const auto one = O::set1(1.0f);
-        for (j = 0; j + W <= H; j += W) {
-          const auto u = O::load(update + j);
-          const auto hv = O::add(O::mul(O::sub(one, u), O::load(cand + j)), O::mul(u, O::load(h + j)));
-          O::store(h + j, flush_tiny<A>(hv));
-        }
-        for (; j < H; ++j)
-          h[j] = flush_tiny<scalar_arch>((1.0f - update[j]) * cand[j] + update[j] * h[j]);
-        cur = h;
+      for (int l = 0; l < lanes; ++l) {
+        float* xl = x.data() + size_t(l) * xs;
+        for (int i = 0; i < in; ++i) xl[i] = xin[l][size_t(i) * kChunk + t];
+        cur[l] = xl;
       }
-      for (int j = 0; j < H; ++j) y[size_t(j) * kChunk + t] = cur[j];
+      for (auto& L : levels) {
+        for (int l = 0; l < lanes; ++l) {
+          hp[l] = L.h.data() + size_t(l) * H;
+          bi[l] = L.bih.data();
+          bh[l] = L.bhh.data();
+        }
+        gemv_cols_lanes<A>(L.wih_t.data(), 3 * H, cur, L.in, bi, ip, lanes);
+        gemv_cols_lanes<A>(L.whh_t.data(), 3 * H, hp, H, bh, qp, lanes);
+        for (int l = 0; l < lanes; ++l) {
+          update(ip[l], qp[l], L.h.data() + size_t(l) * H);
+          cur[l] = hp[l];
+        }
+      }
+      for (int l = 0; l < lanes; ++l)
+        for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
     }
   }
   void reset() override {
     for (auto& L : levels) std::fill(L.h.begin(), L.h.end(), 0.0f);
   }
+  // Lane after lane; per lane every level's h.
   void state(std::vector<float>& v) const override {
-    for (auto& L : levels) v.insert(v.end(), L.h.begin(), L.h.end());
+    for (int l = 0; l < lanes; ++l)
+      for (auto& L : levels) v.insert(v.end(), L.h.begin() + long(l) * H, L.h.begin() + long(l + 1) * H);
   }
 };
 #endif  // EARSHOT_LAYER_KERNELS

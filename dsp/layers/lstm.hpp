@@ -21,13 +21,14 @@ struct LstmLayer : Layer {
   struct Level {
     int in;
     std::vector<float> wih_t, whh_t, bias;  // [in][4H], [H][4H], [4H]
-    std::vector<float> h, c;                // state, [H]
+    std::vector<float> h, c;                // state, [lanes][H]
   };
-  int in, H;
+  int in, H, lanes;
   std::vector<Level> levels;
-  std::vector<float> z, x;  // [4H], input vector of one sample
+  std::vector<float> z, x;  // [lanes][4H], [lanes][max(in, H)]: gates, input vector of one sample
 
-  explicit LstmLayer(const LayerSpec& s) : in(s.in), H(s.hidden) {
+  // Lockstep (layer.hpp): one object keeps every lane's state.
+  explicit LstmLayer(const LayerSpec& s, int lanes_ = 1) : in(s.in), H(s.hidden), lanes(lanes_) {
     for (int l = 0; l < s.num_layers; ++l) {
       Level L;
       L.in = l == 0 ? in : H;
@@ -40,50 +41,72 @@ struct LstmLayer : Layer {
         const auto& bh = s.param("bias_hh_l" + k)->data;
         for (int r = 0; r < 4 * H; ++r) L.bias[size_t(r)] = bi[size_t(r)] + bh[size_t(r)];
       }
-      L.h.assign(size_t(H), 0.0f);
-      L.c.assign(size_t(H), 0.0f);
+      L.h.assign(size_t(lanes) * H, 0.0f);
+      L.c.assign(size_t(lanes) * H, 0.0f);
       levels.push_back(std::move(L));
     }
-    z.assign(size_t(4 * H), 0.0f);
-    x.assign(size_t(std::max(in, H)), 0.0f);
+    z.assign(size_t(lanes) * 4 * H, 0.0f);
+    x.assign(size_t(lanes) * std::max(in, H), 0.0f);
   }
 
-  void run(const float* xin, float* y, int n, const Ctx&) override {
+  // The gates of one lane from its products z, and its state update.
+  void update(float* zi, float* c, float* h) {
     using O = Ops<A>;
     using S = Ops<scalar_arch>;
     constexpr int W = O::W;
+    // Two passes with the same operations as one: first every gate's
+    // activation over the whole 4H vector (independent values, so the
+    // polynomial chains of many vectors overlap), then the state update.
+    float* zf = zi + H;
+    float* zg = zf + H;
+    float* zo = zg + H;
+    sigmoid_rows<A>(zi, 2 * H);
+    tanh_rows<A>(zg, H);
+    sigmoid_rows<A>(zo, H);
+    int j = 0;
+    for (; j + W <= H; j += W) {
+      const auto ig = O::mul(O::load(zi + j), O::load(zg + j));
+      const auto cv = flush_tiny<A>(O::madd(O::load(zf + j), O::load(c + j), ig));
+      O::store(c + j, cv);
+      O::store(h + j, flush_tiny<A>(O::mul(O::load(zo + j), tanh_v<A>(cv))));
+    }
+    for (; j < H; ++j) {
+      const float ig = S::mul(zi[j], zg[j]);
+      const float cv = flush_tiny<scalar_arch>(S::madd(zf[j], c[j], ig));
+      c[j] = cv;
+      h[j] = flush_tiny<scalar_arch>(S::mul(zo[j], tanh_v<scalar_arch>(cv)));
+    }
+  }
+
+  void run(const float* xin, float* y, int n, const Ctx& ctx) override { run_lanes(&xin, &y, n, ctx); }
+
+  void run_lanes(const float* const* xin, float* const* y, int n, const Ctx&) override {
+    const int xs = std::max(in, H);
+    const float* cur[kMaxLanes];
+    const float* hp[kMaxLanes];
+    const float* bp[kMaxLanes];
+    float* zp[kMaxLanes];
+    for (int l = 0; l < lanes; ++l) zp[l] = z.data() + size_t(l) * 4 * H;
     for (int t = 0; t < n; ++t) {
-      for (int i = 0; i < in; ++i) x[size_t(i)] = xin[size_t(i) * kChunk + t];
-      const float* cur = x.data();
-      for (auto& L : levels) {
-        gemv_cols<A>(L.wih_t.data(), 4 * H, cur, L.in, L.bias.data(), z.data());
-        gemv_cols<A>(L.whh_t.data(), 4 * H, L.h.data(), H, z.data(), z.data());
-        // Two passes with the same operations as one: first every gate's
-        // activation over the whole 4H vector (independent values, so the
-        // polynomial chains of many vectors overlap), then the state update.
-        float* zi = z.data();
-        float* zf = zi + H;
-        float* zg = zf + H;
-        float* zo = zg + H;
-        sigmoid_rows<A>(zi, 2 * H);
-        tanh_rows<A>(zg, H);
-        sigmoid_rows<A>(zo, H);
-        int j = 0;
-        for (; j + W <= H; j += W) {
-          const auto ig = O::mul(O::load(zi + j), O::load(zg + j));
-          const auto c = flush_tiny<A>(O::madd(O::load(zf + j), O::load(L.c.data() + j), ig));
-          O::store(L.c.data() + j, c);
-          O::store(L.h.data() + j, flush_tiny<A>(O::mul(O::load(zo + j), tanh_v<A>(c))));
-        }
-        for (; j < H; ++j) {
-          const float ig = S::mul(zi[j], zg[j]);
-          const float c = flush_tiny<scalar_arch>(S::madd(zf[j], L.c[size_t(j)], ig));
-          L.c[size_t(j)] = c;
-          L.h[size_t(j)] = flush_tiny<scalar_arch>(S::mul(zo[j], tanh_v<scalar_arch>(c)));
-        }
-        cur = L.h.data();
+      for (int l = 0; l < lanes; ++l) {
+        float* xl = x.data() + size_t(l) * xs;
+        for (int i = 0; i < in; ++i) xl[i] = xin[l][size_t(i) * kChunk + t];
+        cur[l] = xl;
       }
-      for (int j = 0; j < H; ++j) y[size_t(j) * kChunk + t] = cur[j];
+      for (auto& L : levels) {
+        for (int l = 0; l < lanes; ++l) {
+          hp[l] = L.h.data() + size_t(l) * H;
+          bp[l] = L.bias.data();
+        }
+        gemv_cols_lanes<A>(L.wih_t.data(), 4 * H, cur, L.in, bp, zp, lanes);
+        gemv_cols_lanes<A>(L.whh_t.data(), 4 * H, hp, H, zp, zp, lanes);
+        for (int l = 0; l < lanes; ++l) {
+          update(zp[l], L.c.data() + size_t(l) * H, L.h.data() + size_t(l) * H);
+          cur[l] = hp[l];
+        }
+      }
+      for (int l = 0; l < lanes; ++l)
+        for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
     }
   }
   void reset() override {
@@ -92,11 +115,13 @@ struct LstmLayer : Layer {
       std::fill(L.c.begin(), L.c.end(), 0.0f);
     }
   }
+  // Lane after lane; per lane every level's h then c.
   void state(std::vector<float>& v) const override {
-    for (auto& L : levels) {
-      v.insert(v.end(), L.h.begin(), L.h.end());
-      v.insert(v.end(), L.c.begin(), L.c.end());
-    }
+    for (int l = 0; l < lanes; ++l)
+      for (auto& L : levels) {
+        v.insert(v.end(), L.h.begin() + long(l) * H, L.h.begin() + long(l + 1) * H);
+        v.insert(v.end(), L.c.begin() + long(l) * H, L.c.begin() + long(l + 1) * H);
+      }
   }
 };
 #endif  // EARSHOT_LAYER_KERNELS

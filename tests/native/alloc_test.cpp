@@ -80,6 +80,30 @@ TEST_CASE("processing never allocates, in every variant, with and without resamp
       }
     }
   }
+  // Multichannel streams (lockstep lanes) as well.
+  for (const Case& c : all_cases(5)) {
+    for (double rate : {48000.0, 44100.0}) {
+      CAPTURE(c.name, rate);
+      const auto bytes = c.fx.bytes();
+      char err[512];
+      StreamPtr s(earshot_create_channels(bytes.data(), bytes.size(), rate, "", 3, 0, err, sizeof err));
+      REQUIRE(s);
+      std::vector<float> y1(x.size()), y2(x.size());
+      const float* in[3] = {x.data(), x.data() + 1, x.data() + 2};
+      float* out[3] = {y.data(), y1.data(), y2.data()};
+      allocations = 0;
+      armed = true;
+      earshot_process_channels(s.get(), in, out, 1);
+      earshot_process_channels(s.get(), in, out, 300);
+      if (c.n_controls) earshot_set_control(s.get(), 0, 0.8f);
+      earshot_set_mix(s.get(), 0.7f);
+      earshot_process_channels(s.get(), in, out, 60000);
+      earshot_reset(s.get());
+      earshot_process_channels(s.get(), in, out, 4000);
+      armed = false;
+      CHECK(allocations == 0);
+    }
+  }
   // The counter works: creating a stream allocates.
   allocations = 0;
   armed = true;
@@ -114,6 +138,29 @@ TEST_CASE("a stream's memory bound holds what create allocates, and is close to 
       CHECK(bound >= double(peak));
       CHECK(bound <= 1.25 * double(peak) + 96 * 1024);
       earshot_destroy(s);
+    }
+  }
+}
+
+TEST_CASE("a multichannel stream's memory bound holds what create allocates", "[stream-bytes]") {
+  for (const Case& c : all_cases(5)) {
+    for (double rate : {48000.0, 44100.0}) {
+      for (int C : {2, 5}) {
+        const std::vector<unsigned char> bytes = c.fx.bytes();
+        earshot_stream* s = nullptr;
+        const long long peak = peak_during([&] {
+          char err[512];
+          s = earshot_create_channels(bytes.data(), bytes.size(), rate, "scalar", C, 0, err, sizeof err);
+        });
+        REQUIRE(s);
+        const double bound = double(earshot_stream_bytes(s));
+        CAPTURE(c.name, rate, C, peak, bound);
+        CHECK(bound >= double(peak));
+        // Everything but the weights is counted per channel; lockstep layers
+        // share their weight copies, so the bound may be above by those.
+        CHECK(bound <= C * (1.25 * double(peak) + 96 * 1024));
+        earshot_destroy(s);
+      }
     }
   }
 }

@@ -172,7 +172,7 @@ def test_version_and_help():
         p = run(cmd, "--help", check_rc=OK)
         assert p.stdout.startswith(f"usage: earshot {cmd}")
     p = run("render", "--help", check_rc=OK)
-    assert "two independent streams" in p.stdout and "32-bit float" in p.stdout
+    assert "each channel comes out exactly as a mono file" in p.stdout and "32-bit float" in p.stdout
     assert "FNV-1a 64" in run("verify", "-h", check_rc=OK).stdout
     assert run(check_rc=USAGE).stderr.startswith("earshot ")  # no command: usage on stderr
 

@@ -62,8 +62,32 @@ earshot_stream* earshot_create_bounded(const unsigned char* bytes, size_t len, d
 size_t earshot_stream_bytes(const earshot_stream* s);
 
 /* Processes n mono samples (1 <= n <= EARSHOT_MAX_BLOCK); in and out may alias.
- * Returns n, or 0 when an argument is bad (then out is left untouched). */
+ * Returns n, or 0 when an argument is bad or the stream has more than one
+ * channel (then out is left untouched). */
 int earshot_process(earshot_stream* s, const float* in, float* out, int n);
+
+/* ---- Several channels in lockstep ----
+ * A stream of `channels` channels of one effect (stereo left and right, or
+ * several clips through the same settings). The channels share the controls,
+ * mix and gains and run together: the recurrent layers load each weight once
+ * for every channel. Each channel's output is bit-identical to a mono stream
+ * with the same settings fed that channel alone, for as long as the output is
+ * finite (a non-finite value in any channel silences every channel of that
+ * call and resets the whole stream; it counts once). */
+#define EARSHOT_MAX_CHANNELS 8
+
+/* earshot_create_bounded for 1 .. EARSHOT_MAX_CHANNELS channels.
+ * max_stream_bytes bounds the whole stream; 0 means channels times
+ * EARSHOT_STREAM_BYTES_DEFAULT. A bad channel count is refused with a message. */
+earshot_stream* earshot_create_channels(const unsigned char* bytes, size_t len, double host_rate, const char* variant, int channels, size_t max_stream_bytes, char* error, size_t error_cap);
+
+/* The stream's channel count (1 for earshot_create); 0 for a null handle. */
+int earshot_channels(const earshot_stream* s);
+
+/* Processes n frames of every channel, planar: in[c][0..n) to out[c][0..n)
+ * for c < earshot_channels(s) (1 <= n <= EARSHOT_MAX_BLOCK); in[c] may be
+ * out[c]. Returns n, or 0 when an argument is bad (then nothing is written). */
+int earshot_process_channels(earshot_stream* s, const float* const* in, float* const* out, int n);
 
 /* Controls, by index in declaration order. A new value ramps linearly over the
  * control's smoothing time. Out-of-range and non-finite values are refused. */
