@@ -14,8 +14,12 @@
 //   fx.process(input, output);   // Float32Arrays of any equal length
 //   fx.destroy();
 //
-// process() allocates nothing: each effect owns one scratch region of
-// CHUNK floats (256 KiB) inside wasm memory and moves audio through it.
+//   const st = variant.createEffect(effectFileBytes, sampleRate, { channels: 2 });
+//   st.processChannels([left, right], [outLeft, outRight]);   // planar, in lockstep
+//
+// process() and processChannels() allocate nothing: each effect owns one
+// scratch region of CHUNK floats (256 KiB) per channel inside wasm memory and
+// moves audio through it.
 // Views on memory are re-derived whenever memory.buffer changes (growth
 // detaches the old buffer).
 
@@ -23,6 +27,8 @@ export const MAX_BLOCK = 65536; // EARSHOT_MAX_BLOCK, the most one earshot_proce
 // EARSHOT_MIN_RATE and EARSHOT_MAX_RATE: the sample rates (whole Hz) streams run at.
 export const MIN_RATE = 8000;
 export const MAX_RATE = 384000;
+// EARSHOT_MAX_CHANNELS: the most channels one stream runs in lockstep.
+export const MAX_CHANNELS = 8;
 // Samples per core call. A process() call of up to CHUNK samples is exactly
 // one earshot_process call, as natively: that matters only for non-finite
 // output, where the core silences the whole call (for finite audio the
@@ -39,9 +45,12 @@ const NAME_CAP = 256; // bytes for a control name passed to earshot_control_inde
 // The stream functions of the C ABI an Effect needs. The builds export the
 // whole C ABI of dsp/include/earshot/earshot.h (these, earshot_create_bounded,
 // earshot_stream_bytes and LISTENING_FUNCTIONS) plus memory, malloc, free and
-// _initialize (tests/node/exports.test.mjs).
+// _initialize (tests/node/exports.test.mjs). A build is always served beside
+// the loader it was built with (`earshot site` copies both), so a build
+// without the multichannel functions is refused rather than half supported.
 export const ABI_FUNCTIONS = Object.freeze([
-  'earshot_create', 'earshot_process', 'earshot_control_count', 'earshot_control_index',
+  'earshot_create', 'earshot_process', 'earshot_create_channels', 'earshot_channels',
+  'earshot_process_channels', 'earshot_control_count', 'earshot_control_index',
   'earshot_set_control', 'earshot_get_control', 'earshot_set_mix', 'earshot_set_gain',
   'earshot_reset', 'earshot_latency', 'earshot_info', 'earshot_variant',
   'earshot_nonfinite_count', 'earshot_status_text', 'earshot_destroy',
@@ -192,6 +201,7 @@ export class Variant {
     this.exports = e;
     this.memory = e.memory;
     this._process = e.earshot_process;
+    this._processChannels = e.earshot_process_channels;
     this.broken = null; // the Error of a trap, after which this instance is not used again
     this._buffer = null;
     this.u8 = null;
@@ -243,14 +253,16 @@ export class Variant {
     }
   }
 
-  // earshot_process in place on one scratch region: the hot call, without the
-  // name lookup of call().
-  callProcess(handle, ptr, n) {
+  // earshot_process in place on one scratch region, or (channels > 1)
+  // earshot_process_channels in place, `ptr` then the address of the C array
+  // of the channels' scratch regions, passed as both the input and the
+  // output pointers: the hot call, without the name lookup of call().
+  callProcess(handle, ptr, n, channels = 1) {
     if (this.broken) throw this.broken;
     try {
-      return this._process(handle, ptr, ptr, n);
+      return channels === 1 ? this._process(handle, ptr, ptr, n) : this._processChannels(handle, ptr, ptr, n);
     } catch (err) {
-      return this.trapped('earshot_process', err);
+      return this.trapped(channels === 1 ? 'earshot_process' : 'earshot_process_channels', err);
     }
   }
 
@@ -275,8 +287,10 @@ export class Variant {
     return this.cString(this.call('earshot_status_text', status));
   }
 
-  createEffect(fileBytes, hostRate) {
-    return new Effect(this, fileBytes, hostRate);
+  // options: { channels } (1 .. MAX_CHANNELS, default 1): a stream of that
+  // many channels in lockstep (processChannels), else a mono one (process).
+  createEffect(fileBytes, hostRate, options) {
+    return new Effect(this, fileBytes, hostRate, options);
   }
 
   // ---- Whole clips, for listening tests (earshot.h, "Listening tests").
@@ -376,8 +390,21 @@ export function loadVariant(wasm, options) {
 
 // ---------------------------------------------------------------- effect
 
+// The channel count of createEffect's options, checked before anything is
+// allocated; the core refuses the same counts with its own words.
+function channelsOption(options) {
+  if (options === undefined || options === null) return 1;
+  if (typeof options !== 'object') throw new TypeError(`createEffect: options must be an object such as { channels: 2 }, got ${describe(options)}`);
+  const c = options.channels;
+  if (c === undefined) return 1;
+  if (typeof c !== 'number' || !Number.isInteger(c) || c < 1 || c > MAX_CHANNELS)
+    throw new RangeError(`createEffect: channels must be a whole number from 1 to ${MAX_CHANNELS}, got ${typeof c === 'number' || typeof c === 'string' ? JSON.stringify(c) : describe(c)}`);
+  return c;
+}
+
 export class Effect {
-  constructor(variant, fileBytes, hostRate) {
+  constructor(variant, fileBytes, hostRate, options) {
+    const channels = channelsOption(options);
     const bytes = asBytes(fileBytes, 'the effect file');
     if (bytes.length === 0) throw new Error('effect file: no data'); // the core's own text (dsp/core/loader.cpp)
     if (bytes.length > MAX_FILE_BYTES) throw new Error(`effect file: ${bytes.length} bytes exceeds the 256 MiB limit`);
@@ -386,6 +413,9 @@ export class Effect {
     this.variant = v;
     this.generation = v.generation;
     this.handle = 0;
+    this.channels = channels;
+    this.scratch = 0;
+    this.ptrs = 0; // channels > 1: the C array of the channels' scratch addresses
     const file = v.malloc(bytes.length);
     const err = v.malloc(ERROR_CAP);
     let wanted = 0;
@@ -397,7 +427,10 @@ export class Effect {
         utf8Encode(v.name + '\0', v.u8, wanted);
       }
       v.u8[err] = 0;
-      this.handle = v.call('earshot_create', file, bytes.length, Number(hostRate), wanted, err, ERROR_CAP);
+      // A mono stream is made by earshot_create, exactly as before streams had channels.
+      this.handle = channels === 1
+        ? v.call('earshot_create', file, bytes.length, Number(hostRate), wanted, err, ERROR_CAP)
+        : v.call('earshot_create_channels', file, bytes.length, Number(hostRate), wanted, channels, 0, err, ERROR_CAP);
       if (!this.handle) throw new Error(v.cString(err) || 'the effect could not be loaded (no reason given)');
     } finally {
       // The core copies what it keeps; the file bytes are not needed again.
@@ -408,7 +441,15 @@ export class Effect {
       }
     }
     try {
-      this.scratch = v.malloc(CHUNK * 4);
+      const got = v.call('earshot_channels', this.handle);
+      if (got !== channels) throw new Error(`the core made a stream of ${got} channels where ${channels} were asked for`);
+      this.scratch = v.malloc(channels * CHUNK * 4);
+      if (channels > 1) {
+        this.ptrs = v.malloc(channels * 4);
+        v.refresh();
+        const table = new Uint32Array(v.memory.buffer, this.ptrs, channels);
+        for (let c = 0; c < channels; c++) table[c] = this.scratch + c * CHUNK * 4;
+      }
       this.info = JSON.parse(v.cString(v.call('earshot_info', this.handle)));
       this.variantName = v.cString(v.call('earshot_variant', this.handle));
       if (!v.name) v.name = this.variantName;
@@ -443,6 +484,8 @@ export class Effect {
   // they may be the same array). Any length; no allocation.
   process(input, output) {
     this.live();
+    if (this.channels !== 1)
+      throw new Error(`process: this effect has ${this.channels} channels; use processChannels(inputs, outputs) with one array per channel`);
     const n = input.length;
     if (output.length !== n) throw new RangeError(`process: input has ${n} samples but output has ${output.length}`);
     const v = this.variant;
@@ -459,6 +502,52 @@ export class Effect {
       for (let i = 0; i < k; i++) output[off + i] = heap[p + i];
     }
     return output;
+  }
+
+  // Runs every channel through the effect in lockstep: inputs and outputs are
+  // arrays of `channels` Float32Arrays (planar), all of one length, any
+  // length; outputs[c] may be inputs[c]. Channel c comes out bit-identical to
+  // a mono effect with the same settings fed inputs[c] alone (while the
+  // output is finite). A call of up to CHUNK frames is one core call, as in
+  // process(). No allocation.
+  processChannels(inputs, outputs) {
+    this.live();
+    const C = this.channels;
+    if (!inputs || inputs.length !== C)
+      throw new RangeError(`processChannels: this effect has ${C} channel${C === 1 ? '' : 's'} but ${inputs ? inputs.length : describe(inputs)} input arrays were given`);
+    if (!outputs || outputs.length !== C)
+      throw new RangeError(`processChannels: this effect has ${C} channel${C === 1 ? '' : 's'} but ${outputs ? outputs.length : describe(outputs)} output arrays were given`);
+    const n = inputs[0].length;
+    for (let c = 0; c < C; c++) {
+      if (inputs[c].length !== n) throw new RangeError(`processChannels: input ${c} has ${inputs[c].length} samples but input 0 has ${n}`);
+      if (outputs[c].length !== n) throw new RangeError(`processChannels: output ${c} has ${outputs[c].length} samples but the inputs have ${n}`);
+    }
+    if (C === 1) {
+      this.process(inputs[0], outputs[0]);
+      return outputs;
+    }
+    const v = this.variant;
+    const base = this.scratch >> 2;
+    for (let off = 0; off < n; off += CHUNK) {
+      const k = n - off < CHUNK ? n - off : CHUNK;
+      v.refresh();
+      let heap = v.f32;
+      for (let c = 0; c < C; c++) {
+        const x = inputs[c];
+        const p = base + c * CHUNK;
+        for (let i = 0; i < k; i++) heap[p + i] = x[off + i];
+      }
+      if (v.callProcess(this.handle, this.ptrs, k, C) !== k)
+        throw new Error(`earshot_process_channels refused a block of ${k} frames of ${C} channels`);
+      v.refresh();
+      heap = v.f32;
+      for (let c = 0; c < C; c++) {
+        const y = outputs[c];
+        const p = base + c * CHUNK;
+        for (let i = 0; i < k; i++) y[off + i] = heap[p + i];
+      }
+    }
+    return outputs;
   }
 
   check(status, what) {
@@ -522,37 +611,46 @@ export class Effect {
     const v = this.variant;
     if (!v.broken && this.generation === v.generation) {
       if (this.handle) v.call('earshot_destroy', this.handle);
+      v.free(this.ptrs);
       v.free(this.scratch);
     }
     this.handle = 0;
     this.scratch = 0;
+    this.ptrs = 0;
   }
 }
 
-// createEffect(fileBytes, hostRate, variant): an Effect for audio at hostRate
-// Hz. variant: a Variant from loadVariant, or the build's bytes or compiled
-// WebAssembly.Module (then the effect gets an instance of its own).
-export function createEffect(fileBytes, hostRate, variant) {
+// createEffect(fileBytes, hostRate, variant, options): an Effect for audio at
+// hostRate Hz. variant: a Variant from loadVariant, or the build's bytes or
+// compiled WebAssembly.Module (then the effect gets an instance of its own).
+// options: { channels } as in Variant.createEffect.
+export function createEffect(fileBytes, hostRate, variant, options) {
   const v = variant instanceof Variant ? variant : new Variant(variant);
-  return new Effect(v, fileBytes, hostRate);
+  return new Effect(v, fileBytes, hostRate, options);
 }
 
 // ---------------------------------------------------------------- aligned render
 
-// Runs audio through one Effect per channel so that the output stays
-// sample-aligned with the input, as `earshot render` does: the first
-// `latency` output samples are dropped and finish() feeds `latency` zeros to
-// push the tail out. The output holds exactly `frames` samples per channel.
-// push() takes one Float32Array per channel (equal lengths, any length: it is
-// processed in pieces of at most `piece` samples).
+// Runs audio through effects so that the output stays sample-aligned with the
+// input, as `earshot render` does: the first `latency` output samples are
+// dropped and finish() feeds `latency` zeros to push the tail out. The output
+// holds exactly `frames` samples per channel. `effects`: one Effect of any
+// channel count (a stereo file through one 2-channel stream, as `earshot
+// render` runs it), or an array of Effects taking the channels in turn (each
+// as many as it has). push() takes one Float32Array per channel (equal
+// lengths, any length: it is processed in pieces of at most `piece` samples).
 export class AlignedRender {
   constructor(effects, frames, piece = CHUNK) {
-    if (!effects.length) throw new Error('AlignedRender needs at least one effect');
-    this.effects = effects;
-    this.latency = effects[0].latency;
+    const list = effects instanceof Effect ? [effects] : effects;
+    if (!list || !list.length) throw new Error('AlignedRender needs at least one effect');
+    this.effects = list;
+    this.channels = list.reduce((s, fx) => s + fx.channels, 0);
+    this.latency = list[0].latency;
+    for (const fx of list)
+      if (fx.latency !== this.latency) throw new Error(`AlignedRender: the effects' latencies differ (${this.latency} and ${fx.latency} samples)`);
     this.frames = frames;
-    this.output = effects.map(() => new Float32Array(frames));
-    this.scratch = effects.map(() => new Float32Array(piece));
+    this.output = Array.from({ length: this.channels }, () => new Float32Array(frames));
+    this.scratch = Array.from({ length: this.channels }, () => new Float32Array(piece));
     this.piece = piece;
     this.toSkip = this.latency;
     this.written = 0;
@@ -560,16 +658,22 @@ export class AlignedRender {
   }
 
   push(inputs) {
+    if (inputs.length !== this.channels)
+      throw new Error(`AlignedRender: ${inputs.length} channels pushed to effects taking ${this.channels}`);
     const n = inputs[0].length;
     for (let off = 0; off < n; off += this.piece) {
       const k = Math.min(this.piece, n - off);
       const skip = Math.min(this.toSkip, k);
       if (this.written + k - skip > this.frames) throw new Error(`AlignedRender: more than ${this.frames} frames pushed`);
-      for (let c = 0; c < this.effects.length; c++) {
-        const y = this.scratch[c].subarray(0, k);
-        this.effects[c].process(inputs[c].subarray(off, off + k), y);
-        this.output[c].set(y.subarray(skip), this.written);
+      const xs = inputs.map((x) => x.subarray(off, off + k));
+      const ys = this.scratch.map((y) => y.subarray(0, k));
+      let c = 0;
+      for (const fx of this.effects) {
+        if (fx.channels === 1) fx.process(xs[c], ys[c]);
+        else fx.processChannels(xs.slice(c, c + fx.channels), ys.slice(c, c + fx.channels));
+        c += fx.channels;
       }
+      for (let ch = 0; ch < this.channels; ch++) this.output[ch].set(ys[ch].subarray(skip), this.written);
       this.toSkip -= skip;
       this.written += k - skip;
       this.done += k;
@@ -581,7 +685,7 @@ export class AlignedRender {
     const zeros = new Float32Array(Math.min(this.latency, this.piece));
     for (let left = this.latency; left > 0;) {
       const k = Math.min(left, zeros.length);
-      this.push(this.effects.map(() => zeros.subarray(0, k)));
+      this.push(Array.from({ length: this.channels }, () => zeros.subarray(0, k)));
       left -= k;
     }
     return this.output;

@@ -1,20 +1,27 @@
 // The AudioWorkletProcessors of the page and the embed:
-// 'earshot-live', one mono effect stream at the device rate (the core
-// resamples to the model rate and back), then the output guard; and
+// 'earshot-live', one effect stream of the input's channels at the device
+// rate (the core resamples to the model rate and back), then the output
+// guard; and
 // 'earshot-guard', the output guard alone, for playback of rendered audio
 // (web/embed.js). The output guard is the listening level and an always-on
 // limiter at -1 dBFS: every path these modules give to the speakers passes it.
 //
 // 'earshot-live' processorOptions: { wasm: ArrayBuffer (the build's bytes),
-// variant: 'simd' | 'scalar', effect: ArrayBuffer (the effect file), settings, levelDb }
+// variant: 'simd' | 'scalar', effect: ArrayBuffer (the effect file), settings,
+// levelDb, channels }
 //   settings: { controls: { name: value }, mix: 0..1, inputDb, outputDb, bypass }
+//   channels: 1 (default) or 2, the node's input channel count: a stereo
+//     input runs through one 2-channel stream (left and right in lockstep,
+//     each as a mono stream would give it), a mono input through a mono one.
 // The module compiles synchronously here (the page passes bytes: this scope
-// has no fetch); everything is allocated before audio starts. The same signal
-// goes to every output channel.
+// has no fetch); everything is allocated before audio starts. A mono stream's
+// signal goes to every output channel; a stereo stream's left and right go to
+// outputs 0 and 1 (any further outputs repeat the last).
 //
 // Port messages in:  { type: 'settings', settings } · { type: 'level', db }
 //                    { type: 'record', seconds } (restarts the stream's state,
-//                      then captures its input and output, before level and limiter)
+//                      then captures its input and output, before level and limiter;
+//                      'recorded' carries one Float32Array per channel of each)
 //                    { type: 'stop' } (frees the effect; process() then returns
 //                      false, so the browser stops calling it: a disconnected
 //                      node whose process() returns true goes on being called
@@ -34,6 +41,7 @@ const METER_S = 0.05; // meter message interval
 const LOAD_S = 1.0; // window of the time-budget figure and of the late-render check
 const LATE_MS = 5; // growth, from one window to the next, of the audio clock's lag behind the wall clock that counts as a late render
 const LEVEL_START_DB = -30; // the listening level when none is given: output starts quiet
+const MAX_LIVE_CHANNELS = 2; // mono or stereo input
 
 // This scope lacks performance.now() in Chromium; Date.now() has 1 ms steps,
 // which over many render quanta still averages to the true busy time.
@@ -59,9 +67,10 @@ class OutputGuard {
     if (Number.isFinite(db)) this.levelTarget = Math.pow(10, db / 20);
   }
 
-  // ins: Float32Arrays (n samples each); outs: as many, written.
+  // outs: Float32Arrays written (n samples each); ins: at least as many,
+  // read (those past outs.length are ignored).
   run(ins, outs, n) {
-    const C = ins.length;
+    const C = outs.length;
     let level = this.level;
     let g = this.limGain;
     let outPeak = this.outPeak;
@@ -97,8 +106,10 @@ class EarshotLive extends AudioWorkletProcessor {
     const o = (options && options.processorOptions) || {};
     this.fx = null;
     this.size = 0;
-    this.inBuf = null;
-    this.outBuf = null;
+    this.channels = 1;
+    this.inBufs = []; // per channel: the input of the current call
+    this.outBufs = []; // per channel: the effect's output, before level and limiter
+    this.guardOut = []; // the output arrays of the current call, reused (no allocation per call)
     this.guard = new OutputGuard(o.levelDb);
     this.meterFrames = Math.round(METER_S * sampleRate);
     this.loadFrames = Math.round(LOAD_S * sampleRate);
@@ -116,8 +127,12 @@ class EarshotLive extends AudioWorkletProcessor {
     this.stopped = false;
     this.port.onmessage = (e) => this.onMessage(e.data);
     try {
+      const channels = o.channels === undefined ? 1 : o.channels;
+      if (!Number.isInteger(channels) || channels < 1 || channels > MAX_LIVE_CHANNELS)
+        throw new RangeError(`live input takes 1 or 2 channels, got channels ${JSON.stringify(channels)}`);
+      this.channels = channels;
       const variant = loadVariant(o.wasm, { name: o.variant });
-      this.fx = variant.createEffect(o.effect, sampleRate);
+      this.fx = variant.createEffect(o.effect, sampleRate, { channels });
       if (o.settings) this.apply(o.settings, true);
       this.port.postMessage({
         type: 'ready',
@@ -126,6 +141,7 @@ class EarshotLive extends AudioWorkletProcessor {
         sampleRate,
         modelRate: this.fx.info.model_rate,
         title: this.fx.info.title,
+        channels,
       });
     } catch (e) {
       if (this.fx) this.fx.destroy();
@@ -171,15 +187,16 @@ class EarshotLive extends AudioWorkletProcessor {
     else if (m.type === 'level') this.guard.setLevel(m.db);
     else if (m.type === 'record') {
       const n = Math.max(1, Math.round(m.seconds * sampleRate));
-      this.record = { input: new Float32Array(n), output: new Float32Array(n), at: 0, pending: true };
+      const bufs = () => Array.from({ length: this.channels }, () => new Float32Array(n));
+      this.record = { input: bufs(), output: bufs(), length: n, at: 0, pending: true };
     }
   }
 
   ensure(n) {
     if (n === this.size) return;
     this.size = n;
-    this.inBuf = new Float32Array(n);
-    this.outBuf = new Float32Array(n);
+    this.inBufs = Array.from({ length: this.channels }, () => new Float32Array(n));
+    this.outBufs = Array.from({ length: this.channels }, () => new Float32Array(n));
   }
 
   process(inputs, outputs) {
@@ -192,9 +209,15 @@ class EarshotLive extends AudioWorkletProcessor {
       return true;
     }
     this.ensure(n);
-    const x = inputs[0] && inputs[0].length ? inputs[0][0] : null;
-    if (x && x.length === n) this.inBuf.set(x);
-    else this.inBuf.fill(0);
+    const C = this.channels;
+    // The node's explicit channel count makes the browser mix its input to C
+    // channels; with nothing connected the input has none (silence).
+    const x = inputs[0] || [];
+    for (let c = 0; c < C; c++) {
+      const xc = x.length ? x[c < x.length ? c : x.length - 1] : null;
+      if (xc && xc.length === n) this.inBufs[c].set(xc);
+      else this.inBufs[c].fill(0);
+    }
 
     const rec = this.record;
     if (rec && rec.pending) {
@@ -202,31 +225,43 @@ class EarshotLive extends AudioWorkletProcessor {
       rec.pending = false;
     }
     const t0 = now();
-    this.fx.process(this.inBuf, this.outBuf);
+    if (C === 1) this.fx.process(this.inBufs[0], this.outBufs[0]);
+    else this.fx.processChannels(this.inBufs, this.outBufs);
     this.busyMs += now() - t0;
 
     if (rec) {
-      const k = Math.min(n, rec.input.length - rec.at);
-      rec.input.set(this.inBuf.subarray(0, k), rec.at);
-      rec.output.set(this.outBuf.subarray(0, k), rec.at);
+      const k = Math.min(n, rec.length - rec.at);
+      for (let c = 0; c < C; c++) {
+        rec.input[c].set(this.inBufs[c].subarray(0, k), rec.at);
+        rec.output[c].set(this.outBufs[c].subarray(0, k), rec.at);
+      }
       rec.at += k;
-      if (rec.at >= rec.input.length) {
+      if (rec.at >= rec.length) {
         this.port.postMessage({ type: 'recorded', rate: sampleRate, input: rec.input, output: rec.output },
-          [rec.input.buffer, rec.output.buffer]);
+          [...rec.input, ...rec.output].map((a) => a.buffer));
         this.record = null;
       }
     }
 
     let inPeak = this.inPeak;
-    for (let i = 0; i < n; i++) {
-      const xi = this.inBuf[i];
-      if (xi > inPeak) inPeak = xi;
-      else if (-xi > inPeak) inPeak = -xi;
+    for (let c = 0; c < C; c++) {
+      const xb = this.inBufs[c];
+      for (let i = 0; i < n; i++) {
+        const xi = xb[i];
+        if (xi > inPeak) inPeak = xi;
+        else if (-xi > inPeak) inPeak = -xi;
+      }
     }
     this.inPeak = inPeak;
-    const y = out[0];
-    this.guard.run([this.outBuf], [y], n);
-    for (let c = 1; c < out.length; c++) out[c].set(y);
+    // Level and limiter over the stream's channels (one shared gain, so a
+    // stereo image holds); output channels past them repeat the last.
+    const G = C < out.length ? C : out.length;
+    const outs = this.guardOut;
+    const ins = this.outBufs;
+    outs.length = G;
+    for (let c = 0; c < G; c++) outs[c] = out[c];
+    this.guard.run(ins, outs, n);
+    for (let c = G; c < out.length; c++) out[c].set(out[G - 1]);
 
     this.track(n);
     return true;

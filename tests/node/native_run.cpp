@@ -13,9 +13,12 @@
 //                                earshot_anchor: "status S", output written on success
 //
 // Script commands, one per line:
-//   create PATH RATE VARIANT      load the effect (VARIANT "-" = default)
+//   create PATH RATE VARIANT [C]  load the effect (VARIANT "-" = default); with C,
+//                                 a stream of C channels (earshot_create_channels)
 //   input PATH                    raw little-endian float32 input samples
-//   process N                     the next N input samples, appended to the output
+//                                 (C channels: interleaved frames)
+//   process N                     the next N input frames, appended to the output
+//                                 (C channels: by earshot_process_channels, interleaved)
 //   control INDEX VALUE | mix W | gain IN OUT | reset
 //   output PATH                   write the output so far as raw float32
 // Values are decimal; a float32 printed by JS with enough digits is parsed
@@ -45,11 +48,12 @@ std::vector<unsigned char> read_file(const std::string& path) {
 }
 
 earshot_stream* create(const std::vector<unsigned char>& bytes, double rate, const std::string& variant,
-                       std::string& error) {
+                       std::string& error, int channels = -1) {
   char err[1024];
   err[0] = 0;
-  earshot_stream* s = earshot_create(bytes.data(), bytes.size(), rate, variant == "-" ? nullptr : variant.c_str(),
-                                     err, sizeof err);
+  const char* v = variant == "-" ? nullptr : variant.c_str();
+  earshot_stream* s = channels < 0 ? earshot_create(bytes.data(), bytes.size(), rate, v, err, sizeof err)
+                                    : earshot_create_channels(bytes.data(), bytes.size(), rate, v, channels, 0, err, sizeof err);
   error = err;
   return s;
 }
@@ -61,7 +65,9 @@ int run_script(const std::string& path) {
     return 2;
   }
   earshot_stream* s = nullptr;
+  int channels = -1;  // -1: a mono stream through earshot_process
   std::vector<float> in, out;
+  std::vector<std::vector<float>> planar_in, planar_out;
   size_t pos = 0;
   std::string line;
   int lineno = 0;
@@ -74,8 +80,9 @@ int run_script(const std::string& path) {
       std::string p, variant;
       double rate;
       ls >> p >> rate >> variant;
+      if (!(ls >> channels)) channels = -1;
       std::string error;
-      s = create(read_file(p), rate, variant, error);
+      s = create(read_file(p), rate, variant, error, channels);
       if (!s) {
         std::printf("error %s\n", error.c_str());
         return 0;
@@ -97,14 +104,35 @@ int run_script(const std::string& path) {
     if (cmd == "process") {
       int n;
       ls >> n;
-      if (pos + size_t(n) > in.size()) {
+      const size_t C = size_t(channels < 0 ? 1 : channels);
+      if ((pos + size_t(n)) * C > in.size()) {
         std::fprintf(stderr, "native_run: line %d: input exhausted\n", lineno);
         return 2;
       }
-      out.resize(pos + size_t(n));
-      if (earshot_process(s, in.data() + pos, out.data() + pos, n) != n) {
-        std::fprintf(stderr, "native_run: line %d: earshot_process refused %d samples\n", lineno, n);
-        return 2;
+      out.resize((pos + size_t(n)) * C);
+      if (channels < 0) {
+        if (earshot_process(s, in.data() + pos, out.data() + pos, n) != n) {
+          std::fprintf(stderr, "native_run: line %d: earshot_process refused %d samples\n", lineno, n);
+          return 2;
+        }
+      } else {
+        planar_in.resize(C);
+        planar_out.resize(C);
+        const float* ins[EARSHOT_MAX_CHANNELS];
+        float* outs[EARSHOT_MAX_CHANNELS];
+        for (size_t c = 0; c < C; ++c) {
+          planar_in[c].resize(size_t(n));
+          planar_out[c].resize(size_t(n));
+          for (size_t t = 0; t < size_t(n); ++t) planar_in[c][t] = in[(pos + t) * C + c];
+          ins[c] = planar_in[c].data();
+          outs[c] = planar_out[c].data();
+        }
+        if (earshot_process_channels(s, ins, outs, n) != n) {
+          std::fprintf(stderr, "native_run: line %d: earshot_process_channels refused %d frames\n", lineno, n);
+          return 2;
+        }
+        for (size_t c = 0; c < C; ++c)
+          for (size_t t = 0; t < size_t(n); ++t) out[(pos + t) * C + c] = planar_out[c][t];
       }
       pos += size_t(n);
     } else if (cmd == "control") {

@@ -10,7 +10,7 @@ import { test } from 'node:test';
 
 import { createEffect } from '../../worklet/loader.js';
 import { effectFiles, firstDifference, NATIVE_PARITY_VARIANTS, sha256, variant, WASM_VARIANTS } from './env.mjs';
-import { makePlan, runNativePlan, runWasm, testSignal } from './script.mjs';
+import { effectFacts, makePlan, runNativePlan, runWasm, testSignal } from './script.mjs';
 
 const SECONDS = Number(process.env.EARSHOT_PARITY_SECONDS || 1.6); // > 65536 samples at 44.1 kHz
 
@@ -34,14 +34,10 @@ assert.ok(files.length >= 7, 'the parity set holds at least the generated effect
 let seed = 1;
 for (const f of files) {
   const bytes = readFileSync(f.path);
-  const probe = createEffect(bytes, 48000, variant('scalar'));
-  const modelRate = probe.info.model_rate;
-  const controls = probe.controls;
-  probe.destroy();
   // The model's own rate (no resampling), a host rate that needs the
   // resampler, and that rate again with NaN and infinite input samples (then
   // both sides use the same block partition: the guard silences whole calls).
-  const other = modelRate === 44100 ? 48000 : 44100;
+  const { modelRate, controls, otherRate: other } = effectFacts(bytes);
   const runs = [
     { rate: modelRate, extremes: false },
     { rate: other, extremes: false },

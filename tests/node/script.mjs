@@ -6,7 +6,18 @@
 import { join } from 'node:path';
 import { rmSync, writeFileSync } from 'node:fs';
 
-import { prng, readF32, runNative, WORK, writeF32 } from './env.mjs';
+import { createEffect } from '../../worklet/loader.js';
+import { prng, readF32, runNative, variant, WORK, writeF32 } from './env.mjs';
+
+// What a parity run needs to know of an effect file: its model rate, its
+// controls, and a common host rate that makes the core resample.
+export function effectFacts(bytes) {
+  const probe = createEffect(bytes, 48000, variant('scalar'));
+  const modelRate = probe.info.model_rate;
+  const controls = probe.controls;
+  probe.destroy();
+  return { modelRate, controls, otherRate: modelRate === 44100 ? 48000 : 44100 };
+}
 
 // The test signal: a rising sine sweep, noise bursts, a loud section that
 // drives every nonlinearity into saturation, exact zeros, and a decay into
@@ -60,9 +71,10 @@ function partition(n, cuts, r, maxBlock) {
 // in eight is out of range or NaN, and must be refused identically.
 // samePartition: both sides use the native partition (needed when the input
 // holds non-finite values: the core silences the whole call that produced one,
-// so the silenced span depends on the caller's blocks).
+// so the silenced span depends on the caller's blocks). extra: events that
+// must happen ({ at, op, ... } as below), added to the random ones.
 export function makePlan({ seed, n, controls, nativeMaxBlock = 65536, wasmMaxBlock = 150000, events = 24,
-  samePartition = false }) {
+  samePartition = false, extra = [] }) {
   const r = prng(seed);
   const ev = [];
   for (let e = 0; e < events; e++) {
@@ -82,6 +94,7 @@ export function makePlan({ seed, n, controls, nativeMaxBlock = 65536, wasmMaxBlo
       ev.push({ at, op: 'reset' });
     }
   }
+  ev.push(...extra);
   ev.sort((a, b) => a.at - b.at);
   const cuts = [...new Set(ev.map((e) => e.at))].filter((p) => p > 0);
   return {
@@ -112,11 +125,24 @@ function walk(plan, blocks, processBlock, apply) {
 }
 
 // WebAssembly: returns { output, statuses, nonfinite, latency, info, messages }.
-export function runWasm(fx, input, plan) {
+// blocks: the partition to use (default the plan's WebAssembly one).
+export function runWasm(fx, input, plan, blocks = plan.wasmBlocks) {
   const output = new Float32Array(plan.n);
+  return runEvents(fx, plan, blocks, output,
+    (pos, k) => fx.process(input.subarray(pos, pos + k), output.subarray(pos, pos + k)));
+}
+
+// The same through a stream of several channels (Effect.processChannels):
+// inputs, and the returned output, are one Float32Array per channel.
+export function runWasmChannels(fx, inputs, plan, blocks = plan.wasmBlocks) {
+  const output = inputs.map(() => new Float32Array(plan.n));
+  return runEvents(fx, plan, blocks, output,
+    (pos, k) => fx.processChannels(inputs.map((x) => x.subarray(pos, pos + k)), output.map((y) => y.subarray(pos, pos + k))));
+}
+
+function runEvents(fx, plan, blocks, output, processBlock) {
   const messages = [];
-  const statuses = walk(plan, plan.wasmBlocks,
-    (pos, k) => fx.process(input.subarray(pos, pos + k), output.subarray(pos, pos + k)),
+  const statuses = walk(plan, blocks, processBlock,
     (ev) => {
       try {
         if (ev.op === 'control') fx.setControl(ev.byName ? fx.controls[ev.index].name : ev.index, ev.value);
@@ -133,14 +159,18 @@ export function runWasm(fx, input, plan) {
 }
 
 let runs = 0;
-// Native: the same plan as a native_run script.
+// Native: the same plan as a native_run script. input: one Float32Array (a
+// mono stream, earshot_process), or one per channel (a stream of that many
+// channels, earshot_process_channels; the output is then one per channel too).
 export function runNativePlan(effectPath, rate, variant, input, plan) {
+  const planar = Array.isArray(input);
+  const C = planar ? input.length : 1;
   const tag = `${process.pid}-${runs++}`;
   const inPath = join(WORK, `in-${tag}.f32`);
   const outPath = join(WORK, `out-${tag}.f32`);
   const scriptPath = join(WORK, `script-${tag}.txt`);
-  writeF32(inPath, input);
-  const lines = [`create ${effectPath} ${rate} ${variant}`, `input ${inPath}`];
+  writeF32(inPath, planar ? interleave(input) : input);
+  const lines = [`create ${effectPath} ${rate} ${variant}${planar ? ` ${C}` : ''}`, `input ${inPath}`];
   const setters = [];
   walk(plan, plan.nativeBlocks, (pos, k) => lines.push(`process ${k}`), (ev) => {
     if (ev.op === 'control') lines.push(`control ${ev.index} ${ev.value}`);
@@ -175,7 +205,20 @@ export function runNativePlan(effectPath, rate, variant, input, plan) {
   }
   if (res.error) return res;
   res.statuses = setters.map((ln) => (ln === 0 ? true : res.codes[ln] === 0));
-  res.output = readF32(outPath);
+  res.output = planar ? deinterleave(readF32(outPath), C) : readF32(outPath);
   rmSync(outPath, { force: true });
   return res;
+}
+
+function interleave(channels) {
+  const C = channels.length;
+  const n = channels[0].length;
+  const out = new Float32Array(n * C);
+  for (let c = 0; c < C; c++) for (let t = 0; t < n; t++) out[t * C + c] = channels[c][t];
+  return out;
+}
+
+function deinterleave(data, C) {
+  const n = data.length / C;
+  return Array.from({ length: C }, (_, c) => Float32Array.from({ length: n }, (_, t) => data[t * C + c]));
 }

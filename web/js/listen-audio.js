@@ -54,27 +54,25 @@ export class CoreAudio {
     return { ...audio, data: this.v.anchor(audio.data, audio.channels, audio.rate, passband) };
   }
 
-  // `audio` through an effect file at the clip's rate, each channel with a
-  // fresh effect, sample-aligned with the clip (AlignedRender).
+  // `audio` through an effect file at the clip's rate: one fresh stream of
+  // the clip's channels (in lockstep, each channel as a mono stream would
+  // give it), sample-aligned with the clip (AlignedRender).
   render(effectBytes, controls, audio) {
     const channels = planar(audio);
-    const effects = [];
+    let fx = null;
     try {
-      for (let c = 0; c < channels.length; c++) {
-        const fx = this.v.createEffect(effectBytes, audio.rate);
-        effects.push(fx);
-        for (const [k, val] of Object.entries(controls)) fx.setControl(k, val);
-        // Jump to the targets: render from a settled state, not mid-ramp.
-        fx.reset();
-      }
-      const r = new AlignedRender(effects, audio.frames ?? channels[0].length);
+      fx = this.v.createEffect(effectBytes, audio.rate, { channels: channels.length });
+      for (const [k, val] of Object.entries(controls)) fx.setControl(k, val);
+      // Jump to the targets: render from a settled state, not mid-ramp.
+      fx.reset();
+      const r = new AlignedRender(fx, audio.frames ?? channels[0].length);
       r.push(channels);
       const out = r.finish();
-      const bad = effects.reduce((s, fx) => s + fx.nonFiniteCount, 0);
+      const bad = fx.nonFiniteCount;
       if (bad) throw new Error(`the effect produced non-finite output in ${bad} blocks`);
       return { ...audio, data: interleave(out) };
     } finally {
-      for (const fx of effects) fx.destroy();
+      if (fx) fx.destroy();
     }
   }
 }

@@ -89,11 +89,15 @@ export class LivePanel {
       this.node.disconnect();
       this.node = null;
     }
+    // A stereo input (as the browser reports the track) runs through one
+    // 2-channel stream, anything else through a mono one: the node mixes its
+    // input to exactly that many channels.
+    const channels = this.trackSettings && this.trackSettings.channelCount >= 2 ? 2 : 1;
     const node = new AudioWorkletNode(this.ctx, 'earshot-live', {
       numberOfInputs: 1,
       numberOfOutputs: 1,
       outputChannelCount: [2],
-      channelCount: 1,
+      channelCount: channels,
       channelCountMode: 'explicit',
       channelInterpretation: 'speakers',
       processorOptions: {
@@ -102,6 +106,7 @@ export class LivePanel {
         effect: fx.bytes,
         settings: this.controls.settings(),
         levelDb: this.levelDb,
+        channels,
       },
     });
     this.node = node;
@@ -194,7 +199,7 @@ export class LivePanel {
     const s = this.trackSettings || {};
     const onOff = (v) => (v === undefined ? 'not reported' : v ? 'on' : 'off');
     add('Input processing', `echo cancellation ${onOff(s.echoCancellation)}, noise suppression ${onOff(s.noiseSuppression)}, auto gain ${onOff(s.autoGainControl)} (all asked off)`);
-    add('Input', `${s.sampleRate ? hz(s.sampleRate) : 'rate not reported'}, ${s.channelCount || '?'} channel(s)${s.sampleSize ? `, ${s.sampleSize}-bit` : ''}`);
+    add('Input', `${s.sampleRate ? hz(s.sampleRate) : 'rate not reported'}, ${s.channelCount || '?'} channel(s)${s.sampleSize ? `, ${s.sampleSize}-bit` : ''}; processed as ${r.channels === 2 ? 'stereo (one stream, left and right in lockstep)' : 'mono'}`);
     add('Device rate', `${hz(ctx.sampleRate)}; model ${hz(r.modelRate)}`);
     const base = ctx.baseLatency || 0;
     const out = ctx.outputLatency || 0;
@@ -223,9 +228,11 @@ export class LivePanel {
     const fx = this.effect;
     const list = $('recordings');
     const rate = m.rate;
-    const add = (data, what, file) => {
-      const url = URL.createObjectURL(encodeFloatWav([data], rate));
-      list.appendChild(el('li', {}, el('a', { href: url, download: file, 'data-recording': what }, `${what} ${n} (${hz(rate)}, ${fmtSeconds(data.length / rate)})`)));
+    // One Float32Array per channel (the stream's: mono or stereo).
+    const add = (channels, what, file) => {
+      const url = URL.createObjectURL(encodeFloatWav(channels, rate));
+      const shape = channels.length === 2 ? ', stereo' : '';
+      list.appendChild(el('li', {}, el('a', { href: url, download: file, 'data-recording': what }, `${what} ${n} (${hz(rate)}${shape}, ${fmtSeconds(channels[0].length / rate)})`)));
     };
     add(m.input, 'Received input', `live-${n}-input.wav`);
     add(m.output, 'Effect output', `live-${n}-${fx.id}.wav`);

@@ -241,16 +241,16 @@ async function render(msg) {
 
   const variant = await variantFor(msg.wasmUrl, msg.variant);
   const bytes = new Uint8Array(msg.effect);
-  const effects = [];
+  // One stream of the file's channels (stereo runs left and right in
+  // lockstep), as `earshot render` runs it: each channel is bit-identical to
+  // a mono stream fed that channel alone.
+  let fx = null;
   try {
-    for (let c = 0; c < nChannels; c++) {
-      const fx = variant.createEffect(bytes, rate);
-      effects.push(fx);
-      applySettings(fx, settings);
-    }
-    const latency = effects[0].latency;
+    fx = variant.createEffect(bytes, rate, { channels: nChannels });
+    applySettings(fx, settings);
+    const latency = fx.latency;
     if (!input) input = Array.from({ length: nChannels }, () => new Float32Array(frames));
-    const aligned = new AlignedRender(effects, frames, SLICE);
+    const aligned = new AlignedRender(fx, frames, SLICE);
     const output = aligned.output;
     const total = frames + latency;
     let lastReport = 0;
@@ -275,7 +275,7 @@ async function render(msg) {
     }
     aligned.finish(); // `latency` samples of silence push the tail out (as `earshot render`)
     postMessage({ type: 'progress', id: msg.id, done: total, total });
-    const nonfinite = effects.reduce((s, fx) => s + fx.nonFiniteCount, 0);
+    const nonfinite = fx.nonFiniteCount; // calls silenced (in every channel at once)
     const loudIn = loudness(variant, input, rate);
     const loudOut = loudness(variant, output, rate);
     const result = {
@@ -284,9 +284,9 @@ async function render(msg) {
       rate,
       frames,
       channels: nChannels,
-      modelRate: effects[0].info.model_rate,
+      modelRate: fx.info.model_rate,
       latency,
-      variant: effects[0].variantName,
+      variant: fx.variantName,
       nonfinite,
       processMs,
       elapsedMs: Date.now() - started,
@@ -306,7 +306,7 @@ async function render(msg) {
     };
     return { result };
   } finally {
-    for (const fx of effects) fx.destroy();
+    if (fx) fx.destroy();
   }
 }
 
