@@ -3,6 +3,12 @@
 // (the same 128-bit width) and WASM simd against WASM scalar.
 //
 //   node tools/wasm-bench.mjs [--seconds 10] [--block 128] [--repeats 5] [FILE.nfx ...]
+//   node tools/wasm-bench.mjs --channels 2 [--seconds 5] [--repeats 3] [FILE.nfx ...]
+//
+// With --channels C: a C-channel stream (Effect.processChannels, the
+// channels in lockstep) against a mono stream, per channel, in WASM simd and
+// scalar: rounds interleave mono and C channels in both builds, and the
+// figure is channel-seconds per second of each, best round of each.
 //
 // Default models: build/bench-models/*.nfx (tools/make_bench_models.py, made
 // when missing). Each figure is the best of --repeats runs over the same
@@ -29,9 +35,10 @@ const opt = (name, def) => {
   if (!Number.isFinite(v) || v <= 0) throw new Error(`--${name} needs a positive number`);
   return v;
 };
-const SECONDS = opt('seconds', 10);
+const CHANNELS = Math.floor(opt('channels', 1));
+const SECONDS = opt('seconds', CHANNELS > 1 ? 5 : 10);
 const BLOCK = Math.floor(opt('block', 128));
-const REPEATS = Math.floor(opt('repeats', 5));
+const REPEATS = Math.floor(opt('repeats', CHANNELS > 1 ? 3 : 5));
 
 let files = args;
 if (!files.length) {
@@ -75,6 +82,86 @@ function checksum(y) {
   let sum = 0;
   for (const v of y) sum += v;
   return sum;
+}
+
+// One timed pass of C-channel input blocks (arrays of C views) through fx.
+function passChannels(fx, xb, yb) {
+  fx.reset();
+  const t0 = process.hrtime.bigint();
+  for (let i = 0; i < xb.length; i++) fx.processChannels(xb[i], yb[i]);
+  return Number(process.hrtime.bigint() - t0) / 1e9;
+}
+
+// Per block, the C channels' views (made outside the timing).
+function channelBlocks(chans) {
+  const per = chans.map(blocks);
+  return per[0].map((_, i) => per.map((b) => b[i]));
+}
+
+function benchChannels() {
+  const C = CHANNELS;
+  const rows = [];
+  for (const file of files) {
+    const bytes = readFileSync(file);
+    const probe = createEffect(bytes, 48000, variant('scalar'));
+    const rate = probe.info.model_rate;
+    probe.destroy();
+    const n = Math.round(SECONDS * rate);
+    // Channel c: the bench signal scaled and inverted by channel, so no two are alike.
+    const x = signal(n);
+    const xs = Array.from({ length: C }, (_, c) => x.map((v) => v * (c % 2 ? -0.7 : 1) * (1 - 0.05 * c)));
+    const row = { model: file.split('/').pop().replace(/\.nfx$/, '') };
+    const fx = {};
+    const io = {};
+    for (const v of ['simd', 'scalar']) {
+      fx[v] = { mono: createEffect(bytes, rate, variant(v)), multi: createEffect(bytes, rate, variant(v), { channels: C }) };
+      const ys = Array.from({ length: C }, () => new Float32Array(n));
+      const y1 = new Float32Array(n);
+      io[v] = { xm: blocks(xs[0]), ym: blocks(y1), xc: channelBlocks(xs), yc: channelBlocks(ys), y1, ys };
+      // Warm-up (untimed), as in the mono bench.
+      const warm = Math.ceil(Math.min(n, rate) / BLOCK);
+      passWasm(fx[v].mono, io[v].xm.slice(0, warm), io[v].ym.slice(0, warm));
+      passChannels(fx[v].multi, io[v].xc.slice(0, warm), io[v].yc.slice(0, warm));
+    }
+    const best = { simd: { mono: Infinity, multi: Infinity }, scalar: { mono: Infinity, multi: Infinity } };
+    for (let r = 0; r < REPEATS; r++) {
+      for (const v of ['simd', 'scalar']) {
+        best[v].mono = Math.min(best[v].mono, passWasm(fx[v].mono, io[v].xm, io[v].ym));
+        best[v].multi = Math.min(best[v].multi, passChannels(fx[v].multi, io[v].xc, io[v].yc));
+      }
+    }
+    let same = true;
+    for (const v of ['simd', 'scalar']) {
+      fx[v].mono.destroy();
+      fx[v].multi.destroy();
+      // Channel 0 of the stream is the mono stream's output, bit for bit.
+      const a = new Uint32Array(io[v].y1.buffer);
+      const b = new Uint32Array(io[v].ys[0].buffer);
+      for (let i = 0; i < a.length && same; i++) same = a[i] === b[i];
+      row[v] = { mono: SECONDS / best[v].mono, perChannel: (C * SECONDS) / best[v].multi };
+    }
+    row.same = same && checksum(io.simd.y1) === checksum(io.scalar.y1);
+    rows.push(row);
+  }
+  const fmt = (v, d = 1) => v.toFixed(d);
+  const lines = [
+    `WASM lockstep channels: ${C}-channel stream vs mono, ${SECONDS} s per channel at the model's rate, blocks of ${BLOCK}, ` +
+    `best of ${REPEATS} interleaved rounds; node ${process.version}; × real time per channel (higher is faster)`,
+    '',
+    `| model | simd mono | simd ${C}-ch, per channel | simd gain | scalar mono | scalar ${C}-ch, per channel | scalar gain | channel 0 = mono |`,
+    '|---|---:|---:|---:|---:|---:|---:|---|',
+  ];
+  for (const r of rows) {
+    lines.push(`| ${r.model} | ${fmt(r.simd.mono)} | ${fmt(r.simd.perChannel)} | ${fmt(r.simd.perChannel / r.simd.mono, 2)}× | ` +
+      `${fmt(r.scalar.mono)} | ${fmt(r.scalar.perChannel)} | ${fmt(r.scalar.perChannel / r.scalar.mono, 2)}× | ${r.same ? 'yes' : 'NO'} |`);
+  }
+  console.log(lines.join('\n'));
+  if (rows.some((r) => !r.same)) process.exitCode = 1;
+}
+
+if (CHANNELS > 1) {
+  benchChannels();
+  process.exit();
 }
 
 const rows = [];

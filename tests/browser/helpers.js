@@ -38,7 +38,7 @@ export function mustRun(cmd, args, opts) {
 
 const FIXTURE_FILES = ['lstm-12.nfx', 'tcn-film.nfx', 'markup.nfx', 'corrupt.nfx', 'stereo-44k-f32.wav',
   'mono-48k-i16.wav', 'live-44k-i16.wav', 'three-channels.wav', 'notes.txt', 'stereo-44k.flac',
-  'wide-history.nfx', 'wide-history-60mib.nfx'];
+  'wide-history.nfx', 'wide-history-60mib.nfx', 'live-stereo-44k-i16.wav'];
 
 export function fixture(name) {
   return join(FIXTURES, name);

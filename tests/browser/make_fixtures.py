@@ -104,6 +104,14 @@ def main():
                  lambda p: wavfile.write(p, 48000, tones(48000, 0.5, 3, 0.3).astype(np.float32)))
     replace_into(os.path.join(out, "notes.txt"),
                  lambda p: open(p, "w").write("These are notes, not audio.\n" * 20))
+    # Live, stereo: two different channels (tones at 196 and 246 Hz, levels 0.4
+    # and 0.25, each with its own noise), made last so the files above keep
+    # their samples.
+    def live_stereo(p):
+        x = tones(44100, 4.0, 2, 0.4)
+        x[:, 1] *= 0.625
+        wavfile.write(p, 44100, np.round(x * 32767).astype(np.int16))
+    replace_into(os.path.join(out, "live-stereo-44k-i16.wav"), live_stereo)
     print(out)
 
 

@@ -490,6 +490,84 @@ test('the live processor starts at the low listening level and its limiter holds
   assert.deepEqual(problems, []);
 });
 
+test('a stereo input runs through the live processor as one 2-channel stream: each channel as a mono stream gives it, under the limiter', async () => {
+  const { page, problems } = await openPage(browser.context, server.url);
+  await waitForCheck(page);
+  // An OfflineAudioContext at 48 kHz (the 'lstm' effect's rate) plays a
+  // stereo buffer (different left and right) into 'earshot-live' with
+  // channels 2. At 0 dB listening level and with the limiter idle the guard
+  // multiplies by exactly 1, so each output channel must equal, bit for bit,
+  // the loader's mono effect fed that channel alone (the core's promise for
+  // its channels). Then +24 dB in: the limiter holds both channels under
+  // -1 dBFS with one shared gain.
+  const r = await page.evaluate(async () => {
+    const { loadVariant } = await import('./worklet/loader.js');
+    const [wasm, effect] = await Promise.all(['wasm/earshot-simd.wasm', 'effects/lstm.nfx'].map((u) => fetch(u).then((x) => x.arrayBuffer())));
+    const n = 48000;
+    const input = [new Float32Array(n), new Float32Array(n)];
+    let h = 1;
+    for (let i = 0; i < n; i++) {
+      h = (Math.imul(h, 1664525) + 1013904223) >>> 0;
+      input[0][i] = 0.3 * Math.sin((2 * Math.PI * 440 * i) / 48000);
+      input[1][i] = 0.2 * Math.sin((2 * Math.PI * 660 * i) / 48000) + 0.02 * ((h >>> 8) / 16777216 - 0.5);
+    }
+    const render = async (inputDb) => {
+      const ctx = new OfflineAudioContext(2, n, 48000);
+      await ctx.audioWorklet.addModule('worklet/processor.js');
+      const buf = new AudioBuffer({ length: n, numberOfChannels: 2, sampleRate: 48000 });
+      input.forEach((x, c) => buf.copyToChannel(x, c));
+      const src = new AudioBufferSourceNode(ctx, { buffer: buf });
+      const settings = { controls: {}, mix: 1, inputDb, outputDb: 0, bypass: false };
+      const node = new AudioWorkletNode(ctx, 'earshot-live', {
+        outputChannelCount: [2], channelCount: 2, channelCountMode: 'explicit',
+        processorOptions: { wasm, variant: 'simd', effect, settings, levelDb: 0, channels: 2 },
+      });
+      const ready = new Promise((res) => {
+        node.port.onmessage = (e) => {
+          if (e.data.type === 'ready' || e.data.type === 'error') res(e.data);
+        };
+      });
+      src.connect(node).connect(ctx.destination);
+      src.start();
+      const out = await ctx.startRendering();
+      return { ready: await ready, out: [out.getChannelData(0), out.getChannelData(1)] };
+    };
+    const plain = await render(0);
+    const loud = await render(24);
+    const variant = loadVariant(wasm, { name: 'simd' });
+    const firstDiff = [];
+    for (let c = 0; c < 2; c++) {
+      const fx = variant.createEffect(effect, 48000);
+      const y = fx.process(input[c], new Float32Array(n));
+      fx.destroy();
+      const a = new Uint32Array(y.buffer);
+      const b = new Uint32Array(plain.out[c].buffer);
+      let d = -1;
+      for (let i = 0; i < n; i++) if (a[i] !== b[i]) { d = i; break; }
+      firstDiff.push(d);
+    }
+    const peak = (x) => x.reduce((m, v) => Math.max(m, Math.abs(v)), 0);
+    let same = true;
+    for (let i = 0; i < n && same; i++) same = plain.out[0][i] === plain.out[1][i];
+    return {
+      ready: plain.ready, firstDiff, channelsSame: same,
+      plainPeaks: plain.out.map(peak), loudPeaks: loud.out.map(peak),
+    };
+  });
+  assert.equal(r.ready.type, 'ready', r.ready.message);
+  assert.equal(r.ready.channels, 2);
+  const ceiling = Math.pow(10, -1 / 20); // the limiter's ceiling, −1 dBFS (our choice; common practice, no source)
+  assert.ok(Math.max(...r.plainPeaks) < ceiling, `the limiter must stay idle for the bit-exact check; peaks ${r.plainPeaks}`);
+  assert.equal(r.channelsSame, false, 'left and right outputs differ');
+  assert.deepEqual(r.firstDiff, [-1, -1], `first differing sample per channel: ${r.firstDiff}`);
+  for (const p of r.loudPeaks) {
+    assert.ok(p <= ceiling * (1 + 1e-6), `with +24 dB in, a channel peaks at ${p} > ${ceiling}`);
+    assert.ok(p > 0.3 * ceiling, `with +24 dB in, each channel still sounds near the ceiling, got ${p}`);
+  }
+  await page.close();
+  assert.deepEqual(problems, []);
+});
+
 test('a stopped live processor is no longer called, so an effect switch leaves one processor running', async () => {
   const { page, problems } = await openPage(browser.context, server.url);
   await waitForCheck(page);
