@@ -79,10 +79,21 @@ inline void conv_time(const float* w, const float* b, int out, int in, int K, in
   for (; o < out; ++o) conv_rows<A, 1, 4>(w, b, o, in, K, d, x, xs, y, add, ys, n);
 }
 
-// Rows [r, r + R·W) of gemv_cols: R vectors held in registers across the
-// whole column loop.
+// Rows [r, r + R·W) of a matrix-vector product in column (axpy) form,
+// acc = init + Σ_i wt[i][·]·x[i] (wt transposed, row stride `rows`): R
+// vectors held in registers across the whole column loop, each output's terms
+// in column order. init may be acc.
+// Always inlined (and so are its callers below): as a function of its own
+// GCC copied the R starting sums through the stack in 16-byte halves and read
+// them back whole, which missed store forwarding — LSTM-16 ran at 0.67x.
+#if defined(__GNUC__)
+#define EARSHOT_INLINE inline __attribute__((always_inline))
+#else
+#define EARSHOT_INLINE inline
+#endif
+
 template <class A, int R>
-inline void gemv_block(const float* wt, int rows, const float* x, int in, const float* init, float* acc, int r) {
+EARSHOT_INLINE void gemv_block(const float* wt, int rows, const float* x, int in, const float* init, float* acc, int r) {
   using O = Ops<A>;
   using V = typename O::V;
   constexpr int W = O::W;
@@ -109,101 +120,97 @@ inline int gemv_rest(const float* wt, int rows, const float* x, int in, const fl
   }
 }
 
-// acc[r] = init[r] + Σ_i wt[i][r]·x[i] for r in [0, rows): a matrix-vector
-// product in column (axpy) form, starting from init (which may be acc itself,
-// so a bias needs no copy first). wt is the transposed weight, [in][rows].
-template <class A>
-inline void gemv_cols(const float* wt, int rows, const float* x, int in, const float* init, float* acc) {
-  using S = Ops<scalar_arch>;
-  constexpr int W = Ops<A>::W;
-  // Vectors per block. Eight suit native code; V8's code for the WebAssembly
-  // SIMD build runs faster with six (docs/wasm.md has the figures). Every
-  // output's sum has the same terms in the same order either way.
+// ---- recurrent weights in panels ------------------------------------------
+// Vectors per block of the one-lane product: eight suit native code; V8's code
+// for the WebAssembly SIMD build runs faster with six (docs/wasm.md).
 #if defined(__wasm_simd128__)
-  constexpr int R = 6;
+constexpr int kGemvVectors = 6;
 #else
-  constexpr int R = 8;
-#endif
-  int r = 0;
-  for (; r + R * W <= rows; r += R * W) gemv_block<A, R>(wt, rows, x, in, init, acc, r);
-  r = gemv_rest<A, R - 1>(wt, rows, x, in, init, acc, r, (rows - r) / W);
-  for (; r < rows; ++r) {
-    float a0 = init[r];
-    for (int i = 0; i < in; ++i) a0 = S::madd(wt[size_t(i) * rows + r], x[i], a0);
-    acc[r] = a0;
-  }
-}
-
-// Forces inlining of the lockstep blocks into their one caller, so the lane
-// pointers stay in registers across the blocks.
-#if defined(__GNUC__)
-#define EARSHOT_INLINE inline __attribute__((always_inline))
-#else
-#define EARSHOT_INLINE inline
+constexpr int kGemvVectors = 8;
 #endif
 
-// gemv_cols for several lanes (lockstep streams) with one matrix: rows
-// [r, r + R·W) of lanes g in [0, G), so each weight vector loaded serves G
-// lanes. Every lane's sums have the terms and order of gemv_cols.
-template <class A, int R, int G>
-EARSHOT_INLINE void gemv_block_lanes(const float* wt, int rows, const float* const* x, int in, const float* const* init,
-                             float* const* acc, int r) {
-  using O = Ops<A>;
-  using V = typename O::V;
-  constexpr int W = O::W;
-  V a[G][R];
-  for (int g = 0; g < G; ++g)
-    for (int j = 0; j < R; ++j) a[g][j] = O::load(init[g] + r + j * W);
-  for (int i = 0; i < in; ++i) {
-    V xv[G];
-    for (int g = 0; g < G; ++g) xv[g] = O::set1(x[g][i]);
-    const float* p = wt + size_t(i) * rows + r;
-    for (int j = 0; j < R; ++j) {
-      const V w = O::load(p + j * W);
-      for (int g = 0; g < G; ++g) a[g][j] = O::madd(w, xv[g], a[g][j]);
-    }
-  }
-  for (int g = 0; g < G; ++g)
-    for (int j = 0; j < R; ++j) O::store(acc[g] + r + j * W, a[g][j]);
-}
-
-template <class A, int R, int G>
-EARSHOT_INLINE int gemv_rest_lanes(const float* wt, int rows, const float* const* x, int in, const float* const* init,
-                           float* const* acc, int r, int m) {
-  if constexpr (R == 0) {
-    return r;
-  } else {
-    if (m != R) return gemv_rest_lanes<A, R - 1, G>(wt, rows, x, in, init, acc, r, m);
-    gemv_block_lanes<A, R, G>(wt, rows, x, in, init, acc, r);
-    return r + R * Ops<A>::W;
-  }
-}
-
-// acc[l] = init[l] + wt·x[l] for every lane l in [0, lanes): gemv_cols of
-// each lane, the lanes taken in pairs so each weight load feeds two products
-// (an odd last lane runs alone). init[l] may be acc[l].
+// A transposed weight wt[in][rows] stored as panels of P = kGemvVectors·W
+// rows, each panel [in][P] contiguous, and the rows past the last whole panel
+// as one more panel [in][rows − full]. A block of gemv then reads one
+// contiguous stretch of memory instead of `in` pieces a row stride apart,
+// which the hardware prefetchers follow better when the matrix streams from
+// L2. The same floats as wt: only their order in memory differs.
+// The panels start on a 64-byte boundary (a cache line), so no vector load
+// straddles two lines: with malloc's 16-byte alignment the speed of a run
+// depended on where the heap put the matrix (measured ±30 % between runs).
 template <class A>
-inline void gemv_cols_lanes(const float* wt, int rows, const float* const* x, int in, const float* const* init,
-                            float* const* acc, int lanes) {
+struct Panels {
+  int rows = 0, in = 0, P = 0, full = 0;
+  std::vector<float> store;  // the panels from store[off]
+  size_t off = 0;
+
+  // From the file's weight w[rows][in] (PyTorch's layout): wt[i][r] = w[r][i].
+  void pack(const Tensor& w) {
+    rows = w.shape[0];
+    in = w.shape[1];
+    P = kGemvVectors * Ops<A>::W;
+    full = rows / P * P;
+    store.assign(w.data.size() + 16, 0.0f);
+    off = (64 - reinterpret_cast<uintptr_t>(store.data()) % 64) % 64 / sizeof(float);
+    float* o = store.data() + off;
+    for (int b = 0; b < full; b += P)
+      for (int i = 0; i < in; ++i)
+        for (int k = 0; k < P; ++k) *o++ = w.data[size_t(b + k) * in + size_t(i)];
+    for (int i = 0; i < in; ++i)
+      for (int k = full; k < rows; ++k) *o++ = w.data[size_t(k) * in + size_t(i)];
+  }
+  const float* panel(int r) const { return store.data() + off + size_t(r) * in; }  // r: first row, a multiple of P
+  int rest() const { return rows - full; }
+};
+
+// gemv_cols on a panelled matrix: the same sums, term by term. backward: the
+// whole panels from last to first. A recurrent layer alternates the direction
+// every sample, so the panels it used last (still in L1 when the matrix is
+// larger than L1) are the first it uses next; the panels are independent
+// sums, so the order changes no value.
+// The rows past the last whole panel.
+template <class A>
+EARSHOT_INLINE void gemv_tail(const Panels<A>& M, const float* x, const float* init, float* acc) {
   using S = Ops<scalar_arch>;
   constexpr int W = Ops<A>::W;
-  constexpr int R = 6;  // 2 lanes × 4 vectors of sums, 2 broadcasts and a weight: 11 registers
-  int l = 0;
-  for (; l + 2 <= lanes; l += 2) {
-    const float* const* xl = x + l;
-    const float* const* il = init + l;
-    float* const* al = acc + l;
-    int r = 0;
-    for (; r + R * W <= rows; r += R * W) gemv_block_lanes<A, R, 2>(wt, rows, xl, in, il, al, r);
-    r = gemv_rest_lanes<A, R - 1, 2>(wt, rows, xl, in, il, al, r, (rows - r) / W);
-    for (; r < rows; ++r)
-      for (int g = 0; g < 2; ++g) {
-        float a0 = il[g][r];
-        for (int i = 0; i < in; ++i) a0 = S::madd(wt[size_t(i) * rows + r], xl[g][i], a0);
-        al[g][r] = a0;
-      }
+  const int in = M.in, full = M.full, rest = M.rest();
+  if (rest == 0) return;
+  const float* t = M.panel(full);
+  int r = gemv_rest<A, kGemvVectors - 1>(t, rest, x, in, init + full, acc + full, 0, rest / W);
+  for (; r < rest; ++r) {
+    float a0 = init[full + r];
+    for (int i = 0; i < in; ++i) a0 = S::madd(t[size_t(i) * rest + r], x[i], a0);
+    acc[full + r] = a0;
   }
-  if (l < lanes) gemv_cols<A>(wt, rows, x[l], in, init[l], acc[l]);
+}
+
+template <class A>
+EARSHOT_INLINE void gemv_panels(const Panels<A>& M, const float* x, const float* init, float* acc, bool backward) {
+  constexpr int R = kGemvVectors;
+  if (!backward)
+    for (int b = 0; b < M.full; b += M.P) gemv_block<A, R>(M.panel(b), M.P, x, M.in, init + b, acc + b, 0);
+  gemv_tail<A>(M, x, init, acc);
+  if (backward)
+    for (int b = M.full - M.P; b >= 0; b -= M.P) gemv_block<A, R>(M.panel(b), M.P, x, M.in, init + b, acc + b, 0);
+}
+
+// gemv_panels for every lane l in [0, lanes), panel by panel: each panel
+// (P rows × in columns, 16 KiB at 64 × 64 floats) is read from L2 for the
+// first lane and from L1 for the others, so a matrix larger than L1 streams
+// once per sample for all lanes instead of once per lane. init[l] may be acc[l].
+template <class A>
+inline void gemv_panels_lanes(const Panels<A>& M, const float* const* x, const float* const* init,
+                              float* const* acc, int lanes, bool backward) {
+  constexpr int R = kGemvVectors;
+  const int P = M.P, in = M.in, full = M.full;
+  if (lanes == 1) return gemv_panels<A>(M, x[0], init[0], acc[0], backward);
+  if (!backward)
+    for (int b = 0; b < full; b += P)
+      for (int l = 0; l < lanes; ++l) gemv_block<A, R>(M.panel(b), P, x[l], in, init[l] + b, acc[l] + b, 0);
+  for (int l = 0; l < lanes; ++l) gemv_tail<A>(M, x[l], init[l], acc[l]);
+  if (backward)
+    for (int b = full - P; b >= 0; b -= P)
+      for (int l = 0; l < lanes; ++l) gemv_block<A, R>(M.panel(b), P, x[l], in, init[l] + b, acc[l] + b, 0);
 }
 
 // y[0..n) = a[0..n) + b[0..n)

@@ -28,15 +28,6 @@ namespace EARSHOT_NS {
 #include "simd.hpp"
 #include "activations.hpp"
 
-// [rows][cols] → [cols][rows]
-inline std::vector<float> transpose(const Tensor& t) {
-  const int rows = t.shape[0], cols = t.shape[1];
-  std::vector<float> o(t.data.size());
-  for (int r = 0; r < rows; ++r)
-    for (int c = 0; c < cols; ++c) o[size_t(c) * rows + r] = t.data[size_t(r) * cols + c];
-  return o;
-}
-
 #include "kernels.hpp"
 #include "../layers/layer.hpp"
 // Every layer type's kernel part, in table order (dsp/layers/registry.hpp).

@@ -4,7 +4,8 @@
 //   n = tanh(W_in x + b_in + r ⊙ (W_hn h + b_hn))
 //   h' = (1 − z) ⊙ n + z ⊙ h
 // The input and hidden products are kept apart (the hidden bias of n sits
-// inside the reset product). Weights transposed for column-form products.
+// inside the reset product). Weights transposed, in panels of rows
+// (kernels.hpp, Panels), for column-form products.
 // ---- description part (types.hpp): fields, figures, stream memory, display ----
 #ifndef EARSHOT_LAYER_KERNELS
 namespace earshot {
@@ -22,7 +23,8 @@ template <class A>
 struct GruLayer : Layer {
   struct Level {
     int in;
-    std::vector<float> wih_t, whh_t, bih, bhh;  // [in][3H], [H][3H], [3H], [3H]
+    Panels<A> wih, whh;                         // transposed, [in][3H] and [H][3H], in panels (kernels.hpp)
+    std::vector<float> bih, bhh;                // [3H], [3H]
     std::vector<float> h;                       // state, [lanes][H]
   };
   int in, H, lanes;
@@ -35,8 +37,8 @@ struct GruLayer : Layer {
       Level L;
       L.in = l == 0 ? in : H;
       const std::string k = std::to_string(l);
-      L.wih_t = transpose(*s.param("weight_ih_l" + k));
-      L.whh_t = transpose(*s.param("weight_hh_l" + k));
+      L.wih.pack(*s.param("weight_ih_l" + k));
+      L.whh.pack(*s.param("weight_hh_l" + k));
       L.bih = s.bias ? s.param("bias_ih_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
       L.bhh = s.bias ? s.param("bias_hh_l" + k)->data : std::vector<float>(size_t(3 * H), 0.0f);
       L.h.assign(size_t(lanes) * H, 0.0f);
@@ -102,8 +104,8 @@ struct GruLayer : Layer {
           bi[l] = L.bih.data();
           bh[l] = L.bhh.data();
         }
-        gemv_cols_lanes<A>(L.wih_t.data(), 3 * H, cur, L.in, bi, ip, lanes);
-        gemv_cols_lanes<A>(L.whh_t.data(), 3 * H, hp, H, bh, qp, lanes);
+        gemv_panels_lanes<A>(L.wih, cur, bi, ip, lanes, backward);
+        gemv_panels_lanes<A>(L.whh, hp, bh, qp, lanes, backward);
         for (int l = 0; l < lanes; ++l) {
           update(ip[l], qp[l], L.h.data() + size_t(l) * H);
           cur[l] = hp[l];
@@ -111,8 +113,13 @@ struct GruLayer : Layer {
       }
       for (int l = 0; l < lanes; ++l)
         for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
+      backward = !backward;
     }
   }
+  // Direction of the next sample's products (gemv_panels: alternating keeps
+  // the panels used last, still in L1, first).
+  bool backward = false;
+
   void reset() override {
     for (auto& L : levels) std::fill(L.h.begin(), L.h.end(), 0.0f);
   }

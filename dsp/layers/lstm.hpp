@@ -2,8 +2,9 @@
 //   z = W_ih x + b_ih + W_hh h + b_hh
 //   i = σ(z_i), f = σ(z_f), g = tanh(z_g), o = σ(z_o)
 //   c' = f ⊙ c + i ⊙ g,  h' = o ⊙ tanh(c')
-// Weights are stored transposed ([in][4H]) so the products run in column
-// (axpy) form over the 4H gate rows; b_ih + b_hh are summed once at load.
+// Weights are stored transposed ([in][4H]) in panels of rows (kernels.hpp,
+// Panels) so the products run in column (axpy) form over the 4H gate rows;
+// b_ih + b_hh are summed once at load.
 // ---- description part (types.hpp): fields, figures, stream memory, display ----
 #ifndef EARSHOT_LAYER_KERNELS
 namespace earshot {
@@ -20,7 +21,8 @@ template <class A>
 struct LstmLayer : Layer {
   struct Level {
     int in;
-    std::vector<float> wih_t, whh_t, bias;  // [in][4H], [H][4H], [4H]
+    Panels<A> wih, whh;                     // transposed, [in][4H] and [H][4H], in panels (kernels.hpp)
+    std::vector<float> bias;                // [4H]
     std::vector<float> h, c;                // state, [lanes][H]
   };
   int in, H, lanes;
@@ -33,8 +35,8 @@ struct LstmLayer : Layer {
       Level L;
       L.in = l == 0 ? in : H;
       const std::string k = std::to_string(l);
-      L.wih_t = transpose(*s.param("weight_ih_l" + k));
-      L.whh_t = transpose(*s.param("weight_hh_l" + k));
+      L.wih.pack(*s.param("weight_ih_l" + k));
+      L.whh.pack(*s.param("weight_hh_l" + k));
       L.bias.assign(size_t(4 * H), 0.0f);
       if (s.bias) {
         const auto& bi = s.param("bias_ih_l" + k)->data;
@@ -98,8 +100,8 @@ struct LstmLayer : Layer {
           hp[l] = L.h.data() + size_t(l) * H;
           bp[l] = L.bias.data();
         }
-        gemv_cols_lanes<A>(L.wih_t.data(), 4 * H, cur, L.in, bp, zp, lanes);
-        gemv_cols_lanes<A>(L.whh_t.data(), 4 * H, hp, H, zp, zp, lanes);
+        gemv_panels_lanes<A>(L.wih, cur, bp, zp, lanes, backward);
+        gemv_panels_lanes<A>(L.whh, hp, zp, zp, lanes, backward);
         for (int l = 0; l < lanes; ++l) {
           update(zp[l], L.c.data() + size_t(l) * H, L.h.data() + size_t(l) * H);
           cur[l] = hp[l];
@@ -107,8 +109,13 @@ struct LstmLayer : Layer {
       }
       for (int l = 0; l < lanes; ++l)
         for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
+      backward = !backward;
     }
   }
+  // Direction of the next sample's products (gemv_panels: alternating keeps
+  // the panels used last, still in L1, first).
+  bool backward = false;
+
   void reset() override {
     for (auto& L : levels) {
       std::fill(L.h.begin(), L.h.end(), 0.0f);
