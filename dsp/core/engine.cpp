@@ -272,6 +272,10 @@ namespace {
 
 
 // ---- stream memory, bounded before anything large is allocated -------------
+// A channel's own object (its round trips' and buffers' headers), counted as a
+// fixed figure at or above its size on every target.
+constexpr double kChannelObject = 1024;
+static_assert(sizeof(Channel) <= 1024, "kChannelObject must cover a Channel");
 // Every buffer a stream's constructors allocate (dsp/FORMAT.md, "Stream
 // memory"), in bytes: an upper bound that tests/native/stream_memory_test.cpp
 // holds against the bytes actually allocated. The weights of the file are
@@ -337,7 +341,9 @@ StreamBytes stream_bytes(const Model& m, int host_rate, int lanes) {
     max_model = std::ceil(double(kSub) * model_rate / host_rate) + 1;
   }
   const double rows = std::max<double>(m.max_channels, double(m.input_map.size()));
-  const double per_lane = kF * (3.0 * kSub + 2 * max_model + 2 * rows * kChunk) + sizeof(Channel);
+  // kChannelObject, not sizeof(Channel): the figure must be the same natively
+  // and in 32-bit WebAssembly (static_assert below).
+  const double per_lane = kF * (3.0 * kSub + 2 * max_model + 2 * rows * kChunk) + kChannelObject;
   const double stream = lanes * per_lane + kF * (3.0 * kSub + std::max<double>(1, m.controls.size()) * kChunk) +
                         64.0 * m.controls.size() + 8192 + 2.0 * m.description.size();
   r.total = r.weights + layers + r.resampler + stream;
