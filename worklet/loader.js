@@ -416,6 +416,8 @@ export class Effect {
     this.channels = channels;
     this.scratch = 0;
     this.ptrs = 0; // channels > 1: the C array of the channels' scratch addresses
+    this.one = [null]; // process()'s input and output as one-channel lists for run(), made once
+    this.oneOut = [null];
     const file = v.malloc(bytes.length);
     const err = v.malloc(ERROR_CAP);
     let wanted = 0;
@@ -488,18 +490,13 @@ export class Effect {
       throw new Error(`process: this effect has ${this.channels} channels; use processChannels(inputs, outputs) with one array per channel`);
     const n = input.length;
     if (output.length !== n) throw new RangeError(`process: input has ${n} samples but output has ${output.length}`);
-    const v = this.variant;
-    const p = this.scratch >> 2;
-    for (let off = 0; off < n; off += CHUNK) {
-      const k = n - off < CHUNK ? n - off : CHUNK;
-      v.refresh();
-      let heap = v.f32;
-      for (let i = 0; i < k; i++) heap[p + i] = input[off + i];
-      if (v.callProcess(this.handle, this.scratch, k) !== k)
-        throw new Error(`earshot_process refused a block of ${k} samples`);
-      v.refresh(); // the core never allocates in process, but stay safe
-      heap = v.f32;
-      for (let i = 0; i < k; i++) output[off + i] = heap[p + i];
+    this.one[0] = input;
+    this.oneOut[0] = output;
+    try {
+      this.run(this.one, this.oneOut, 1, n);
+    } finally {
+      this.one[0] = null; // no reference to the caller's arrays kept
+      this.oneOut[0] = null;
     }
     return output;
   }
@@ -526,8 +523,17 @@ export class Effect {
       this.process(inputs[0], outputs[0]);
       return outputs;
     }
+    this.run(inputs, outputs, C, n);
+    return outputs;
+  }
+
+  // The copy loop of process() (C = 1: earshot_process on the scratch region)
+  // and processChannels() (earshot_process_channels on the table of the
+  // channels' scratch regions): pieces of at most CHUNK frames, each one core call.
+  run(inputs, outputs, C, n) {
     const v = this.variant;
     const base = this.scratch >> 2;
+    const where = C === 1 ? this.scratch : this.ptrs;
     for (let off = 0; off < n; off += CHUNK) {
       const k = n - off < CHUNK ? n - off : CHUNK;
       v.refresh();
@@ -537,9 +543,10 @@ export class Effect {
         const p = base + c * CHUNK;
         for (let i = 0; i < k; i++) heap[p + i] = x[off + i];
       }
-      if (v.callProcess(this.handle, this.ptrs, k, C) !== k)
-        throw new Error(`earshot_process_channels refused a block of ${k} frames of ${C} channels`);
-      v.refresh();
+      if (v.callProcess(this.handle, where, k, C) !== k)
+        throw new Error(C === 1 ? `earshot_process refused a block of ${k} samples`
+          : `earshot_process_channels refused a block of ${k} frames of ${C} channels`);
+      v.refresh(); // the core never allocates in process, but stay safe
       heap = v.f32;
       for (let c = 0; c < C; c++) {
         const y = outputs[c];
@@ -547,7 +554,6 @@ export class Effect {
         for (let i = 0; i < k; i++) y[off + i] = heap[p + i];
       }
     }
-    return outputs;
   }
 
   check(status, what) {

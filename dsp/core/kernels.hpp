@@ -213,6 +213,22 @@ inline void gemv_panels_lanes(const Panels<A>& M, const float* const* x, const f
       for (int l = 0; l < lanes; ++l) gemv_block<A, R>(M.panel(b), P, x[l], in, init[l] + b, acc[l] + b, 0);
 }
 
+// Sample t of every lane's `in` rows (stride kChunk) into lane l's vector at
+// x + l·stride; cur[l] points at it. The recurrent layers' per-sample input.
+inline void gather_lanes(const float* const* xin, int t, int in, int lanes, float* x, int stride, const float** cur) {
+  for (int l = 0; l < lanes; ++l) {
+    float* xl = x + size_t(l) * size_t(stride);
+    for (int i = 0; i < in; ++i) xl[i] = xin[l][size_t(i) * kChunk + t];
+    cur[l] = xl;
+  }
+}
+
+// cur[l][0..H) into sample t of lane l's H output rows.
+inline void scatter_lanes(const float* const* cur, int t, int H, int lanes, float* const* y) {
+  for (int l = 0; l < lanes; ++l)
+    for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
+}
+
 // y[0..n) = a[0..n) + b[0..n)
 template <class A>
 inline void add_rows(const float* a, const float* b, float* y, int n) {

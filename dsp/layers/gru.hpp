@@ -93,11 +93,7 @@ struct GruLayer : Layer {
       qp[l] = gh.data() + size_t(l) * 3 * H;
     }
     for (int t = 0; t < n; ++t) {
-      for (int l = 0; l < lanes; ++l) {
-        float* xl = x.data() + size_t(l) * xs;
-        for (int i = 0; i < in; ++i) xl[i] = xin[l][size_t(i) * kChunk + t];
-        cur[l] = xl;
-      }
+      gather_lanes(xin, t, in, lanes, x.data(), xs, cur);
       for (auto& L : levels) {
         for (int l = 0; l < lanes; ++l) {
           hp[l] = L.h.data() + size_t(l) * H;
@@ -111,8 +107,7 @@ struct GruLayer : Layer {
           cur[l] = hp[l];
         }
       }
-      for (int l = 0; l < lanes; ++l)
-        for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
+      scatter_lanes(cur, t, H, lanes, y);
       backward = !backward;
     }
   }

@@ -90,11 +90,7 @@ struct LstmLayer : Layer {
     float* zp[kMaxLanes];
     for (int l = 0; l < lanes; ++l) zp[l] = z.data() + size_t(l) * 4 * H;
     for (int t = 0; t < n; ++t) {
-      for (int l = 0; l < lanes; ++l) {
-        float* xl = x.data() + size_t(l) * xs;
-        for (int i = 0; i < in; ++i) xl[i] = xin[l][size_t(i) * kChunk + t];
-        cur[l] = xl;
-      }
+      gather_lanes(xin, t, in, lanes, x.data(), xs, cur);
       for (auto& L : levels) {
         for (int l = 0; l < lanes; ++l) {
           hp[l] = L.h.data() + size_t(l) * H;
@@ -107,8 +103,7 @@ struct LstmLayer : Layer {
           cur[l] = hp[l];
         }
       }
-      for (int l = 0; l < lanes; ++l)
-        for (int j = 0; j < H; ++j) y[l][size_t(j) * kChunk + t] = cur[l][j];
+      scatter_lanes(cur, t, H, lanes, y);
       backward = !backward;
     }
   }
