@@ -9,24 +9,35 @@
 // and dsp/ACCURACY.md.
 #pragma once
 
-template <class A>
-inline typename Ops<A>::V tanh_v(typename Ops<A>::V a) {
+// tanh of N vectors in place, every step applied to all N before the next,
+// so that N independent chains are in flight (the polynomial is a chain of
+// dependent multiply-adds and a division: one vector at a time is
+// latency-bound). Each value gets the same operations whatever N is.
+template <class A, int N>
+inline void tanh_n(typename Ops<A>::V* a) {
   using O = Ops<A>;
   using V = typename O::V;
-  const V clamp = O::set1(7.90531110763549805f);
-  const V x = O::max(O::min(a, clamp), O::set1(-7.90531110763549805f));
-  const V x2 = O::mul(x, x);
-  V p = O::madd(x2, O::set1(-2.76076847742355e-16f), O::set1(2.00018790482477e-13f));
-  p = O::madd(x2, p, O::set1(-8.60467152213735e-11f));
-  p = O::madd(x2, p, O::set1(5.12229709037114e-08f));
-  p = O::madd(x2, p, O::set1(1.48572235717979e-05f));
-  p = O::madd(x2, p, O::set1(6.37261928875436e-04f));
-  p = O::madd(x2, p, O::set1(4.89352455891786e-03f));
-  p = O::mul(x, p);
-  V q = O::madd(x2, O::set1(1.19825839466702e-06f), O::set1(1.18534705686654e-04f));
-  q = O::madd(x2, q, O::set1(2.26843463243900e-03f));
-  q = O::madd(x2, q, O::set1(4.89352518554385e-03f));
-  return O::select(O::lt(O::abs(a), O::set1(0.0004f)), a, O::div(p, q));
+  const V hi = O::set1(7.90531110763549805f), lo = O::set1(-7.90531110763549805f);
+  V x[N], x2[N], p[N], q[N];
+  for (int k = 0; k < N; ++k) x[k] = O::max(O::min(a[k], hi), lo);
+  for (int k = 0; k < N; ++k) x2[k] = O::mul(x[k], x[k]);
+  for (int k = 0; k < N; ++k) p[k] = O::madd(x2[k], O::set1(-2.76076847742355e-16f), O::set1(2.00018790482477e-13f));
+  for (int k = 0; k < N; ++k) q[k] = O::madd(x2[k], O::set1(1.19825839466702e-06f), O::set1(1.18534705686654e-04f));
+  for (int k = 0; k < N; ++k) p[k] = O::madd(x2[k], p[k], O::set1(-8.60467152213735e-11f));
+  for (int k = 0; k < N; ++k) q[k] = O::madd(x2[k], q[k], O::set1(2.26843463243900e-03f));
+  for (int k = 0; k < N; ++k) p[k] = O::madd(x2[k], p[k], O::set1(5.12229709037114e-08f));
+  for (int k = 0; k < N; ++k) q[k] = O::madd(x2[k], q[k], O::set1(4.89352518554385e-03f));
+  for (int k = 0; k < N; ++k) p[k] = O::madd(x2[k], p[k], O::set1(1.48572235717979e-05f));
+  for (int k = 0; k < N; ++k) p[k] = O::madd(x2[k], p[k], O::set1(6.37261928875436e-04f));
+  for (int k = 0; k < N; ++k) p[k] = O::madd(x2[k], p[k], O::set1(4.89352455891786e-03f));
+  for (int k = 0; k < N; ++k) p[k] = O::mul(x[k], p[k]);
+  for (int k = 0; k < N; ++k) a[k] = O::select(O::lt(O::abs(a[k]), O::set1(0.0004f)), a[k], O::div(p[k], q[k]));
+}
+
+template <class A>
+inline typename Ops<A>::V tanh_v(typename Ops<A>::V a) {
+  tanh_n<A, 1>(&a);
+  return a;
 }
 
 template <class A>
@@ -68,12 +79,27 @@ inline void activate(const ActSpec& p, const float* x, float* y, int n) {
   for (; t < n; ++t) y[t] = act_v<scalar_arch>(p, S::load(x + t));
 }
 
+// Vectors per group in the passes below (tanh_n).
+constexpr int kSquashGroup = 4;
+
 // x[0..n) = sigmoid (kSigmoid) or tanh of x[0..n), in place; vector body,
 // scalar tail (same operations).
 template <class A, bool kSigmoid>
 inline void squash_rows(float* x, int n) {
   using O = Ops<A>;
+  constexpr int N = kSquashGroup;
+  const auto half = O::set1(0.5f);
   int t = 0;
+  for (; t + N * O::W <= n; t += N * O::W) {
+    typename O::V v[N];
+    for (int k = 0; k < N; ++k) v[k] = O::load(x + t + k * O::W);
+    if (kSigmoid)
+      for (int k = 0; k < N; ++k) v[k] = O::mul(half, v[k]);
+    tanh_n<A, N>(v);
+    if (kSigmoid)
+      for (int k = 0; k < N; ++k) v[k] = O::madd(half, v[k], half);
+    for (int k = 0; k < N; ++k) O::store(x + t + k * O::W, v[k]);
+  }
   for (; t + O::W <= n; t += O::W) {
     const auto v = O::load(x + t);
     O::store(x + t, kSigmoid ? sigmoid_v<A>(v) : tanh_v<A>(v));

@@ -7,8 +7,9 @@
 // lane of a vector computes exactly what the scalar loop computes; only the
 // avx2fma variant fuses multiply and add (and so differs in the last bits).
 //
-// min/max/relu are written as compare-and-select so that their result for
-// signed zeros is the same on every instruction set.
+// min/max/relu are defined as compare-and-select, select(a < b, a, b), so
+// that their result for signed zeros and NaN is the same on every
+// instruction set (x86's MINPS/MAXPS compute exactly that, and are used).
 //
 // This header is included only by the per-variant translation unit, inside
 // namespace earshot::EARSHOT_NS, so each variant's inline functions stay apart.
@@ -54,6 +55,14 @@ struct Ops<scalar_arch> {
 };
 
 #if EARSHOT_XSIMD
+#if defined(__SSE__) && !defined(__EMSCRIPTEN__)
+inline __m128 x86_min(__m128 a, __m128 b) { return _mm_min_ps(a, b); }
+inline __m128 x86_max(__m128 a, __m128 b) { return _mm_max_ps(a, b); }
+#if defined(__AVX__)
+inline __m256 x86_min(__m256 a, __m256 b) { return _mm256_min_ps(a, b); }
+inline __m256 x86_max(__m256 a, __m256 b) { return _mm256_max_ps(a, b); }
+#endif
+#endif
 template <class XArch>
 struct Ops {
   using V = xsimd::batch<float, XArch>;
@@ -77,8 +86,17 @@ struct Ops {
   static M gt(V a, V b) { return a > b; }
   static V select(M m, V a, V b) { return xsimd::select(m, a, b); }
   static V abs(V a) { return xsimd::abs(a); }
+#if defined(__SSE__) && !defined(__EMSCRIPTEN__)
+  // MINPS/MAXPS return the second operand unless the first compares less
+  // (greater): for ±0 pairs and NaNs too (Intel SDM, vol. 2, MINPS and
+  // MAXPS), which is exactly select(a < b, a, b). One instruction instead of
+  // a compare and a blend.
+  static V min(V a, V b) { return V(x86_min(a, b)); }
+  static V max(V a, V b) { return V(x86_max(a, b)); }
+#else
   static V min(V a, V b) { return xsimd::select(a < b, a, b); }
   static V max(V a, V b) { return xsimd::select(a > b, a, b); }
+#endif
 };
 #endif
 

@@ -36,6 +36,16 @@ inline void gated_rows(const float* x, float* y, int C, int n) {
     const float* b = x + size_t(C + c) * kChunk;
     float* o = y + size_t(c) * kChunk;
     int t = 0;
+    // Two time vectors at once: four tanh chains in flight (tanh_n), the
+    // same operations on every value as the one-vector loop below.
+    const auto half = O::set1(0.5f);
+    for (; t + 2 * O::W <= n; t += 2 * O::W) {
+      typename O::V v[4] = {O::load(a + t), O::load(a + t + O::W), O::mul(half, O::load(b + t)),
+                            O::mul(half, O::load(b + t + O::W))};
+      tanh_n<A, 4>(v);
+      O::store(o + t, O::mul(v[0], O::madd(half, v[2], half)));
+      O::store(o + t + O::W, O::mul(v[1], O::madd(half, v[3], half)));
+    }
     for (; t + O::W <= n; t += O::W)
       O::store(o + t, O::mul(tanh_v<A>(O::load(a + t)), sigmoid_v<A>(O::load(b + t))));
     for (; t < n; ++t) o[t] = S::mul(tanh_v<scalar_arch>(a[t]), sigmoid_v<scalar_arch>(b[t]));

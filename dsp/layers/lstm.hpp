@@ -65,13 +65,21 @@ struct LstmLayer : Layer {
     sigmoid_rows<A>(zi, 2 * H);
     tanh_rows<A>(zg, H);
     sigmoid_rows<A>(zo, H);
+    // The cell state, then h = o ⊙ tanh(c) in groups of tanh_n.
     int j = 0;
     for (; j + W <= H; j += W) {
       const auto ig = O::mul(O::load(zi + j), O::load(zg + j));
-      const auto cv = flush_tiny<A>(O::madd(O::load(zf + j), O::load(c + j), ig));
-      O::store(c + j, cv);
-      O::store(h + j, flush_tiny<A>(O::mul(O::load(zo + j), tanh_v<A>(cv))));
+      O::store(c + j, flush_tiny<A>(O::madd(O::load(zf + j), O::load(c + j), ig)));
     }
+    constexpr int N = kSquashGroup;
+    int k = 0;
+    for (; k + N * W <= j; k += N * W) {
+      typename O::V v[N];
+      for (int q = 0; q < N; ++q) v[q] = O::load(c + k + q * W);
+      tanh_n<A, N>(v);
+      for (int q = 0; q < N; ++q) O::store(h + k + q * W, flush_tiny<A>(O::mul(O::load(zo + k + q * W), v[q])));
+    }
+    for (; k < j; k += W) O::store(h + k, flush_tiny<A>(O::mul(O::load(zo + k), tanh_v<A>(O::load(c + k)))));
     for (; j < H; ++j) {
       const float ig = S::mul(zi[j], zg[j]);
       const float cv = flush_tiny<scalar_arch>(S::madd(zf[j], c[j], ig));
