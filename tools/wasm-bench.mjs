@@ -4,11 +4,16 @@
 //
 //   node tools/wasm-bench.mjs [--seconds 10] [--block 128] [--repeats 5] [FILE.nfx ...]
 //   node tools/wasm-bench.mjs --channels 2 [--seconds 5] [--repeats 3] [FILE.nfx ...]
+//   node tools/wasm-bench.mjs --against OLD-simd.wasm [FILE.nfx ...]
 //
 // With --channels C: a C-channel stream (Effect.processChannels, the
 // channels in lockstep) against a mono stream, per channel, in WASM simd and
 // scalar: rounds interleave mono and C channels in both builds, and the
 // figure is channel-seconds per second of each, best round of each.
+//
+// With --against OLD.wasm: another simd build (e.g. of an earlier commit)
+// joins every round, and the table gains its figure and new/old speed; its
+// output must equal this build's bit for bit.
 //
 // Default models: build/bench-models/*.nfx (tools/make_bench_models.py, made
 // when missing). Each figure is the best of --repeats runs over the same
@@ -35,6 +40,15 @@ const opt = (name, def) => {
   if (!Number.isFinite(v) || v <= 0) throw new Error(`--${name} needs a positive number`);
   return v;
 };
+let AGAINST = null;
+{
+  const i = args.indexOf('--against');
+  if (i >= 0) {
+    if (!args[i + 1] || !existsSync(args[i + 1])) throw new Error('--against needs the path of a simd .wasm build');
+    AGAINST = new WebAssembly.Module(readFileSync(args[i + 1]));
+    args.splice(i, 2);
+  }
+}
 const CHANNELS = Math.floor(opt('channels', 1));
 const SECONDS = opt('seconds', CHANNELS > 1 ? 5 : 10);
 const BLOCK = Math.floor(opt('block', 128));
@@ -156,7 +170,7 @@ function benchChannels() {
       `${fmt(r.scalar.mono)} | ${fmt(r.scalar.perChannel)} | ${fmt(r.scalar.perChannel / r.scalar.mono, 2)}× | ${r.same ? 'yes' : 'NO'} |`);
   }
   console.log(lines.join('\n'));
-  if (rows.some((r) => !r.same)) process.exitCode = 1;
+  if (rows.some((r) => !r.same || !r.againstSame)) process.exitCode = 1;
 }
 
 if (CHANNELS > 1) {
@@ -175,22 +189,31 @@ for (const file of files) {
   const x = signal(n);
   // Rounds interleave the three so that each sees the same machine load;
   // the best round of each counts.
+  const kinds = AGAINST ? ['simd', 'scalar', 'against'] : ['simd', 'scalar'];
   const fx = { simd: createEffect(bytes, rate, variant('simd')), scalar: createEffect(bytes, rate, variant('scalar')) };
-  const y = { simd: new Float32Array(n), scalar: new Float32Array(n) };
-  const best = { native: Infinity, simd: Infinity, scalar: Infinity };
+  if (AGAINST) fx.against = createEffect(bytes, rate, AGAINST);
+  const y = Object.fromEntries(kinds.map((v) => [v, new Float32Array(n)]));
+  const best = { native: Infinity, simd: Infinity, scalar: Infinity, against: Infinity };
   // Warm-up (untimed): V8 first runs wasm from its baseline compiler and
   // tiers up hot functions to the optimising one.
   const xb = blocks(x);
-  const yb = { simd: blocks(y.simd), scalar: blocks(y.scalar) };
+  const yb = Object.fromEntries(kinds.map((v) => [v, blocks(y[v])]));
   const warm = Math.ceil(Math.min(n, rate) / BLOCK);
-  for (const v of ['simd', 'scalar']) passWasm(fx[v], xb.slice(0, warm), yb[v].slice(0, warm));
+  for (const v of kinds) passWasm(fx[v], xb.slice(0, warm), yb[v].slice(0, warm));
   let native = null;
   for (let r = 0; r < REPEATS; r++) {
     const out = runNative(['bench', file, String(rate), 'sse4', String(SECONDS), String(BLOCK), '1']);
     native = Object.fromEntries(out.trim().split('\n').map((l) => [l.slice(0, l.indexOf(' ')), l.slice(l.indexOf(' ') + 1)]));
     if (native.error) throw new Error(`${file}: ${native.error}`);
     best.native = Math.min(best.native, Number(native.seconds));
-    for (const v of ['simd', 'scalar']) best[v] = Math.min(best[v], passWasm(fx[v], xb, yb[v]));
+    for (const v of kinds) best[v] = Math.min(best[v], passWasm(fx[v], xb, yb[v]));
+  }
+  let againstSame = true;
+  if (AGAINST) {
+    fx.against.destroy();
+    const a = new Uint32Array(y.simd.buffer);
+    const b = new Uint32Array(y.against.buffer);
+    for (let i = 0; i < a.length && againstSame; i++) againstSame = a[i] === b[i];
   }
   const simd = { seconds: best.simd, checksum: checksum(y.simd), info: fx.simd.info };
   const scalar = { seconds: best.scalar, checksum: checksum(y.scalar) };
@@ -210,6 +233,8 @@ for (const file of files) {
     simdVsNative: simd.seconds / nat,
     simdVsScalar: scalar.seconds / simd.seconds,
     same,
+    againstRt: SECONDS / best.against,
+    againstSame,
   });
 }
 
@@ -231,6 +256,13 @@ for (const r of rows) {
   lines.push(`| ${r.model} | ${r.kind} | ${r.macs} | ${fmt(r.nativeRt)} | ${fmt(r.simdRt)} | ${fmt(r.scalarRt)} | ` +
     `${fmt(r.simdVsNative, 2)}${okNative ? '' : ' ✗'} | ${fmt(r.simdVsScalar, 2)} (≥ ${target})${okScalar ? '' : ' ✗'} | ${r.same ? 'yes' : 'NO'} |`);
 }
+if (AGAINST) {
+  lines.push('', 'Against the other simd build (same rounds):', '',
+    '| model | other simd | this simd | this / other speed | outputs bit-equal |', '|---|---:|---:|---:|---|');
+  for (const r of rows) {
+    lines.push(`| ${r.model} | ${fmt(r.againstRt)} | ${fmt(r.simdRt)} | ${fmt(r.simdRt / r.againstRt, 2)} | ${r.againstSame ? 'yes' : 'NO'} |`);
+  }
+}
 lines.push('', misses.length ? `Targets missed:\n- ${misses.join('\n- ')}` : 'All targets met.');
 console.log(lines.join('\n'));
-if (rows.some((r) => !r.same)) process.exitCode = 1;
+if (rows.some((r) => !r.same || !r.againstSame)) process.exitCode = 1;

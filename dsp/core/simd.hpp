@@ -93,6 +93,13 @@ struct Ops {
   // a compare and a blend.
   static V min(V a, V b) { return V(x86_min(a, b)); }
   static V max(V a, V b) { return V(x86_max(a, b)); }
+#elif defined(__EMSCRIPTEN__) && defined(__wasm_simd128__)
+  // f32x4.pmin(x, y) = y < x ? y : x and f32x4.pmax(x, y) = x < y ? y : x
+  // (the WebAssembly SIMD instruction set's pseudo-minimum and -maximum), so
+  // pmin(b, a) = select(a < b, a, b) and pmax(b, a) = select(a > b, a, b).
+  // tests/node/signed-zero.test.mjs would catch the operands swapped.
+  static V min(V a, V b) { return V(__m128(wasm_f32x4_pmin(v128_t(__m128(b)), v128_t(__m128(a))))); }
+  static V max(V a, V b) { return V(__m128(wasm_f32x4_pmax(v128_t(__m128(b)), v128_t(__m128(a))))); }
 #else
   static V min(V a, V b) { return xsimd::select(a < b, a, b); }
   static V max(V a, V b) { return xsimd::select(a > b, a, b); }
