@@ -69,12 +69,14 @@ GridCell cell_of(const std::vector<std::vector<float>>& ch) {
   return cell;
 }
 
-// `earshot render` of one channel: a stream at the clip's rate with the
-// column's controls, mix 1, gains 0 dB, started unramped; the input followed by
-// `latency` zeros, the first `latency` output samples dropped.
-std::vector<float> render_channel(const GridEffect& fx, const std::vector<std::pair<std::string, double>>& controls,
-                                  const std::vector<float>& x, int rate) {
-  Stream s(*fx.bytes, rate, "scalar", fx.path);
+// `earshot render` of a clip: one stream of the clip's channels in lockstep
+// at its rate, with the column's controls, mix 1, gains 0 dB, started
+// unramped; the input followed by `latency` zeros, the first `latency` output
+// samples dropped.
+std::vector<std::vector<float>> render_cell(const GridEffect& fx,
+                                            const std::vector<std::pair<std::string, double>>& controls,
+                                            const std::vector<std::vector<float>>& dry, int rate) {
+  Stream s(*fx.bytes, rate, "scalar", fx.path, int(dry.size()));
   for (const auto& c : controls) {
     const int st = earshot_set_control(s.get(), earshot_control_index(s.get(), c.first.c_str()), float(c.second));
     if (st != EARSHOT_OK)
@@ -83,10 +85,13 @@ std::vector<float> render_channel(const GridEffect& fx, const std::vector<std::p
   }
   earshot_reset(s.get());
   const size_t latency = size_t(s.latency());
-  std::vector<float> in(x.size() + latency, 0.0f), out(x.size() + latency);
-  std::copy(x.begin(), x.end(), in.begin());
-  s.process(in.data(), out.data(), in.size(), 4096);
-  return std::vector<float>(out.begin() + std::ptrdiff_t(latency), out.end());
+  const size_t n = dry.empty() ? 0 : dry[0].size();
+  std::vector<std::vector<float>> in(dry.size(), std::vector<float>(n + latency, 0.0f));
+  std::vector<std::vector<float>> out(dry.size(), std::vector<float>(n + latency));
+  for (size_t c = 0; c < dry.size(); ++c) std::copy(dry[c].begin(), dry[c].end(), in[c].begin());
+  s.process_channels(in, out, n + latency, 4096);
+  for (auto& ch : out) ch.erase(ch.begin(), ch.begin() + std::ptrdiff_t(latency));
+  return out;
 }
 
 // Every control of an effect column: the column's value, else the page default.
@@ -242,9 +247,7 @@ GridPlan plan_grid(const GridSpec& spec, const std::vector<GridEffect>& effects,
         }
       } else {
         const GridEffect& fx = effects[plan.column_effect[k]];
-        std::vector<std::vector<float>> wet;
-        for (const auto& ch : dry) wet.push_back(render_channel(fx, plan.column_controls[k], ch, audio.rate));
-        cell = cell_of(wet);
+        cell = cell_of(render_cell(fx, plan.column_controls[k], dry, audio.rate));
       }
     }
   }
