@@ -50,6 +50,7 @@ let AGAINST = null;
   }
 }
 const CHANNELS = Math.floor(opt('channels', 1));
+if (AGAINST && CHANNELS > 1) throw new Error('--against times mono streams only; leave out --channels');
 const SECONDS = opt('seconds', CHANNELS > 1 ? 5 : 10);
 const BLOCK = Math.floor(opt('block', 128));
 const REPEATS = Math.floor(opt('repeats', CHANNELS > 1 ? 3 : 5));
@@ -90,6 +91,14 @@ function passWasm(fx, xb, yb) {
   const t0 = process.hrtime.bigint();
   for (let i = 0; i < xb.length; i++) fx.process(xb[i], yb[i]);
   return Number(process.hrtime.bigint() - t0) / 1e9;
+}
+
+// a and b (Float32Arrays of one length) hold the same bits.
+function bitEqual(a, b) {
+  const x = new Uint32Array(a.buffer, a.byteOffset, a.length);
+  const y = new Uint32Array(b.buffer, b.byteOffset, b.length);
+  for (let i = 0; i < x.length; i++) if (x[i] !== y[i]) return false;
+  return x.length === y.length;
 }
 
 function checksum(y) {
@@ -149,9 +158,7 @@ function benchChannels() {
       fx[v].mono.destroy();
       fx[v].multi.destroy();
       // Channel 0 of the stream is the mono stream's output, bit for bit.
-      const a = new Uint32Array(io[v].y1.buffer);
-      const b = new Uint32Array(io[v].ys[0].buffer);
-      for (let i = 0; i < a.length && same; i++) same = a[i] === b[i];
+      same = same && bitEqual(io[v].y1, io[v].ys[0]);
       row[v] = { mono: SECONDS / best[v].mono, perChannel: (C * SECONDS) / best[v].multi };
     }
     row.same = same && checksum(io.simd.y1) === checksum(io.scalar.y1);
@@ -170,7 +177,7 @@ function benchChannels() {
       `${fmt(r.scalar.mono)} | ${fmt(r.scalar.perChannel)} | ${fmt(r.scalar.perChannel / r.scalar.mono, 2)}× | ${r.same ? 'yes' : 'NO'} |`);
   }
   console.log(lines.join('\n'));
-  if (rows.some((r) => !r.same || !r.againstSame)) process.exitCode = 1;
+  if (rows.some((r) => !r.same)) process.exitCode = 1;
 }
 
 if (CHANNELS > 1) {
@@ -208,13 +215,8 @@ for (const file of files) {
     best.native = Math.min(best.native, Number(native.seconds));
     for (const v of kinds) best[v] = Math.min(best[v], passWasm(fx[v], xb, yb[v]));
   }
-  let againstSame = true;
-  if (AGAINST) {
-    fx.against.destroy();
-    const a = new Uint32Array(y.simd.buffer);
-    const b = new Uint32Array(y.against.buffer);
-    for (let i = 0; i < a.length && againstSame; i++) againstSame = a[i] === b[i];
-  }
+  if (AGAINST) fx.against.destroy();
+  const againstSame = !AGAINST || bitEqual(y.simd, y.against);
   const simd = { seconds: best.simd, checksum: checksum(y.simd), info: fx.simd.info };
   const scalar = { seconds: best.scalar, checksum: checksum(y.scalar) };
   fx.simd.destroy();
