@@ -40,11 +40,21 @@ inline typename Ops<A>::V tanh_v(typename Ops<A>::V a) {
   return a;
 }
 
+// sigmoid(x) = 0.5 + 0.5·tanh(x/2): the argument of that tanh, and the
+// sigmoid from its result (so passes can put sigmoids in tanh_n's groups).
+template <class A>
+inline typename Ops<A>::V sigmoid_arg(typename Ops<A>::V x) {
+  return Ops<A>::mul(Ops<A>::set1(0.5f), x);
+}
+template <class A>
+inline typename Ops<A>::V sigmoid_from_tanh(typename Ops<A>::V t) {
+  const auto half = Ops<A>::set1(0.5f);
+  return Ops<A>::madd(half, t, half);
+}
+
 template <class A>
 inline typename Ops<A>::V sigmoid_v(typename Ops<A>::V x) {
-  using O = Ops<A>;
-  const auto half = O::set1(0.5f);
-  return O::madd(half, tanh_v<A>(O::mul(half, x)), half);
+  return sigmoid_from_tanh<A>(tanh_v<A>(sigmoid_arg<A>(x)));
 }
 
 template <class A>
@@ -82,29 +92,26 @@ inline void activate(const ActSpec& p, const float* x, float* y, int n) {
 // Vectors per group in the passes below (tanh_n).
 constexpr int kSquashGroup = 4;
 
-// x[0..n) = sigmoid (kSigmoid) or tanh of x[0..n), in place; vector body,
-// scalar tail (same operations).
+// N vectors (of Ops<A>::W values) at x: sigmoid (kSigmoid) or tanh, in place.
+template <class A, bool kSigmoid, int N>
+inline void squash_group(float* x) {
+  using O = Ops<A>;
+  typename O::V v[N];
+  for (int k = 0; k < N; ++k) v[k] = kSigmoid ? sigmoid_arg<A>(O::load(x + k * O::W)) : O::load(x + k * O::W);
+  tanh_n<A, N>(v);
+  for (int k = 0; k < N; ++k) O::store(x + k * O::W, kSigmoid ? sigmoid_from_tanh<A>(v[k]) : v[k]);
+}
+
+// x[0..n) = sigmoid (kSigmoid) or tanh of x[0..n), in place: groups of
+// kSquashGroup vectors, single vectors, then a scalar tail (the same
+// operations on every value, so the split never changes one).
 template <class A, bool kSigmoid>
 inline void squash_rows(float* x, int n) {
-  using O = Ops<A>;
-  constexpr int N = kSquashGroup;
-  const auto half = O::set1(0.5f);
+  constexpr int W = Ops<A>::W;
   int t = 0;
-  for (; t + N * O::W <= n; t += N * O::W) {
-    typename O::V v[N];
-    for (int k = 0; k < N; ++k) v[k] = O::load(x + t + k * O::W);
-    if (kSigmoid)
-      for (int k = 0; k < N; ++k) v[k] = O::mul(half, v[k]);
-    tanh_n<A, N>(v);
-    if (kSigmoid)
-      for (int k = 0; k < N; ++k) v[k] = O::madd(half, v[k], half);
-    for (int k = 0; k < N; ++k) O::store(x + t + k * O::W, v[k]);
-  }
-  for (; t + O::W <= n; t += O::W) {
-    const auto v = O::load(x + t);
-    O::store(x + t, kSigmoid ? sigmoid_v<A>(v) : tanh_v<A>(v));
-  }
-  for (; t < n; ++t) x[t] = kSigmoid ? sigmoid_v<scalar_arch>(x[t]) : tanh_v<scalar_arch>(x[t]);
+  for (; t + kSquashGroup * W <= n; t += kSquashGroup * W) squash_group<A, kSigmoid, kSquashGroup>(x + t);
+  for (; t + W <= n; t += W) squash_group<A, kSigmoid, 1>(x + t);
+  for (; t < n; ++t) squash_group<scalar_arch, kSigmoid, 1>(x + t);
 }
 template <class A>
 inline void tanh_rows(float* x, int n) {

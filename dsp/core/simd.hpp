@@ -9,7 +9,7 @@
 //
 // min/max/relu are defined as compare-and-select, select(a < b, a, b), so
 // that their result for signed zeros and NaN is the same on every
-// instruction set (x86's MINPS/MAXPS compute exactly that, and are used).
+// instruction set (min_ps/max_ps below compute exactly that).
 //
 // This header is included only by the per-variant translation unit, inside
 // namespace earshot::EARSHOT_NS, so each variant's inline functions stay apart.
@@ -55,14 +55,29 @@ struct Ops<scalar_arch> {
 };
 
 #if EARSHOT_XSIMD
-#if defined(__SSE__) && !defined(__EMSCRIPTEN__)
-inline __m128 x86_min(__m128 a, __m128 b) { return _mm_min_ps(a, b); }
-inline __m128 x86_max(__m128 a, __m128 b) { return _mm_max_ps(a, b); }
+// min and max in one instruction each, exactly select(a < b, a, b) and
+// select(a > b, a, b), signed zeros and NaN included:
+// - WebAssembly: f32x4.pmin(x, y) = y < x ? y : x and f32x4.pmax(x, y) =
+//   x < y ? y : x (the WebAssembly SIMD instruction set's pseudo-minimum and
+//   -maximum), so the operands go in the other way round;
+// - x86: MINPS/MAXPS return the second operand unless the first compares less
+//   (greater), for ±0 pairs and NaNs too (Intel SDM vol. 2, MINPS, MAXPS).
+// tests/native/layers/activation_test.cpp and tests/node/signed-zero.test.mjs
+// would catch the operands swapped.
+#if defined(__EMSCRIPTEN__) && defined(__wasm_simd128__)
+#define EARSHOT_MIN_MAX_PS 1
+inline __m128 min_ps(__m128 a, __m128 b) { return __m128(wasm_f32x4_pmin(v128_t(b), v128_t(a))); }
+inline __m128 max_ps(__m128 a, __m128 b) { return __m128(wasm_f32x4_pmax(v128_t(b), v128_t(a))); }
+#elif defined(__SSE__) && !defined(__EMSCRIPTEN__)
+#define EARSHOT_MIN_MAX_PS 1
+inline __m128 min_ps(__m128 a, __m128 b) { return _mm_min_ps(a, b); }
+inline __m128 max_ps(__m128 a, __m128 b) { return _mm_max_ps(a, b); }
 #if defined(__AVX__)
-inline __m256 x86_min(__m256 a, __m256 b) { return _mm256_min_ps(a, b); }
-inline __m256 x86_max(__m256 a, __m256 b) { return _mm256_max_ps(a, b); }
+inline __m256 min_ps(__m256 a, __m256 b) { return _mm256_min_ps(a, b); }
+inline __m256 max_ps(__m256 a, __m256 b) { return _mm256_max_ps(a, b); }
 #endif
 #endif
+
 template <class XArch>
 struct Ops {
   using V = xsimd::batch<float, XArch>;
@@ -86,20 +101,9 @@ struct Ops {
   static M gt(V a, V b) { return a > b; }
   static V select(M m, V a, V b) { return xsimd::select(m, a, b); }
   static V abs(V a) { return xsimd::abs(a); }
-#if defined(__SSE__) && !defined(__EMSCRIPTEN__)
-  // MINPS/MAXPS return the second operand unless the first compares less
-  // (greater): for ±0 pairs and NaNs too (Intel SDM, vol. 2, MINPS and
-  // MAXPS), which is exactly select(a < b, a, b). One instruction instead of
-  // a compare and a blend.
-  static V min(V a, V b) { return V(x86_min(a, b)); }
-  static V max(V a, V b) { return V(x86_max(a, b)); }
-#elif defined(__EMSCRIPTEN__) && defined(__wasm_simd128__)
-  // f32x4.pmin(x, y) = y < x ? y : x and f32x4.pmax(x, y) = x < y ? y : x
-  // (the WebAssembly SIMD instruction set's pseudo-minimum and -maximum), so
-  // pmin(b, a) = select(a < b, a, b) and pmax(b, a) = select(a > b, a, b).
-  // tests/node/signed-zero.test.mjs would catch the operands swapped.
-  static V min(V a, V b) { return V(__m128(wasm_f32x4_pmin(v128_t(__m128(b)), v128_t(__m128(a))))); }
-  static V max(V a, V b) { return V(__m128(wasm_f32x4_pmax(v128_t(__m128(b)), v128_t(__m128(a))))); }
+#if EARSHOT_MIN_MAX_PS
+  static V min(V a, V b) { return V(min_ps(a, b)); }
+  static V max(V a, V b) { return V(max_ps(a, b)); }
 #else
   static V min(V a, V b) { return xsimd::select(a < b, a, b); }
   static V max(V a, V b) { return xsimd::select(a > b, a, b); }

@@ -26,29 +26,32 @@ struct GatedType {
 // ---- kernel part: included once per variant, inside its namespace (variant_graph.cpp) ----
 #else
 
-// y rows [0, C) from x rows [0, 2C): tanh of the first half times sigmoid of the second.
+// N vectors of outputs at o from N of the tanh half at a and N of the
+// sigmoid half at b: one tanh_n over all 2N, so 2N chains are in flight.
+template <class A, int N>
+inline void gated_group(const float* a, const float* b, float* o) {
+  using O = Ops<A>;
+  typename O::V v[2 * N];
+  for (int k = 0; k < N; ++k) v[k] = O::load(a + k * O::W);
+  for (int k = 0; k < N; ++k) v[N + k] = sigmoid_arg<A>(O::load(b + k * O::W));
+  tanh_n<A, 2 * N>(v);
+  for (int k = 0; k < N; ++k) O::store(o + k * O::W, O::mul(v[k], sigmoid_from_tanh<A>(v[N + k])));
+}
+
+// y rows [0, C) from x rows [0, 2C): tanh of the first half times sigmoid of
+// the second; two time vectors at a time, then one, then a scalar tail (the
+// same operations on every value).
 template <class A>
 inline void gated_rows(const float* x, float* y, int C, int n) {
-  using O = Ops<A>;
-  using S = Ops<scalar_arch>;
+  constexpr int W = Ops<A>::W;
   for (int c = 0; c < C; ++c) {
     const float* a = x + size_t(c) * kChunk;
     const float* b = x + size_t(C + c) * kChunk;
     float* o = y + size_t(c) * kChunk;
     int t = 0;
-    // Two time vectors at once: four tanh chains in flight (tanh_n), the
-    // same operations on every value as the one-vector loop below.
-    const auto half = O::set1(0.5f);
-    for (; t + 2 * O::W <= n; t += 2 * O::W) {
-      typename O::V v[4] = {O::load(a + t), O::load(a + t + O::W), O::mul(half, O::load(b + t)),
-                            O::mul(half, O::load(b + t + O::W))};
-      tanh_n<A, 4>(v);
-      O::store(o + t, O::mul(v[0], O::madd(half, v[2], half)));
-      O::store(o + t + O::W, O::mul(v[1], O::madd(half, v[3], half)));
-    }
-    for (; t + O::W <= n; t += O::W)
-      O::store(o + t, O::mul(tanh_v<A>(O::load(a + t)), sigmoid_v<A>(O::load(b + t))));
-    for (; t < n; ++t) o[t] = S::mul(tanh_v<scalar_arch>(a[t]), sigmoid_v<scalar_arch>(b[t]));
+    for (; t + 2 * W <= n; t += 2 * W) gated_group<A, 2>(a + t, b + t, o + t);
+    for (; t + W <= n; t += W) gated_group<A, 1>(a + t, b + t, o + t);
+    for (; t < n; ++t) gated_group<scalar_arch, 1>(a + t, b + t, o + t);
   }
 }
 
